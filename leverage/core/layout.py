@@ -1,0 +1,113 @@
+"""Slot numbers of the flat arrays passed to and returned by the compiled model.
+
+The compiled fitness takes plain float64 arrays (picklable, no Python objects in
+the hot path). Module-level integers are frozen as constants by numba.
+
+Decision vector ``x`` (units in the name):
+"""
+from .ephemeris import EPHEMERIS_SIZE
+
+# --- decision vector -------------------------------------------------------
+X_LAUNCH_DAY = 0       # launch epoch, days TDB past J2000
+X_VINF_KMS = 1         # launch v-infinity magnitude, km/s
+X_AZIMUTH_DEG = 2      # launch direction in the orbit plane, from the body's velocity toward "out", deg
+X_ELEVATION_DEG = 3    # launch direction out of the orbit plane, toward the orbit normal, deg
+X_LOOP_DAYS = 4        # launch to return flyby, days
+X_DSM_FRACTION = 5     # DSM epoch as a fraction of the loop, 0..1
+X_FLYBY_ALT_KM = 6     # return flyby periapsis altitude, km
+X_BPLANE_DEG = 7       # return flyby B-plane angle, deg
+N_X_LOOP = 8           # decision vector length without a target leg
+N_X_TARGET = 7         # with a target leg the flyby geometry follows from the leg, so
+X_TARGET_LEG_DAYS = 6  # x[6] is the flyby-to-arrival duration (days) and there is no x[7]
+
+# --- parameters --------------------------------------------------------------
+P_MU_SUN = 0
+P_BODY_MU = 1
+P_BODY_RADIUS_KM = 2
+P_POLE_RA = 3          # rad, EME2000
+P_POLE_DEC = 4         # rad, EME2000
+P_MIN_ALT_KM = 5
+P_C3_MAX = 6           # km^2/s^2 (inf: no cap)
+P_DLA_MIN = 7          # rad
+P_DLA_MAX = 8          # rad
+P_DSM_BUDGET_KMS = 9   # inf: no budget
+P_REV_MIN = 10
+P_REV_MAX = 11
+P_REQ_VINF_OUT_KMS = 12  # 0: none
+P_REQ_INC_RAD = 13       # 0: none
+P_REQ_APHELION_KM = 14   # 0: none
+P_W_DSM = 15             # weight of DSM (per km/s)
+P_W_GAIN = 16            # weight of v-infinity gain (per km/s)
+P_W_INC = 17             # weight of outgoing inclination (per deg)
+P_PENALTY_WEIGHT = 18    # objective units per unit of normalised violation
+P_N_OBJ = 19             # 1: weighted sum; 2: (DSM, -gain); 3: (DSM, -gain, -inclination)
+P_BODY_EPH = 20          # EPHEMERIS_SIZE slots
+P_HAS_TARGET = P_BODY_EPH + EPHEMERIS_SIZE
+P_TARGET_EPH = P_HAS_TARGET + 1  # EPHEMERIS_SIZE slots
+P_TARGET_MU = P_TARGET_EPH + EPHEMERIS_SIZE
+P_ARRIVAL_VINF_MAX_KMS = P_TARGET_MU + 1  # inf: no limit
+P_POWERED_FLYBY = P_ARRIVAL_VINF_MAX_KMS + 1  # 1: periapsis burn allowed
+P_W_ARRIVAL = P_POWERED_FLYBY + 1             # weight of arrival v-infinity (per km/s)
+N_PARAMS = P_W_ARRIVAL + 1
+
+# --- derived quantities (one evaluation) -------------------------------------
+Q_OK = 0                # 1 if every leg solved
+Q_T_LAUNCH = 1          # s TDB past J2000
+Q_T_DSM = 2
+Q_T_FLYBY = 3
+Q_T_ARRIVAL = 4
+Q_C3 = 5                # km^2/s^2
+Q_DLA = 6               # rad
+Q_RLA = 7               # rad
+Q_VINF_LAUNCH = 8       # km/s
+Q_DSM = 9               # km/s
+Q_DSM_R = 10            # km/s, radial
+Q_DSM_T = 11            # km/s, along-track
+Q_DSM_N = 12            # km/s, normal
+Q_VINF_IN = 13          # km/s, at the return flyby
+Q_VINF_OUT = 14         # km/s, after the flyby
+Q_GAIN = 15             # km/s, |v_inf in at return| - launch v_inf
+Q_LEVERAGE = 16         # gain per km/s of DSM (nan for DSM = 0)
+Q_TURN = 17             # rad
+Q_TURN_MAX = 18         # rad, at the minimum periapsis
+Q_ALT = 19              # km, flyby periapsis altitude
+Q_RP = 20               # km, flyby periapsis radius
+Q_BPLANE = 21           # rad
+Q_OUT_A = 22            # km, outgoing heliocentric orbit
+Q_OUT_E = 23
+Q_OUT_INC = 24          # rad, to the ecliptic J2000
+Q_OUT_PERI = 25         # km
+Q_OUT_APO = 26          # km (inf if unbound)
+Q_REVS = 27             # Lambert revolutions of the DSM-to-flyby arc
+Q_LOW_PATH = 28         # 1 low-path root, 0 high-path
+Q_FLYBY_DV = 29         # km/s, periapsis burn of a powered flyby
+Q_VINF_ARRIVAL = 30     # km/s, at the target
+Q_TOTAL_DV = 31         # km/s, DSM + flyby burn
+Q_M_VIOL_START = 32
+# limit margins, in the physical unit named; >= 0 means the limit holds
+Q_MARGIN_ALT_KM = 32
+Q_MARGIN_TURN_RAD = 33
+Q_MARGIN_C3 = 34
+Q_MARGIN_DLA_RAD = 35
+Q_MARGIN_DSM_KMS = 36
+Q_MARGIN_VINF_OUT_KMS = 37
+Q_MARGIN_INC_RAD = 38
+Q_MARGIN_APHELION_KM = 39
+Q_MARGIN_LAMBERT = 40   # 0 if solved, -1 if not
+Q_MARGIN_VINF_MATCH_KMS = 41   # unpowered target flyby: -| |v_in| - |v_out| |
+Q_MARGIN_ARRIVAL_VINF_KMS = 42
+N_MARGINS = 11
+# state vectors at events (ecliptic J2000, km and km/s)
+Q_R_LAUNCH = 43
+Q_V_LAUNCH = 46         # spacecraft heliocentric velocity just after launch
+Q_R_DSM = 49
+Q_V_DSM_BEFORE = 52
+Q_V_DSM_AFTER = 55
+Q_R_FLYBY = 58
+Q_V_FLYBY_IN = 61       # heliocentric, before the flyby
+Q_V_FLYBY_OUT = 64      # heliocentric, after the flyby
+Q_V_BODY_FLYBY = 67     # the body's heliocentric velocity at the flyby
+Q_R_ARRIVAL = 70
+Q_V_ARRIVAL = 73
+Q_PENALTY = 76          # total penalty added to each objective
+N_Q = 77

@@ -1,0 +1,49 @@
+"""Smooth penalties for limit margins.
+
+A margin is in the physical unit of its limit and is >= 0 exactly when the limit
+holds. The penalty of a margin m with scale s is v + v^2 with v = max(0, -m)/s:
+zero exactly when the limit holds, continuous, and growing with the violation so
+that a search started in the infeasible region can climb out.
+"""
+import numpy as np
+from numba import njit
+
+from . import layout as L
+
+AU_KM_FOR_SCALES = 1.495978707e8
+NAN_PENALTY = 1.0e3
+
+# Normalising scale of each margin, in its unit (order as Q_MARGIN_* slots).
+MARGIN_SCALES = np.array([
+    100.0,                      # flyby altitude, km
+    0.1,                        # turn angle, rad
+    1.0,                        # C3, km^2/s^2
+    np.radians(1.0),            # DLA, rad
+    0.1,                        # DSM budget, km/s
+    0.1,                        # required outgoing v-infinity, km/s
+    np.radians(1.0),            # required inclination, rad
+    0.1 * AU_KM_FOR_SCALES,     # required aphelion, km
+    1.0,                        # Lambert solved (0 / -1)
+    0.1,                        # v-infinity match of an unpowered flyby, km/s
+    0.1,                        # arrival v-infinity, km/s
+])
+
+
+@njit(cache=True)
+def margin_penalty(margin, scale):
+    """v + v^2 with v = max(0, -margin)/scale (dimensionless); 0 iff margin >= 0."""
+    if np.isnan(margin):
+        return NAN_PENALTY  # an unknown margin is not a holding limit
+    if margin >= 0.0:
+        return 0.0
+    v = -margin / scale
+    return v + v * v
+
+
+@njit(cache=True)
+def total_penalty(q, weight):
+    """Weighted sum of the penalties of every margin slot in ``q``."""
+    s = 0.0
+    for k in range(L.N_MARGINS):
+        s += margin_penalty(q[L.Q_MARGIN_ALT_KM + k], MARGIN_SCALES[k])
+    return weight * s

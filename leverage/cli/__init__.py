@@ -1,0 +1,39 @@
+"""The ``leverage`` command: ``main(argv)`` builds the subcommands and returns an exit code.
+
+Each subcommand lives in its own module here with ``add_parser(subparsers)`` and
+``main(args) -> int``. Bad input is reported as one line on stderr (exit 2).
+"""
+import argparse
+import importlib
+import sys
+
+from .. import __version__
+from ..errors import ProblemError
+
+COMMANDS = ["run", "check", "show"]
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="leverage",
+        description="Search v-infinity leveraging trajectories (launch, one deep-space "
+                    "maneuver, return flyby) in a patched-conic model. Preliminary designs "
+                    "only.")
+    parser.add_argument("--version", action="version", version=f"leverage {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+    for name in COMMANDS:
+        module = importlib.import_module(f"{__name__}.{name.replace('-', '_')}")
+        cmd = module.add_parser(sub)
+        cmd.set_defaults(handler=module.main)
+    return parser
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.handler(args) or 0)
+    except ProblemError as exc:
+        print(f"leverage: {exc}", file=sys.stderr)
+        return 2

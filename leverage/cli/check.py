@@ -1,0 +1,46 @@
+"""leverage check PROBLEM: validate, list the decision variables, sample a few points."""
+import numpy as np
+
+from ..core import layout as L
+from ..problem import load_problem
+from ..udp import LeveragingUDP
+
+
+def add_parser(sub):
+    p = sub.add_parser("check", help="validate a problem file and show its scales",
+                       description="Validate PROBLEM, print the decision variables with bounds "
+                                   "and units, and evaluate a few random points.")
+    p.add_argument("problem", help="problem file (TOML)")
+    p.add_argument("--samples", type=int, default=5, help="random points to evaluate (default 5)")
+    p.add_argument("--seed", type=int, default=0, help="seed of the random points")
+    return p
+
+
+def report(problem, samples: int, seed: int) -> str:
+    compiled = problem.compile()
+    udp = LeveragingUDP.from_compiled(compiled, problem.name)
+    lines = [f"{problem.source}: valid ({problem.name}, goal {problem.values['goal']['kind']}, "
+             f"flyby body {problem.body.name})", "", "decision variables"]
+    lines.append(f"  {'name':<28}{'lower':>14}{'upper':>14}  unit")
+    for name, lo, hi, unit in zip(compiled.names, compiled.lower, compiled.upper, compiled.units):
+        lines.append(f"  {name:<28}{lo:>14.6g}{hi:>14.6g}  {unit}")
+    rng = np.random.default_rng(seed)
+    lines += ["", f"{samples} random points (seed {seed})",
+              f"  {'objective':>12}{'C3 km2/s2':>11}{'DSM km/s':>10}{'vinf in km/s':>13}"
+              f"{'alt km':>10}{'penalty':>10}"]
+    for _ in range(samples):
+        x = compiled.lower + rng.random(compiled.lower.shape) * (compiled.upper - compiled.lower)
+        q = udp.details(x)
+        f = udp.fitness(x)
+        if q[L.Q_OK] != 1.0:
+            lines.append(f"  {f[0]:>12.4g}  (a leg could not be solved)")
+            continue
+        lines.append(f"  {f[0]:>12.4g}{q[L.Q_C3]:>11.3f}{q[L.Q_DSM]:>10.3f}{q[L.Q_VINF_IN]:>13.3f}"
+                     f"{q[L.Q_ALT]:>10.0f}{q[L.Q_PENALTY]:>10.3g}")
+    return "\n".join(lines)
+
+
+def main(args) -> int:
+    problem = load_problem(args.problem)
+    print(report(problem, args.samples, args.seed))
+    return 0

@@ -1,0 +1,36 @@
+"""Command-line values checked with the same rules as problem-file keys."""
+from ..schema import keys_by_section
+from ..problem import convert
+
+
+def search_overrides(args) -> dict:
+    """Validated [search] overrides from --seed/--generations/--islands/--algorithm/--population."""
+    keys = keys_by_section()["search"]
+    out = {}
+    for name in ("seed", "generations", "islands", "algorithm", "population"):
+        value = getattr(args, name, None)
+        if value is not None:
+            out[name] = convert("command line", _as_option(keys[name]), value)
+    return out
+
+
+class _as_option:
+    """A Key seen as a command-line option, so errors name --option."""
+
+    def __init__(self, key):
+        self._key = key
+
+    def __getattr__(self, item):
+        return getattr(self._key, item)
+
+    @property
+    def path(self):
+        return f"--{self._key.name}"
+
+
+def add_search_options(parser):
+    parser.add_argument("--seed", type=int, help="random seed (overrides [search] seed)")
+    parser.add_argument("--generations", type=int, help="generations per island in all")
+    parser.add_argument("--islands", type=int, help="islands (worker processes)")
+    parser.add_argument("--population", type=int, help="individuals per island")
+    parser.add_argument("--algorithm", help="global algorithm: sade, de, de1220, pso, cmaes")

@@ -1,0 +1,136 @@
+"""Every key a problem file may hold: section, type, unit, default and meaning.
+
+One table serves validation (``problem.py``), the commented starter file
+(``leverage new``) and the documentation, so they cannot drift apart. Units are
+in the key names.
+"""
+from dataclasses import dataclass, field
+
+REQUIRED = object()
+
+
+@dataclass(frozen=True)
+class Key:
+    """One problem-file key. ``kind``: number, integer, text, boolean, date,
+    range (two numbers [low, high]), choice (one of ``choices``), revolutions
+    (integer, [min, max] or "any")."""
+
+    section: str
+    name: str
+    kind: str
+    default: object
+    meaning: str
+    minimum: float | None = None
+    maximum: float | None = None
+    choices: tuple = field(default_factory=tuple)
+    example: object = None  # shown in a starter file when there is no default
+
+    @property
+    def path(self) -> str:
+        return f"[{self.section}] {self.name}"
+
+
+SECTIONS = {
+    "study": "What this study is.",
+    "body": "The body launched from and flown by on return (the same body).",
+    "launch": "Launch window and launch-vehicle limits.",
+    "loop": "The loop from launch back to the return flyby, and the deep-space maneuver (DSM).",
+    "flyby": "The return flyby.",
+    "goal": "What to optimise and which outgoing conditions are required.",
+    "search": "The global search (pygmo archipelago) and the final local polish.",
+}
+
+ALGORITHMS = ("sade", "de", "de1220", "pso", "cmaes")
+POLISHERS = ("bobyqa", "slsqp", "mbh", "none")
+GOALS = ("min_dsm", "max_gain", "weighted")
+
+KEYS = [
+    Key("study", "name", "text", None, "Short name; results go to results/<name>-<time> by default "
+        "(default: the file name without .toml)."),
+    Key("study", "description", "text", "", "Free text copied into every summary."),
+    Key("body", "name", "choice", REQUIRED, "Launch and flyby body.",
+        choices=("mercury", "venus", "earth", "mars", "jupiter", "saturn", "uranus", "neptune"),
+        example="earth"),
+    Key("launch", "window_open_utc", "date", REQUIRED, "First launch date (UTC, YYYY-MM-DD).",
+        example="2031-01-01"),
+    Key("launch", "window_close_utc", "date", REQUIRED, "Last launch date (UTC, YYYY-MM-DD).",
+        example="2031-12-31"),
+    Key("launch", "max_c3_km2_s2", "number", REQUIRED,
+        "Launch energy cap C3 (km^2/s^2): the launcher's limit.", minimum=0.0, example=20.0),
+    Key("launch", "min_c3_km2_s2", "number", 0.0, "Lowest launch C3 searched (km^2/s^2).",
+        minimum=0.0),
+    Key("launch", "min_dla_deg", "number", -90.0,
+        "Lowest allowed declination of the launch asymptote (deg, body equator).",
+        minimum=-90.0, maximum=90.0),
+    Key("launch", "max_dla_deg", "number", 90.0,
+        "Highest allowed declination of the launch asymptote (deg, body equator).",
+        minimum=-90.0, maximum=90.0),
+    Key("launch", "in_plane_angle_deg", "range", [-180.0, 180.0],
+        "Launch direction searched in the body's orbit plane, from its velocity toward the "
+        "sunward-opposite side (deg).", minimum=-360.0, maximum=360.0),
+    Key("launch", "out_of_plane_angle_deg", "range", [-90.0, 90.0],
+        "Launch direction searched out of the body's orbit plane, toward its orbit normal (deg).",
+        minimum=-90.0, maximum=90.0),
+    Key("loop", "duration_days", "range", REQUIRED,
+        "Launch to return flyby (days).", minimum=1.0, example=[700.0, 800.0]),
+    Key("loop", "dsm_fraction", "range", [0.05, 0.95],
+        "DSM epoch as a fraction of the loop duration.", minimum=0.0, maximum=1.0),
+    Key("loop", "revolutions", "revolutions", "any",
+        "Whole revolutions of the DSM-to-return arc: a number, [min, max], or \"any\" "
+        "(0 to max_revolutions); both roots of each are tried at every evaluation."),
+    Key("loop", "max_revolutions", "integer", 2,
+        "Highest revolution count tried when revolutions = \"any\".", minimum=0, maximum=10),
+    Key("flyby", "min_altitude_km", "number", None,
+        "Lowest allowed flyby periapsis altitude (km); default: the body's common-practice "
+        "value in leverage/bodies.py.", minimum=0.0),
+    Key("flyby", "max_altitude_km", "number", None,
+        "Highest flyby periapsis altitude searched (km); default: 10 body radii.", minimum=0.0),
+    Key("flyby", "bplane_angle_deg", "range", [-180.0, 180.0],
+        "B-plane angle searched (deg, from T toward R; T in the ecliptic).",
+        minimum=-360.0, maximum=360.0),
+    Key("goal", "kind", "choice", "min_dsm",
+        "min_dsm: smallest DSM meeting the requirements; max_gain: largest v-infinity gain "
+        "(plus inclination_weight_per_deg x inclination) within dsm_budget_km_s; weighted: "
+        "dsm_weight x DSM - gain_weight x gain - inclination_weight_per_deg x inclination.",
+        choices=GOALS),
+    Key("goal", "min_outgoing_vinf_km_s", "number", 0.0,
+        "Required v-infinity after the flyby (km/s); 0: none.", minimum=0.0),
+    Key("goal", "min_outgoing_inclination_deg", "number", 0.0,
+        "Required inclination of the outgoing orbit to the ecliptic (deg); 0: none.",
+        minimum=0.0, maximum=180.0),
+    Key("goal", "min_outgoing_aphelion_au", "number", 0.0,
+        "Required aphelion of the outgoing orbit (au); 0: none.", minimum=0.0),
+    Key("goal", "dsm_budget_km_s", "number", None,
+        "Largest DSM allowed (km/s); default: none.", minimum=0.0),
+    Key("goal", "dsm_weight", "number", None,
+        "Weight of DSM per km/s (weighted goal; default 1).", minimum=0.0),
+    Key("goal", "gain_weight", "number", None,
+        "Weight of v-infinity gain per km/s (max_gain and weighted goals; default 1).",
+        minimum=0.0),
+    Key("goal", "inclination_weight_per_deg", "number", 0.0,
+        "Weight of outgoing inclination per degree (max_gain and weighted goals).", minimum=0.0),
+    Key("goal", "penalty_weight", "number", 10.0,
+        "Objective units added per scale of limit violation (see DEVELOPERS.md).", minimum=0.0),
+    Key("search", "algorithm", "choice", "sade", "Global algorithm on every island.",
+        choices=ALGORITHMS),
+    Key("search", "islands", "integer", 2, "Islands (worker processes) in the archipelago.",
+        minimum=1, maximum=256),
+    Key("search", "population", "integer", 24, "Individuals per island.", minimum=8,
+        maximum=100000),
+    Key("search", "generations", "integer", 400, "Generations per island in all.", minimum=1),
+    Key("search", "generations_per_migration", "integer", 50,
+        "Generations between migrations (and log lines).", minimum=1),
+    Key("search", "seed", "integer", 1, "Random seed: same seed and islands, same answer.",
+        minimum=0, maximum=2**31 - 1),
+    Key("search", "polish", "choice", "bobyqa",
+        "Local optimiser run on the champion at the end (pygmo nlopt bobyqa or slsqp, pygmo "
+        "mbh, or none).", choices=POLISHERS),
+]
+
+
+def keys_by_section() -> dict:
+    """{section: {name: Key}} in table order."""
+    out: dict = {}
+    for key in KEYS:
+        out.setdefault(key.section, {})[key.name] = key
+    return out

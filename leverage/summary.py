@@ -1,0 +1,99 @@
+"""The plain-text best-solution summary, made from a result record (best.json).
+
+Everything printed comes from the record, so the summary and the JSON cannot
+disagree (a test re-derives the summary's numbers from the JSON).
+"""
+import math
+
+from . import CAUTION
+from .result import as_float
+
+
+def _fmt(value, digits=3):
+    v = as_float(value) if not isinstance(value, str) else float(value)
+    if math.isnan(v):
+        return "n/a"
+    if math.isinf(v):
+        return "unbounded" if v > 0 else "-inf"
+    return f"{v:.{digits}f}"
+
+
+def _d(record, name, digits=3):
+    item = record["derived"][name]
+    unit = f" {item['unit']}" if item["unit"] else ""
+    return f"{_fmt(item['value'], digits)}{unit}"
+
+
+def timeline(record) -> list[str]:
+    ev = {e["event"]: e for e in record["events"]}
+    der = record["derived"]
+    t0 = as_float(ev["launch"]["epoch_tdb_s"])
+
+    def day(e):
+        return (as_float(e["epoch_tdb_s"]) - t0) / 86400.0
+
+    rows = [("launch", ev["launch"], f"C3 {_d(record, 'c3')}, v-inf {_d(record, 'launch_vinf')}"),
+            ("DSM", ev["dsm"], f"{_d(record, 'dsm', 4)}"),
+            ("return flyby", ev["flyby"],
+             f"v-inf {_d(record, 'flyby_vinf_in')}, altitude {_d(record, 'flyby_altitude', 0)}")]
+    if "arrival" in ev:
+        rows.append(("arrival", ev["arrival"],
+                     f"v-inf {_d(record, 'arrival_vinf')}" if "arrival_vinf" in der else ""))
+    lines = [f"  {'event':<14}{'date (UTC)':<22}{'day':>8}  key numbers"]
+    for label, e, text in rows:
+        lines.append(f"  {label:<14}{e['utc'][:19]:<22}{day(e):>8.1f}  {text}")
+    return lines
+
+
+def render(record) -> str:
+    """The summary text of a result record."""
+    p = record["problem"]
+    s = record["search"]
+    lines = [
+        f"leverage summary: {p['name']} ({record['status']})",
+        f"  CAUTION: {CAUTION}",
+        "",
+        f"problem   {p['file']}  (sha256 {p['sha256'][:12]})",
+    ]
+    if p.get("description"):
+        lines.append(f"          {p['description']}")
+    lines += [
+        f"goal      {p['goal']}, flyby body {p['body']}",
+        f"search    {s['algorithm']}, {s['islands']} islands x {s['population']}, "
+        f"{s['generations']} generations, seed {s['seed']}, polish {s['polish']}",
+    ]
+    run = record.get("run", {})
+    if run:
+        lines.append(f"effort    {run.get('evaluations', 0):,} evaluations in "
+                     f"{_fmt(run.get('wall_time_s', 0.0), 1)} s")
+    feasible = "yes" if record["feasible"] else "NO (see margins)"
+    lines += [f"objective {_fmt(record['objective'][0], 6)}    feasible: {feasible}", "",
+              "timeline"] + timeline(record)
+    lines += [
+        "",
+        "launch    " + ", ".join([f"C3 {_d(record, 'c3')}", f"DLA {_d(record, 'dla', 2)}",
+                                  f"RLA {_d(record, 'rla', 2)}"]),
+        "DSM       " + f"{_d(record, 'dsm', 4)}  (radial {_d(record, 'dsm_radial', 4)}, "
+        f"along-track {_d(record, 'dsm_along_track', 4)}, normal {_d(record, 'dsm_normal', 4)})",
+        "          " + f"Lambert arc: {int(as_float(record['derived']['lambert_revolutions']['value']))}"
+        f" revolutions, "
+        + ("low-path" if as_float(record['derived']['lambert_low_path']['value']) else "high-path")
+        + " root",
+        "flyby     " + f"altitude {_d(record, 'flyby_altitude', 1)}, turn {_d(record, 'turn_angle', 2)}"
+        f" (largest allowed {_d(record, 'max_turn_angle', 2)}), B-plane angle "
+        f"{_d(record, 'bplane_angle', 2)}",
+        "v-inf     " + f"launch {_d(record, 'launch_vinf')}, flyby in {_d(record, 'flyby_vinf_in')},"
+        f" out {_d(record, 'flyby_vinf_out')}, gain {_d(record, 'vinf_gain')}",
+        "leverage  " + f"{_d(record, 'leverage_ratio', 2)}",
+        "outgoing  " + f"a {_d(record, 'outgoing_sma', 4)}, e {_d(record, 'outgoing_eccentricity', 4)}, "
+        f"i {_d(record, 'outgoing_inclination', 3)}, perihelion {_d(record, 'outgoing_perihelion', 4)}, "
+        f"aphelion {_d(record, 'outgoing_aphelion', 4)}",
+        "",
+        "limit margins (>= 0 holds)",
+    ]
+    for name, m in record["margins"].items():
+        unit = f" {m['unit']}" if m["unit"] else ""
+        state = "ok" if m["holds"] else "VIOLATED"
+        lines.append(f"  {name:<26}{_fmt(m['margin'], 4):>14}{unit:<12} {state}")
+    lines += ["", f"CAUTION: {CAUTION}", ""]
+    return "\n".join(lines)

@@ -1,0 +1,52 @@
+"""The pygmo user-defined problem: a thin, picklable shell around the compiled fitness.
+
+pygmo's pattern (inherit nothing; ``fitness``, ``get_bounds``, ``get_nobj``,
+``batch_fitness``). Worker processes unpickle it by importing this module, so it
+holds only numpy arrays and module-level jitted functions.
+"""
+import numpy as np
+import pygmo as pg
+
+from .core import trajectory
+
+
+class LeveragingUDP:
+    """pygmo problem over the decision vector described in ``core.layout``."""
+
+    def __init__(self, params, lower, upper, n_obj=1, name="leverage"):
+        self.params = np.ascontiguousarray(params, dtype=float)
+        self.lower = np.asarray(lower, dtype=float)
+        self.upper = np.asarray(upper, dtype=float)
+        self.n_obj = int(n_obj)
+        self.name = name
+
+    @classmethod
+    def from_compiled(cls, compiled, name="leverage"):
+        return cls(compiled.params, compiled.lower, compiled.upper, compiled.n_obj, name)
+
+    def fitness(self, x):
+        return trajectory.fitness(np.asarray(x, dtype=float), self.params)
+
+    def batch_fitness(self, dvs):
+        xs = np.asarray(dvs, dtype=float).reshape(-1, self.lower.shape[0])
+        return trajectory.batch_fitness(xs, self.params).ravel()
+
+    def has_batch_fitness(self):
+        return True
+
+    def get_bounds(self):
+        return (self.lower, self.upper)
+
+    def get_nobj(self):
+        return self.n_obj
+
+    def gradient(self, x):
+        # Finite differences (pygmo's estimate_gradient_h) for the SLSQP polish.
+        return pg.estimate_gradient_h(lambda v: self.fitness(v), x)
+
+    def get_name(self):
+        return f"leverage: {self.name}"
+
+    def details(self, x):
+        """All derived quantities of one point (slots in core.layout)."""
+        return trajectory.details(np.asarray(x, dtype=float), self.params)

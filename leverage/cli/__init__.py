@@ -1,16 +1,25 @@
 """The ``leverage`` command: ``main(argv)`` builds the subcommands and returns an exit code.
 
 Each subcommand lives in its own module here with ``add_parser(subparsers)`` and
-``main(args) -> int``. Bad input is reported as one line on stderr (exit 2).
+``main(args) -> int``; a new module with those two functions is a new subcommand.
+Bad input is reported as one line on stderr (exit 2).
 """
 import argparse
 import importlib
+import pkgutil
 import sys
 
 from .. import __version__
 from ..errors import ProblemError
 
-COMMANDS = ["run", "check", "show"]
+
+
+def command_modules():
+    """The subcommand modules of this package, in name order."""
+    for info in sorted(pkgutil.iter_modules(__path__), key=lambda m: m.name):
+        module = importlib.import_module(f"{__name__}.{info.name}")
+        if hasattr(module, "add_parser") and hasattr(module, "main"):
+            yield module
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -22,8 +31,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"leverage {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
-    for name in COMMANDS:
-        module = importlib.import_module(f"{__name__}.{name.replace('-', '_')}")
+    for module in command_modules():
         cmd = module.add_parser(sub)
         cmd.set_defaults(handler=module.main)
     return parser

@@ -4,4 +4,33 @@ Everything here works on plain floats and numpy arrays in km, s, km/s and radian
 is compiled with ``numba.njit(cache=True)``, and imports nothing from the rest of
 the ``leverage`` package (the layer above converts units and talks to people).
 Frame, unless a docstring says otherwise: heliocentric ecliptic J2000.
+
+The numba cache goes to a folder named by a digest of these source files and of
+the numba and poliastro versions. numba only re-checks the file of the function it
+loads, not the files of the functions it calls; keying the folder on every kernel
+source means an edit anywhere in core (or an upgrade) never loads stale machine
+code. Set NUMBA_CACHE_DIR to choose the folder yourself.
 """
+import hashlib
+import os
+from pathlib import Path
+
+
+def _cache_dir() -> str:
+    import numba
+    import poliastro
+
+    here = Path(__file__).resolve().parent
+    digest = hashlib.sha256()
+    for path in sorted(here.glob("*.py")):
+        digest.update(path.name.encode())
+        digest.update(path.read_bytes())
+    digest.update(f"numba {numba.__version__} poliastro {poliastro.__version__}".encode())
+    root = Path(os.environ.get("XDG_CACHE_HOME", Path.home() / ".cache"))
+    return str(root / "leverage" / "numba" / digest.hexdigest()[:16])
+
+
+if not os.environ.get("NUMBA_CACHE_DIR"):
+    import numba
+
+    numba.config.CACHE_DIR = _cache_dir()

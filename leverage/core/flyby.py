@@ -81,3 +81,72 @@ def tisserand(a_body, a, ecc, inc):
     """Tisserand's parameter of an orbit (a km, e, i rad) w.r.t. a body on a
     circular orbit of radius a_body (km): a_body/a + 2 cos i sqrt(a/a_body (1-e^2))."""
     return a_body / a + 2.0 * np.cos(inc) * np.sqrt(a / a_body * (1.0 - ecc * ecc))
+
+
+# --- powered flyby -----------------------------------------------------------
+# Two hyperbolas sharing one periapsis (radius rp): the incoming one with excess
+# speed v_in, the outgoing one with v_out, joined by a tangential burn at
+# periapsis. Each half turns the velocity by asin(1/e), e = 1 + rp v^2/mu, so
+#   turn = asin(1/e_in) + asin(1/e_out)
+# and the burn is the difference of the periapsis speeds (vis-viva),
+#   dv = | sqrt(v_out^2 + 2 mu/rp) - sqrt(v_in^2 + 2 mu/rp) |.
+# This is the powered swing-by model of Vasile, M. and De Pascale, P. (2006),
+# "Preliminary design of multiple gravity-assist trajectories", J. Spacecraft and
+# Rockets 43(4) (recalled from memory); with v_in = v_out it is the unpowered turn.
+_RP_ITER = 60
+_RP_RTOL = 1e-12
+
+
+@njit(cache=True)
+def powered_turn(mu, vinf_in, vinf_out, rp):
+    """Turn (rad) of a powered flyby with periapsis rp (km): asin(1/e_in) + asin(1/e_out)."""
+    return (np.arcsin(1.0 / hyperbola_ecc(mu, vinf_in, rp))
+            + np.arcsin(1.0 / hyperbola_ecc(mu, vinf_out, rp)))
+
+
+@njit(cache=True)
+def _half_turn_slope(mu, vinf, rp):
+    """d/drp of asin(1/e) with e = 1 + rp v^2/mu (rad/km, negative)."""
+    e = hyperbola_ecc(mu, vinf, rp)
+    return -(vinf * vinf / mu) / (e * e * np.sqrt(1.0 - 1.0 / (e * e)))
+
+
+@njit(cache=True)
+def powered_periapsis(mu, vinf_in, vinf_out, turn):
+    """Periapsis radius (km) at which a powered flyby turns by ``turn`` (rad).
+
+    Solves powered_turn(rp) = turn by Newton's method in log(rp), kept inside a
+    bracket that shrinks with every step (bisection when a Newton step leaves it);
+    the turn falls monotonically from pi at rp -> 0 to 0 at rp -> inf. Returns inf
+    for a zero turn and 0 for a turn of pi or more.
+    """
+    if turn <= 0.0:
+        return np.inf
+    if turn >= np.pi:
+        return 0.0
+    # Start from the unpowered relation at the mean speed.
+    v_mean = 0.5 * (vinf_in + vinf_out)
+    rp = periapsis_for_turn(mu, v_mean, turn)
+    lo, hi = 0.0, np.inf
+    for _ in range(_RP_ITER):
+        g = powered_turn(mu, vinf_in, vinf_out, rp) - turn
+        if g > 0.0:
+            lo = rp  # too much turn: periapsis must rise
+        else:
+            hi = rp
+        slope = rp * (_half_turn_slope(mu, vinf_in, rp) + _half_turn_slope(mu, vinf_out, rp))
+        step = -g / slope if slope != 0.0 else 0.0
+        new = rp * np.exp(step)
+        if not (new > lo and new < hi):
+            new = 0.5 * (lo + hi) if np.isfinite(hi) else 2.0 * rp
+        if abs(new - rp) <= _RP_RTOL * rp:
+            return new
+        rp = new
+    return rp
+
+
+@njit(cache=True)
+def periapsis_burn(mu, vinf_in, vinf_out, rp):
+    """Size (km/s) of the periapsis burn joining the two hyperbolas (vis-viva)."""
+    k = 2.0 * mu / rp
+    return abs(np.sqrt(vinf_out * vinf_out + k) - np.sqrt(vinf_in * vinf_in + k))

@@ -26,6 +26,8 @@ MARGIN_SCALES = np.array([
     1.0,                        # Lambert solved (0 / -1)
     0.1,                        # v-infinity match of an unpowered flyby, km/s
     0.1,                        # arrival v-infinity, km/s
+    1.0,                        # launch C3 inside the launch-vehicle table, km^2/s^2
+    1.0,                        # arrival inside the arrival window, days
 ])
 
 

@@ -5,19 +5,28 @@ body state at launch -> launch state (body velocity + v_inf in the direction giv
 by two angles in the body's velocity/orbit-normal frame) -> two-body propagation
 to the DSM epoch -> Lambert arc from the DSM point to the body at the return
 epoch (every allowed revolution count and root is tried; the branch with the best
-first objective is kept) -> DSM = velocity change -> incoming v_inf -> unpowered
-flyby turned by the periapsis and B-plane angle -> outgoing v_inf and heliocentric
-orbit. Limits become penalties (see ``penalties``); margins are kept in ``q``.
+first objective is kept) -> DSM = velocity change -> incoming v_inf -> flyby ->
+outgoing v_inf and heliocentric orbit. Without a target the flyby is unpowered and
+turned by the periapsis and B-plane angle in x. With a target, a Lambert leg (M = 0)
+from the flyby to the target fixes the outgoing v_inf; the flyby then needs the
+periapsis that gives the turn between incoming and outgoing v_inf (powered-flyby
+relation, ``flyby.powered_periapsis``) and either a periapsis burn (powered) or a
+|v_inf| match within a tolerance (unpowered). With a launch-vehicle table, the
+delivered mass is the injected mass at the launch C3 times the rocket-equation
+factor of every burn. Limits become penalties (see ``penalties``); margins are kept
+in ``q``.
 """
 import numpy as np
 from numba import njit, prange
 
 from . import layout as L
 from .ephemeris import DAY_S, EPHEMERIS_SIZE, body_state
-from .flyby import max_turn, outgoing_vinf, turn_angle
+from .flyby import (bplane_angle_of, max_turn, outgoing_vinf, periapsis_burn, powered_periapsis,
+                    powered_turn, turn_angle)
 from .frames import direction_from_angles, launch_asymptote, rtn_components, velocity_frame
 from .kepler import elements_from_state, propagate
 from .lambert import branch_range, branch_revs, lambert
+from .mass import injected_mass, mass_ratio
 from .penalties import total_penalty
 
 FAIL_OBJECTIVE = 1.0e3  # objective value of a point whose legs could not be solved
@@ -38,11 +47,26 @@ def _norm(v):
 
 
 @njit(cache=True)
+def objective_value(code, q):
+    """One objective of a front (lower is better), by its OBJ_* code in ``layout``."""
+    if code == L.OBJ_TOTAL_DV:
+        return q[L.Q_TOTAL_DV]
+    if code == L.OBJ_GAIN:
+        return -q[L.Q_GAIN]
+    if code == L.OBJ_INCLINATION:
+        return -q[L.Q_OUT_INC] / _DEG
+    if code == L.OBJ_ARRIVAL_VINF:
+        return q[L.Q_VINF_ARRIVAL]
+    return -1.0e-3 * q[L.Q_M_DELIVERED]  # OBJ_MASS, tonnes
+
+
+@njit(cache=True)
 def objectives(q, p, f):
     """Fill f with the objective(s) of the evaluated point ``q`` (lower is better).
 
-    One objective: W_DSM*DSM - W_GAIN*gain - W_INC*inclination_deg + penalty.
-    Several: (DSM, -gain[, -inclination_deg]), each plus the same penalty, which
+    One objective: W_DSM*total_dv - W_GAIN*gain - W_INC*inclination_deg
+    [+ W_ARRIVAL*arrival_vinf] [- W_MASS*delivered_mass] + penalty. Several: the
+    quantities named by the P_OBJ_CODES slots, each plus the same penalty, which
     keeps infeasible points off a front.
     """
     if q[L.Q_OK] != 1.0:
@@ -50,15 +74,18 @@ def objectives(q, p, f):
             f[k] = FAIL_OBJECTIVE
         return
     pen = q[L.Q_PENALTY]
-    inc_deg = q[L.Q_OUT_INC] / _DEG
     if f.shape[0] == 1:
-        f[0] = (p[L.P_W_DSM] * q[L.Q_TOTAL_DV] - p[L.P_W_GAIN] * q[L.Q_GAIN]
-                - p[L.P_W_INC] * inc_deg + pen)
+        value = (p[L.P_W_DSM] * q[L.Q_TOTAL_DV] - p[L.P_W_GAIN] * q[L.Q_GAIN]
+                 - p[L.P_W_INC] * q[L.Q_OUT_INC] / _DEG)
+        # Weights of quantities that may be absent (nan) are only applied when set.
+        if p[L.P_W_ARRIVAL] > 0.0:
+            value += p[L.P_W_ARRIVAL] * q[L.Q_VINF_ARRIVAL]
+        if p[L.P_W_MASS] > 0.0:
+            value -= p[L.P_W_MASS] * q[L.Q_M_DELIVERED]
+        f[0] = value + pen
         return
-    f[0] = q[L.Q_TOTAL_DV] + pen
-    f[1] = -q[L.Q_GAIN] + pen
-    if f.shape[0] > 2:
-        f[2] = -inc_deg + pen
+    for k in range(f.shape[0]):
+        f[k] = objective_value(int(p[L.P_OBJ_CODES + k]), q) + pen
 
 
 @njit(cache=True)
@@ -104,67 +131,154 @@ def _no_target_requirements(p, q):
 
 
 @njit(cache=True)
-def _return_flyby(x, p, q, branch, r1, v1m):
-    """Lambert arc on ``branch`` to the body, DSM, and the unpowered flyby."""
+def _target_leg(x, p, q):
+    """Lambert leg (M = 0, prograde) from the body at the flyby to the target.
+
+    Fills the arrival quantities of q; returns (departure velocity km/s, ok).
+    """
     eph = p[L.P_BODY_EPH:L.P_BODY_EPH + EPHEMERIS_SIZE]
-    mu_sun = p[L.P_MU_SUN]
-    mu_b = p[L.P_BODY_MU]
+    teph = p[L.P_TARGET_EPH:L.P_TARGET_EPH + EPHEMERIS_SIZE]
+    t2 = q[L.Q_T_FLYBY]
+    t3 = t2 + x[L.X_TARGET_LEG_DAYS] * DAY_S
+    r2, _ = body_state(eph, t2)
+    r3, v3_body = body_state(teph, t3)
+    v_dep, v_arr, ok = lambert(p[L.P_MU_SUN], r2, r3, t3 - t2, 0, True, True)
+    if not ok:
+        return v_dep, False
+    vinf_arr = _norm(v_arr - v3_body)
+    q[L.Q_T_ARRIVAL] = t3
+    q[L.Q_VINF_ARRIVAL] = vinf_arr
+    q[L.Q_ARRIVAL_DV] = vinf_arr if p[L.P_ARRIVAL_BURN] == 1.0 else 0.0
+    q[L.Q_MARGIN_ARRIVAL_VINF_KMS] = p[L.P_ARRIVAL_VINF_MAX_KMS] - vinf_arr
+    q[L.Q_MARGIN_ARRIVAL_DAYS] = min(t3 - p[L.P_ARRIVAL_OPEN_S],
+                                     p[L.P_ARRIVAL_CLOSE_S] - t3) / DAY_S
+    _put(q, L.Q_R_ARRIVAL, r3)
+    _put(q, L.Q_V_ARRIVAL, v_arr)
+    _put(q, L.Q_V_TARGET_ARRIVAL, v3_body)
+    return v_dep, True
+
+
+@njit(cache=True)
+def _no_target(q):
+    q[L.Q_VINF_ARRIVAL] = np.nan
+    q[L.Q_ARRIVAL_DV] = 0.0
+    q[L.Q_MARGIN_ARRIVAL_VINF_KMS] = np.inf
+    q[L.Q_MARGIN_ARRIVAL_DAYS] = np.inf
+    for k in range(3):
+        q[L.Q_R_ARRIVAL + k] = np.nan
+        q[L.Q_V_ARRIVAL + k] = np.nan
+        q[L.Q_V_TARGET_ARRIVAL + k] = np.nan
+
+
+@njit(cache=True)
+def _loop_arc(p, q, branch, r1, v1m):
+    """Lambert arc on ``branch`` from the DSM point to the body, and the DSM.
+
+    Fills the DSM and incoming quantities; returns (incoming v_inf, body position,
+    body velocity at the flyby, ok).
+    """
+    eph = p[L.P_BODY_EPH:L.P_BODY_EPH + EPHEMERIS_SIZE]
     t1 = q[L.Q_T_DSM]
     t2 = q[L.Q_T_FLYBY]
     r2, vb2 = body_state(eph, t2)
     revs, low = branch_revs(branch)
-    v1p, v2, ok = lambert(mu_sun, r1, r2, t2 - t1, revs, True, low)
+    v1p, v2, ok = lambert(p[L.P_MU_SUN], r1, r2, t2 - t1, revs, True, low)
     if not ok:
-        return False
+        return v2, r2, vb2, False
     dsm = v1p - v1m
     dsm_r, dsm_t, dsm_n = rtn_components(r1, v1m, dsm)
     vinf_in = v2 - vb2
     speed_in = _norm(vinf_in)
-    rp_min = p[L.P_BODY_RADIUS_KM] + p[L.P_MIN_ALT_KM]
-    alt = x[L.X_FLYBY_ALT_KM]
-    rp = p[L.P_BODY_RADIUS_KM] + alt
-    turn = turn_angle(mu_b, speed_in, rp)
-    turn_lim = max_turn(mu_b, speed_in, rp_min)
-    theta = x[L.X_BPLANE_DEG] * _DEG
-    vinf_out = outgoing_vinf(vinf_in, turn, theta, _ECLIPTIC_POLE)
-    v_out = vb2 + vinf_out
-    a, ecc, inc, _, _, _ = elements_from_state(mu_sun, r2, v_out)
     dsm_mag = _norm(dsm)
     q[L.Q_DSM] = dsm_mag
     q[L.Q_DSM_R] = dsm_r
     q[L.Q_DSM_T] = dsm_t
     q[L.Q_DSM_N] = dsm_n
     q[L.Q_VINF_IN] = speed_in
-    q[L.Q_VINF_OUT] = speed_in
     q[L.Q_GAIN] = speed_in - q[L.Q_VINF_LAUNCH]
     q[L.Q_LEVERAGE] = q[L.Q_GAIN] / dsm_mag if dsm_mag > 0.0 else np.nan
+    q[L.Q_REVS] = revs
+    q[L.Q_LOW_PATH] = 1.0 if low else 0.0
+    q[L.Q_MARGIN_DSM_KMS] = p[L.P_DSM_BUDGET_KMS] - dsm_mag
+    q[L.Q_MARGIN_LAMBERT] = 0.0
+    _put(q, L.Q_R_FLYBY, r2)
+    _put(q, L.Q_V_DSM_AFTER, v1p)
+    _put(q, L.Q_V_FLYBY_IN, v2)
+    _put(q, L.Q_V_BODY_FLYBY, vb2)
+    return vinf_in, r2, vb2, True
+
+
+@njit(cache=True)
+def _free_flyby(x, p, q, vinf_in):
+    """Unpowered flyby turned by the periapsis altitude and B-plane angle in x."""
+    speed_in = q[L.Q_VINF_IN]
+    rp_min = p[L.P_BODY_RADIUS_KM] + p[L.P_MIN_ALT_KM]
+    alt = x[L.X_FLYBY_ALT_KM]
+    rp = p[L.P_BODY_RADIUS_KM] + alt
+    turn = turn_angle(p[L.P_BODY_MU], speed_in, rp)
+    theta = x[L.X_BPLANE_DEG] * _DEG
+    q[L.Q_VINF_OUT] = speed_in
     q[L.Q_TURN] = turn
-    q[L.Q_TURN_MAX] = turn_lim
+    q[L.Q_TURN_MAX] = max_turn(p[L.P_BODY_MU], speed_in, rp_min)
     q[L.Q_ALT] = alt
     q[L.Q_RP] = rp
     q[L.Q_BPLANE] = theta % (2.0 * np.pi)
+    q[L.Q_FLYBY_DV] = 0.0
+    q[L.Q_MARGIN_VINF_MATCH_KMS] = np.inf
+    return outgoing_vinf(vinf_in, turn, theta, _ECLIPTIC_POLE)
+
+
+@njit(cache=True)
+def _target_flyby(p, q, vinf_in, vinf_out):
+    """Flyby joining a given incoming and outgoing v_inf (target problems).
+
+    The turn between them fixes the periapsis (powered-flyby relation); a speed
+    mismatch is a periapsis burn (powered) or a limit (unpowered).
+    """
+    mu_b = p[L.P_BODY_MU]
+    speed_in = q[L.Q_VINF_IN]
+    speed_out = _norm(vinf_out)
+    cos_turn = (vinf_in @ vinf_out) / (speed_in * speed_out)
+    turn = np.arccos(min(1.0, max(-1.0, cos_turn)))
+    rp = powered_periapsis(mu_b, speed_in, speed_out, turn)
+    rp_min = p[L.P_BODY_RADIUS_KM] + p[L.P_MIN_ALT_KM]
+    powered = p[L.P_POWERED_FLYBY] == 1.0
+    q[L.Q_VINF_OUT] = speed_out
+    q[L.Q_TURN] = turn
+    q[L.Q_TURN_MAX] = powered_turn(mu_b, speed_in, speed_out, rp_min)
+    q[L.Q_RP] = rp
+    q[L.Q_ALT] = rp - p[L.P_BODY_RADIUS_KM]
+    q[L.Q_BPLANE] = bplane_angle_of(vinf_in, vinf_out, _ECLIPTIC_POLE)
+    q[L.Q_FLYBY_DV] = periapsis_burn(mu_b, speed_in, speed_out, max(rp, rp_min)) if powered else 0.0
+    q[L.Q_MARGIN_VINF_MATCH_KMS] = (np.inf if powered else
+                                    p[L.P_VINF_MATCH_TOL_KMS] - abs(speed_out - speed_in))
+
+
+@njit(cache=True)
+def _finish(p, q, r2, v_out):
+    """Outgoing orbit, burn totals, delivered mass and the remaining margins."""
+    a, ecc, inc, _, _, _ = elements_from_state(p[L.P_MU_SUN], r2, v_out)
     q[L.Q_OUT_A] = a
     q[L.Q_OUT_E] = ecc
     q[L.Q_OUT_INC] = inc
     q[L.Q_OUT_PERI] = a * (1.0 - ecc) if ecc < 1.0 else np.abs(a) * (ecc - 1.0)
     q[L.Q_OUT_APO] = a * (1.0 + ecc) if ecc < 1.0 else np.inf
-    q[L.Q_REVS] = revs
-    q[L.Q_LOW_PATH] = 1.0 if low else 0.0
-    q[L.Q_FLYBY_DV] = 0.0
-    q[L.Q_TOTAL_DV] = dsm_mag
-    q[L.Q_MARGIN_ALT_KM] = alt - p[L.P_MIN_ALT_KM]
-    q[L.Q_MARGIN_TURN_RAD] = turn_lim - turn
-    q[L.Q_MARGIN_DSM_KMS] = p[L.P_DSM_BUDGET_KMS] - dsm_mag
-    q[L.Q_MARGIN_LAMBERT] = 0.0
-    q[L.Q_MARGIN_VINF_MATCH_KMS] = np.inf
-    q[L.Q_MARGIN_ARRIVAL_VINF_KMS] = np.inf
+    q[L.Q_TOTAL_DV] = q[L.Q_DSM] + q[L.Q_FLYBY_DV] + q[L.Q_ARRIVAL_DV]
+    rows = int(p[L.P_LV_ROWS])
+    if rows > 0:
+        m0, margin = injected_mass(q[L.Q_C3], p[L.P_LV_C3:L.P_LV_C3 + rows],
+                                   p[L.P_LV_MASS:L.P_LV_MASS + rows], rows)
+        q[L.Q_M_INJECTED] = m0
+        q[L.Q_M_DELIVERED] = m0 * mass_ratio(q[L.Q_TOTAL_DV], p[L.P_ISP_S])
+        q[L.Q_MARGIN_LV_C3] = margin
+    else:
+        q[L.Q_M_INJECTED] = np.nan
+        q[L.Q_M_DELIVERED] = np.nan
+        q[L.Q_MARGIN_LV_C3] = np.inf
+    q[L.Q_MARGIN_ALT_KM] = q[L.Q_ALT] - p[L.P_MIN_ALT_KM]
+    q[L.Q_MARGIN_TURN_RAD] = q[L.Q_TURN_MAX] - q[L.Q_TURN]
     _no_target_requirements(p, q)
-    _put(q, L.Q_R_FLYBY, r2)
-    _put(q, L.Q_V_DSM_AFTER, v1p)
-    _put(q, L.Q_V_FLYBY_IN, v2)
     _put(q, L.Q_V_FLYBY_OUT, v_out)
-    _put(q, L.Q_V_BODY_FLYBY, vb2)
-    return True
 
 
 @njit(cache=True)
@@ -186,6 +300,12 @@ def evaluate(x, p, q, f):
     for k in range(q.shape[0]):
         q[k] = 0.0
     r1, v1m, ok = _launch(x, p, q)
+    has_target = p[L.P_HAS_TARGET] == 1.0
+    v_dep = np.zeros(3)
+    if ok and has_target:
+        v_dep, ok = _target_leg(x, p, q)
+    elif ok:
+        _no_target(q)
     if not ok:
         _mark_failed(q)
         objectives(q, p, f)
@@ -195,8 +315,14 @@ def evaluate(x, p, q, f):
     f_trial = np.empty_like(f)
     best = np.inf
     for branch in range(first, last + 1):
-        if not _return_flyby(x, p, trial, branch, r1, v1m):
+        vinf_in, r2, vb2, solved = _loop_arc(p, trial, branch, r1, v1m)
+        if not solved:
             continue
+        if has_target:
+            _target_flyby(p, trial, vinf_in, v_dep - vb2)
+            _finish(p, trial, r2, v_dep)
+        else:
+            _finish(p, trial, r2, vb2 + _free_flyby(x, p, trial, vinf_in))
         trial[L.Q_OK] = 1.0
         trial[L.Q_PENALTY] = total_penalty(trial, p[L.P_PENALTY_WEIGHT])
         objectives(trial, p, f_trial)

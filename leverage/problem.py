@@ -101,10 +101,13 @@ def _date(source, key, value):
     else:
         raise ProblemError(source, key.path, value, "expected a date like 2031-01-01")
     try:
-        _dt.datetime.fromisoformat(text.replace("Z", ""))
+        parsed = _dt.datetime.fromisoformat(text.replace("Z", "+00:00"))
     except ValueError:
         raise ProblemError(source, key.path, value,
                            "expected a date like 2031-01-01 or 2031-01-01T12:00:00") from None
+    if parsed.tzinfo is not None:
+        # astropy takes no UTC offset: hand it the same instant as naive UTC.
+        text = parsed.astimezone(_dt.timezone.utc).replace(tzinfo=None).isoformat()
     return text
 
 
@@ -161,6 +164,9 @@ def validate(source: str, table: dict, schema: dict | None = None) -> dict:
     """Values of every known key, defaults filled; refuse unknown or missing keys."""
     schema = schema or keys_by_section()
     for section, content in table.items():
+        if section not in schema and not isinstance(content, dict):
+            raise ProblemError(source, section, content,
+                               f"key outside any section; sections: {', '.join(schema)}")
         if section not in schema:
             raise ProblemError(source, f"[{section}]", NO_VALUE,
                                f"unknown section; known: {', '.join(schema)}")

@@ -125,7 +125,9 @@ def design_record(compiled, udp, x) -> dict:
                             "lower": [float(v) for v in compiled.lower],
                             "upper": [float(v) for v in compiled.upper]},
         "objective": [clean(v) for v in f],
-        "feasible": bool(q[L.Q_OK] == 1.0 and q[L.Q_PENALTY] == 0.0),
+        # From the margins, not the penalty: a zero penalty_weight must not hide a violation.
+        "feasible": bool(q[L.Q_OK] == 1.0
+                         and all(q[slot] >= 0.0 for _, slot, _, _, _ in MARGINS)),
         "derived": derived,
         "margins": margins,
         "events": events,

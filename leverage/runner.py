@@ -6,7 +6,6 @@ and ``summary.txt`` (atomically). Ctrl-C or SIGTERM stops the search; the best
 design found so far is still written, marked "interrupted".
 """
 import csv
-import shutil
 import signal
 import sys
 import time
@@ -28,6 +27,11 @@ LOG_COLUMNS = [f.name for f in fields(IslandRecord)]
 def settings_from(problem, overrides: dict | None = None) -> SearchSettings:
     values = dict(problem.values["search"])
     values.update({k: v for k, v in (overrides or {}).items() if v is not None})
+    # Islands evolve whole migration intervals: never more per interval than asked in
+    # all, and the total rounded up to whole intervals so the record says what ran.
+    per = min(values["generations_per_migration"], values["generations"])
+    values["generations_per_migration"] = per
+    values["generations"] = -(-values["generations"] // per) * per
     return SearchSettings(**{f.name: values[f.name] for f in fields(SearchSettings)})
 
 
@@ -76,7 +80,8 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
     """Run the search and write the run folder; returns the process exit code."""
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
-    shutil.copyfile(problem.source, out_dir / "problem.toml")
+    # The text that was validated and hashed, not a re-read of a file that may change.
+    write_atomic(out_dir / "problem.toml", problem.text)
     compiled = problem.compile()
     udp = LeveragingUDP.from_compiled(compiled, problem.name)
     progress = progress or Progress(settings.evolutions)

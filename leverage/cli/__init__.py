@@ -10,8 +10,14 @@ import pkgutil
 import sys
 
 from .. import __version__
-from ..errors import ProblemError
+from ..errors import NO_VALUE, ProblemError
 
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that reports a bad command line as one line (exit 2), like a bad file."""
+
+    def error(self, message):
+        raise ProblemError("command line", "", NO_VALUE, f"{message} (leverage -h for help)")
 
 
 def command_modules():
@@ -23,7 +29,7 @@ def command_modules():
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="leverage",
         description="Search v-infinity leveraging trajectories (launch, one deep-space "
                     "maneuver, return flyby) in a patched-conic model. Preliminary designs "
@@ -39,8 +45,8 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv=None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
     try:
+        args = parser.parse_args(argv)
         return int(args.handler(args) or 0)
     except ProblemError as exc:
         print(f"leverage: {exc}", file=sys.stderr)

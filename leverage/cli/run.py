@@ -30,9 +30,9 @@ def main(args) -> int:
     problem = load_problem(args.problem)
     settings = settings_from(problem, search_overrides(args))
     out = Path(args.out) if args.out else default_out(problem.name)
+    if out.exists() and not out.is_dir():
+        raise ProblemError("command line", "--out", str(out), "is a file, not a folder")
     if out.exists() and any(out.iterdir()) and not args.force:
         raise ProblemError("command line", "--out", str(out),
                            "folder exists and is not empty; pick another or add --force")
-    if out.exists() and not out.is_dir():
-        raise ProblemError("command line", "--out", str(out), "is a file, not a folder")
     return run(problem, settings, out, Progress(settings.evolutions, enabled=not args.quiet))

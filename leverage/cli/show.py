@@ -24,5 +24,12 @@ def load_record(folder) -> dict:
 
 def main(args) -> int:
     for folder in args.results:
-        print(render(load_record(folder)))
+        record = load_record(folder)
+        try:
+            text = render(record)
+        except (KeyError, TypeError, ValueError, AttributeError) as exc:
+            raise ProblemError(str(Path(folder) / "best.json"), "", NO_VALUE,
+                               f"not a leverage result record ({type(exc).__name__}: {exc})"
+                               ) from None
+        print(text)
     return 0

@@ -1,0 +1,169 @@
+"""Sampled conic arcs of a design, made from its result record (best.json) alone.
+
+Each leg of a patched-conic design is a two-body (Sun-only) conic between events:
+
+* launch -> DSM: propagated from the launch state (position, velocity just after launch);
+* DSM -> flyby: propagated from the post-DSM state;
+* after the flyby: the outgoing orbit for one period (at most ``MAX_OUTGOING_DAYS``;
+  ``HYPERBOLIC_OUTGOING_DAYS`` if unbound), or, when the record has an ``arrival``
+  event, the flyby -> arrival leg instead.
+
+Every sample is propagated directly from the arc's initial state with
+``leverage.core.kepler.propagate`` (universal variables, Vallado 2013 Algorithm 8), so
+errors do not pile up along an arc. Frame: heliocentric ecliptic J2000; units km,
+km/s; epochs TDB seconds past J2000. Shared by the pictures, the verification and
+the export.
+"""
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import bodies
+from .core.ephemeris import body_state
+from .core.kepler import elements_from_state, propagate
+from .result import as_float
+
+FRAME = "heliocentric ecliptic J2000"
+DAY_S = 86400.0
+MAX_OUTGOING_DAYS = 4.0 * 365.25   # longest outgoing span drawn/exported
+HYPERBOLIC_OUTGOING_DAYS = 365.25  # span of an unbound outgoing orbit
+DEFAULT_SAMPLES = 400
+
+
+@dataclass
+class Arc:
+    """One conic leg: ``key`` (machine name), ``label`` (for people), samples.
+
+    t_tdb_s: (n,) TDB seconds past J2000; r_km: (n, 3); v_km_s: (n, 3), in ``FRAME``.
+    """
+
+    key: str
+    label: str
+    t_tdb_s: np.ndarray
+    r_km: np.ndarray
+    v_km_s: np.ndarray
+    frame: str = FRAME
+
+    @property
+    def start_s(self) -> float:
+        return float(self.t_tdb_s[0])
+
+    @property
+    def stop_s(self) -> float:
+        return float(self.t_tdb_s[-1])
+
+
+def _vec(values) -> np.ndarray:
+    return np.array([as_float(v) for v in values], dtype=float)
+
+
+def event_states(record) -> dict:
+    """Events of a record as floats: name -> dict(t, r, and the velocities it has).
+
+    Velocity keys kept as in best.json without the unit suffix: launch ``v``; dsm
+    ``v_before``/``v_after``; flyby ``v_in``/``v_out``/``v_body``; arrival ``v`` (the
+    first ``velocity*`` field it has, if any).
+    """
+    out = {}
+    for ev in record["events"]:
+        item = {"t": as_float(ev["epoch_tdb_s"]), "r": _vec(ev["position_km"]),
+                "utc": ev.get("utc", "")}
+        for key, value in ev.items():
+            if key.startswith("velocity") or key == "body_velocity_km_s":
+                short = key.replace("_km_s", "").replace("velocity", "v")
+                if short == "body_v":
+                    short = "v_body"
+                item[short] = _vec(value)
+        if ev["event"] == "arrival" and "v" not in item:
+            vel = [k for k in item if k.startswith("v_")]
+            if vel:
+                item["v"] = item[vel[0]]
+        out[ev["event"]] = item
+    return out
+
+
+def sample_times(t0: float, t1: float, n: int | None = None, step_s: float | None = None):
+    """Epochs from t0 to t1 inclusive: ``n`` evenly spaced, or every ``step_s`` plus t1."""
+    if step_s is not None:
+        if step_s <= 0:
+            raise ValueError("step must be positive")
+        times = np.arange(t0, t1, step_s)
+        if times.size == 0 or times[-1] < t1:
+            times = np.append(times, t1)
+        return times
+    return np.linspace(t0, t1, max(2, int(n or DEFAULT_SAMPLES)))
+
+
+def conic_states(mu: float, t0: float, r0, v0, times):
+    """Two-body states (km, km/s) at ``times`` from (r0, v0) at t0; each directly."""
+    r0 = np.asarray(r0, dtype=float)
+    v0 = np.asarray(v0, dtype=float)
+    rs = np.empty((len(times), 3))
+    vs = np.empty((len(times), 3))
+    for k, t in enumerate(times):
+        r, v, ok = propagate(mu, r0, v0, float(t - t0))
+        if not ok:
+            raise RuntimeError(f"two-body propagation failed {t - t0:.0f} s from the arc start")
+        rs[k] = r
+        vs[k] = v
+    return rs, vs
+
+
+def outgoing_span_s(r, v, mu=bodies.GM_SUN_KM3_S2) -> float:
+    """Span drawn after the flyby: one period of the outgoing orbit, capped."""
+    a, ecc, *_ = elements_from_state(mu, np.asarray(r, float), np.asarray(v, float))
+    if ecc < 1.0 and a > 0:
+        period = 2.0 * math.pi * math.sqrt(a ** 3 / mu)
+        return min(period, MAX_OUTGOING_DAYS * DAY_S)
+    return HYPERBOLIC_OUTGOING_DAYS * DAY_S
+
+
+def design_arcs(record, n: int | None = None, step_s: float | None = None,
+                outgoing_s: float | None = None, mu=bodies.GM_SUN_KM3_S2) -> list:
+    """The conic arcs of a record, in time order (see module docstring).
+
+    n: samples per arc (default ``DEFAULT_SAMPLES``) unless ``step_s`` is given;
+    outgoing_s: span after the flyby when there is no arrival event (default
+    ``outgoing_span_s``).
+    """
+    ev = event_states(record)
+    launch, dsm, flyby = ev["launch"], ev["dsm"], ev["flyby"]
+    legs = [("launch_dsm", "launch to DSM", launch["t"], launch["r"], launch["v"], dsm["t"]),
+            ("dsm_flyby", "DSM to flyby", dsm["t"], dsm["r"], dsm["v_after"], flyby["t"])]
+    if "arrival" in ev:
+        legs.append(("flyby_arrival", "flyby to arrival", flyby["t"], flyby["r"],
+                     flyby["v_out"], ev["arrival"]["t"]))
+    else:
+        span = outgoing_s if outgoing_s is not None else outgoing_span_s(flyby["r"],
+                                                                        flyby["v_out"], mu)
+        legs.append(("outgoing", "outgoing orbit", flyby["t"], flyby["r"], flyby["v_out"],
+                     flyby["t"] + span))
+    arcs = []
+    for key, label, t0, r0, v0, t1 in legs:
+        times = sample_times(t0, t1, n, step_s)
+        rs, vs = conic_states(mu, t0, r0, v0, times)
+        arcs.append(Arc(key, label, times, rs, vs))
+    return arcs
+
+
+def body_orbit(name: str, t_start: float, n: int = DEFAULT_SAMPLES,
+               span_s: float | None = None) -> Arc:
+    """One period (or ``span_s``) of a planet's mean-element orbit from t_start.
+
+    States from Standish's mean elements (``leverage.core.ephemeris``), the same
+    model the search uses.
+    """
+    body = bodies.planet(name)
+    eph = body.ephemeris_array()
+    if span_s is None:
+        a_km = body.mean_elements[0] * bodies.AU_KM
+        span_s = 2.0 * math.pi * math.sqrt(a_km ** 3 / bodies.GM_SUN_KM3_S2)
+    times = np.linspace(t_start, t_start + span_s, n)
+    rs = np.empty((n, 3))
+    vs = np.empty((n, 3))
+    for k, t in enumerate(times):
+        r, v = body_state(eph, float(t))
+        rs[k] = r
+        vs[k] = v
+    return Arc(f"body_{body.name.lower()}", f"{body.name} orbit", times, rs, vs)

@@ -1,0 +1,26 @@
+"""leverage verify RESULT_DIR: check the best design against an outside ephemeris and
+numerical integration; writes verification.txt and verification.json there."""
+from ..verify import render, verify_record, write
+from .show import load_record
+
+
+def add_parser(sub):
+    p = sub.add_parser("verify", help="check a result's design with outside ephemerides and "
+                                      "numerical integration",
+                       description="Re-evaluate the best design of RESULT_DIR with astropy's "
+                                   "built-in planetary ephemeris (and a JPL SPK kernel file if "
+                                   "given), integrate its arcs numerically, fly it with the Sun "
+                                   "and planets as point masses, and write verification.txt and "
+                                   "verification.json into RESULT_DIR.")
+    p.add_argument("results", help="result folder (with best.json)")
+    p.add_argument("--spk", help="JPL SPK kernel file on disk (.bsp); nothing is downloaded")
+    return p
+
+
+def main(args) -> int:
+    record = load_record(args.results)
+    report = verify_record(record, spk_path=args.spk)
+    txt, _ = write(args.results, report)
+    print(render(report))
+    print(f"written to {txt} and verification.json")
+    return 0

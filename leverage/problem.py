@@ -16,9 +16,12 @@ import tomli
 
 from . import bodies
 from . import times
+from .target import Target, arrival_window_s, target_from_values
+from .vehicle import LaunchVehicle, vehicle_from_values
 from .core import layout as L
 from .errors import NO_VALUE, ProblemError
-from .schema import REQUIRED, SECTIONS, keys_by_section
+from .schema import (FRONT_ALGORITHMS, OPTIONAL_SECTIONS, REQUIRED, SECTIONS,
+                     keys_by_section)
 
 
 @dataclass
@@ -31,6 +34,8 @@ class Problem:
     name: str = ""
     body: bodies.Body = None
     extra: dict = field(default_factory=dict)
+    target: Target | None = None          # [target] section, if any
+    vehicle: LaunchVehicle | None = None  # [vehicle] section, if any
 
     def get(self, section: str, key: str):
         return self.values[section][key]
@@ -157,6 +162,21 @@ def convert(source: str, key, value):
             return list(value)
         raise ProblemError(source, key.path, value,
                            'expected a whole number, [min, max] or "any"')
+    if kind == "numbers":
+        if not isinstance(value, list) or len(value) < 2:
+            raise ProblemError(source, key.path, value, "expected a list of two or more numbers")
+        for v in value:
+            _within(source, key, _number(source, key, v), value)
+        return [float(v) for v in value]
+    if kind == "names":
+        if (not isinstance(value, list) or not value
+                or not all(isinstance(v, str) and v.strip().lower() in key.choices for v in value)):
+            raise ProblemError(source, key.path, value,
+                               f"expected a list of names from {', '.join(key.choices)}")
+        names = [v.strip().lower() for v in value]
+        if len(set(names)) != len(names):
+            raise ProblemError(source, key.path, value, "names a quantity twice")
+        return names
     raise AssertionError(f"schema kind {kind!r} has no converter")
 
 
@@ -178,6 +198,9 @@ def validate(source: str, table: dict, schema: dict | None = None) -> dict:
                                    f"unknown key; known: {', '.join(schema[section])}")
     values = {}
     for section, keys in schema.items():
+        if section in OPTIONAL_SECTIONS and section not in table:
+            values[section] = None  # not used by this problem
+            continue
         given = table.get(section, {})
         values[section] = {}
         for name, key in keys.items():
@@ -228,8 +251,61 @@ def load_problem(path) -> Problem:
     values = validate(source, table)
     body = bodies.planet(values["body"]["name"])
     _check_relations(source, values, body)
+    target = (target_from_values(source, values["target"])
+              if values.get("target") is not None else None)
+    vehicle = (vehicle_from_values(source, values["vehicle"])
+               if values.get("vehicle") is not None else None)
+    _check_trade_relations(source, values, target, vehicle)
     name = values["study"]["name"] or Path(path).stem
-    return Problem(source=source, text=text, values=values, name=name, body=body)
+    return Problem(source=source, text=text, values=values, name=name, body=body,
+                   target=target, vehicle=vehicle)
+
+
+def _check_trade_relations(source: str, values: dict, target, vehicle) -> None:
+    """Relations of the front, target and vehicle keys; fills the algorithm default."""
+    goal, search = values["goal"], values["search"]
+    kind = goal["kind"]
+    front = kind == "front"
+    if search["algorithm"] is None:
+        search["algorithm"] = "nsga2" if front else "sade"
+    check_algorithm(source, "[search] algorithm", search["algorithm"], front, search["population"])
+    if kind == "max_delivered_mass" and vehicle is None:
+        raise ProblemError(source, "[goal] kind", kind, "needs a [vehicle] section")
+    if goal["arrival_vinf_weight"] > 0.0 and target is None:
+        raise ProblemError(source, "[goal] arrival_vinf_weight", goal["arrival_vinf_weight"],
+                           "needs a [target] section")
+    if front:
+        objectives = goal["objectives"]
+        if not 2 <= len(objectives) <= L.MAX_OBJ:
+            raise ProblemError(source, "[goal] objectives", objectives,
+                               f"a front trades 2 to {L.MAX_OBJ} quantities")
+        if "total_dv" in objectives and goal["dsm_budget_km_s"] is None:
+            raise ProblemError(source, "[goal] dsm_budget_km_s", NO_VALUE,
+                               "missing: a front with total_dv needs a DSM budget (km/s), the "
+                               "hypervolume reference")
+        if "arrival_vinf" in objectives and (target is None
+                                             or values["target"]["max_arrival_vinf_km_s"] is None):
+            raise ProblemError(source, "[goal] objectives", objectives,
+                               "arrival_vinf needs [target] max_arrival_vinf_km_s (the "
+                               "hypervolume reference)")
+        if "delivered_mass" in objectives and vehicle is None:
+            raise ProblemError(source, "[goal] objectives", objectives,
+                               "delivered_mass needs a [vehicle] section")
+    if target is not None:
+        arrival_window_s(source, values["target"])
+
+
+def check_algorithm(source: str, key: str, algorithm: str, front: bool, population: int) -> None:
+    """Refuse a single-objective algorithm for a front goal and the other way round."""
+    if front and algorithm not in FRONT_ALGORITHMS:
+        raise ProblemError(source, key, algorithm,
+                           f"a front goal needs one of {', '.join(FRONT_ALGORITHMS)}")
+    if not front and algorithm in FRONT_ALGORITHMS:
+        raise ProblemError(source, key, algorithm,
+                           "is multi-objective; use it with [goal] kind = \"front\"")
+    if algorithm == "nsga2" and (population % 4 or population < 8):
+        raise ProblemError(source, "[search] population", population,
+                           "nsga2 needs a multiple of 4, at least 8")
 
 
 # ---------------------------------------------------------------- compiling
@@ -289,5 +365,47 @@ def compile_problem(problem: Problem) -> CompiledProblem:
         flyby["max_altitude_km"],
         flyby["bplane_angle_deg"][1],
     ])
-    return CompiledProblem(params=p, lower=lower, upper=upper, names=list(X_NAMES),
-                           units=list(X_UNITS), n_obj=1)
+    compiled = CompiledProblem(params=p, lower=lower, upper=upper, names=list(X_NAMES),
+                               units=list(X_UNITS), n_obj=1)
+    _compile_trade(problem, compiled)
+    return compiled
+
+
+OBJECTIVE_CODES = {"total_dv": L.OBJ_TOTAL_DV, "gain": L.OBJ_GAIN,
+                   "inclination": L.OBJ_INCLINATION, "arrival_vinf": L.OBJ_ARRIVAL_VINF,
+                   "delivered_mass": L.OBJ_MASS}
+
+
+def _compile_trade(problem: Problem, compiled: CompiledProblem) -> None:
+    """Target leg, launch vehicle and objective slots (fronts, delivered mass)."""
+    p, goal = compiled.params, problem.values["goal"]
+    target = problem.target
+    p[L.P_ARRIVAL_OPEN_S], p[L.P_ARRIVAL_CLOSE_S] = -math.inf, math.inf
+    if target is not None:
+        t = problem.values["target"]
+        p[L.P_HAS_TARGET] = 1.0
+        p[L.P_TARGET_EPH:L.P_TARGET_EPH + target.ephemeris.size] = target.ephemeris
+        p[L.P_TARGET_MU] = target.gm_km3_s2
+        limit = t["max_arrival_vinf_km_s"]
+        p[L.P_ARRIVAL_VINF_MAX_KMS] = math.inf if limit is None else limit
+        p[L.P_POWERED_FLYBY] = 1.0 if t["flyby"] == "powered" else 0.0
+        p[L.P_VINF_MATCH_TOL_KMS] = t["vinf_match_tolerance_km_s"]
+        p[L.P_ARRIVAL_BURN] = 1.0 if t["arrival_burn"] else 0.0
+        p[L.P_ARRIVAL_OPEN_S], p[L.P_ARRIVAL_CLOSE_S] = arrival_window_s(problem.source, t)
+        # The leg fixes the flyby geometry: x[6] becomes the leg duration, x[7] goes.
+        n = L.N_X_TARGET
+        compiled.lower = np.append(compiled.lower[:n - 1], t["leg_duration_days"][0])
+        compiled.upper = np.append(compiled.upper[:n - 1], t["leg_duration_days"][1])
+        compiled.names = compiled.names[:n - 1] + ["target_leg_duration"]
+        compiled.units = compiled.units[:n - 1] + ["days"]
+    p[L.P_W_ARRIVAL] = goal["arrival_vinf_weight"]
+    if problem.vehicle is not None:
+        problem.vehicle.pack(p)
+    if goal["kind"] == "max_delivered_mass":
+        p[L.P_W_DSM] = p[L.P_W_GAIN] = 0.0
+        p[L.P_W_MASS] = 1.0 / problem.vehicle.max_mass_kg  # objective ~ -1 at the best
+    if goal["kind"] == "front":
+        codes = [OBJECTIVE_CODES[name] for name in goal["objectives"]]
+        p[L.P_N_OBJ] = len(codes)
+        p[L.P_OBJ_CODES:L.P_OBJ_CODES + len(codes)] = codes
+        compiled.n_obj = len(codes)

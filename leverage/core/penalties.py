@@ -12,6 +12,7 @@ from . import layout as L
 
 AU_KM_FOR_SCALES = 1.495978707e8
 NAN_PENALTY = 1.0e3
+SMALLEST_PENALTY = 2.2250738585072014e-308  # smallest normal float64: "violated, barely"
 
 # Normalising scale of each margin, in its unit (order as Q_MARGIN_* slots).
 MARGIN_SCALES = np.array([
@@ -39,13 +40,17 @@ def margin_penalty(margin, scale):
     if margin >= 0.0:
         return 0.0
     v = -margin / scale
-    return v + v * v
+    # A violation so small that -margin/scale underflows to 0 still costs something.
+    return max(v + v * v, SMALLEST_PENALTY)
 
 
 @njit(cache=True)
 def total_penalty(q, weight):
-    """Weighted sum of the penalties of every margin slot in ``q``."""
+    """Weighted sum of the penalties of every margin slot in ``q`` (> 0 iff a limit
+    fails, for weight > 0)."""
     s = 0.0
     for k in range(L.N_MARGINS):
         s += margin_penalty(q[L.Q_MARGIN_ALT_KM + k], MARGIN_SCALES[k])
+    if s > 0.0 and weight > 0.0:
+        return max(weight * s, SMALLEST_PENALTY)
     return weight * s

@@ -268,6 +268,8 @@ def _check_trade_relations(source: str, values: dict, target, vehicle) -> None:
     front = kind == "front"
     if search["algorithm"] is None:
         search["algorithm"] = "nsga2" if front else "sade"
+    if front:
+        search["polish"] = "none"  # a single-objective polish does not apply to a front
     check_algorithm(source, "[search] algorithm", search["algorithm"], front, search["population"])
     if kind == "max_delivered_mass" and vehicle is None:
         raise ProblemError(source, "[goal] kind", kind, "needs a [vehicle] section")

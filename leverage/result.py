@@ -49,6 +49,12 @@ DERIVED = [
     ("lambert_low_path", L.Q_LOW_PATH, "", 1.0, "1: low-path root, 0: high-path root"),
     ("flyby_burn", L.Q_FLYBY_DV, "km/s", 1.0, "periapsis burn of a powered flyby"),
     ("total_dv", L.Q_TOTAL_DV, "km/s", 1.0, "all burns after launch"),
+    ("arrival_vinf", L.Q_VINF_ARRIVAL, "km/s", 1.0, "v-infinity at the target (n/a: no target)"),
+    ("arrival_burn", L.Q_ARRIVAL_DV, "km/s", 1.0, "arrival burn counted for a rendezvous"),
+    ("injected_mass", L.Q_M_INJECTED, "kg", 1.0,
+     "launch-vehicle injected mass at the launch C3 (n/a: no vehicle)"),
+    ("delivered_mass", L.Q_M_DELIVERED, "kg", 1.0,
+     "injected mass left after every burn (rocket equation)"),
     ("penalty", L.Q_PENALTY, "objective units", 1.0, "total limit penalty"),
 ]
 
@@ -68,6 +74,9 @@ MARGINS = [
     ("vinf_match", L.Q_MARGIN_VINF_MATCH_KMS, "km/s", 1.0, "unpowered flyby |v-inf| match"),
     ("max_arrival_vinf", L.Q_MARGIN_ARRIVAL_VINF_KMS, "km/s", 1.0,
      "arrival v-infinity below the limit"),
+    ("vehicle_c3_table", L.Q_MARGIN_LV_C3, "km^2/s^2", 1.0,
+     "launch C3 inside the launch-vehicle table"),
+    ("arrival_window", L.Q_MARGIN_ARRIVAL_DAYS, "days", 1.0, "arrival inside the arrival window"),
 ]
 
 
@@ -119,6 +128,12 @@ def design_record(compiled, udp, x) -> dict:
          "velocity_out_km_s": _vec(q, L.Q_V_FLYBY_OUT),
          "body_velocity_km_s": _vec(q, L.Q_V_BODY_FLYBY)},
     ]
+    if udp.params[L.P_HAS_TARGET] == 1.0 and q[L.Q_OK] == 1.0:
+        events.append({"event": "arrival", "epoch_tdb_s": clean(q[L.Q_T_ARRIVAL]),
+                       "utc": times.utc_iso(q[L.Q_T_ARRIVAL]),
+                       "position_km": _vec(q, L.Q_R_ARRIVAL),
+                       "velocity_km_s": _vec(q, L.Q_V_ARRIVAL),
+                       "target_velocity_km_s": _vec(q, L.Q_V_TARGET_ARRIVAL)})
     return {
         "decision_vector": {"names": list(compiled.names), "units": list(compiled.units),
                             "values": [float(v) for v in x],
@@ -178,7 +193,10 @@ def base_record(problem, settings, status: str) -> dict:
         "status": status,
         "problem": {"name": problem.name, "file": problem.source, "sha256": problem.sha256,
                     "description": problem.values["study"]["description"],
-                    "body": problem.body.name, "goal": problem.values["goal"]["kind"]},
+                    "body": problem.body.name, "goal": problem.values["goal"]["kind"],
+                    "target": problem.target.name if problem.target is not None else None,
+                    "vehicle": (problem.vehicle.name or "unnamed")
+                    if problem.vehicle is not None else None},
         "search": {"algorithm": settings.algorithm, "islands": settings.islands,
                    "population": settings.population, "generations": settings.generations,
                    "generations_per_migration": settings.generations_per_migration,

@@ -13,6 +13,7 @@ from dataclasses import asdict, fields
 from pathlib import Path
 
 from . import summary
+from .fronts import search_class
 from .result import base_record, design_record, write_atomic, write_json
 from .search import IslandRecord, Search, SearchSettings
 from .udp import LeveragingUDP
@@ -89,9 +90,10 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
     old_term = signal.signal(signal.SIGTERM, _raise_stop)
     search = None
     try:
-        search = Search(udp, settings)
+        # Several objectives: a FrontSearch (fronts.py), which logs a hypervolume column too.
+        search = search_class(compiled, settings)(udp, settings)
         with open(out_dir / "convergence.csv", "w", newline="", encoding="utf-8") as fh:
-            log = csv.DictWriter(fh, fieldnames=LOG_COLUMNS)
+            log = csv.DictWriter(fh, fieldnames=getattr(search, "log_columns", LOG_COLUMNS))
             log.writeheader()
             fh.flush()
             try:
@@ -113,6 +115,8 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
         x, f, polish_evals = search.polish(x)
     record = base_record(problem, settings, status)
     record.update(design_record(compiled, udp, x))
+    if hasattr(search, "write_front"):
+        record["front"] = search.write_front(out_dir / "front.csv", compiled)
     record["run"] = {"evaluations": int(search.state.evaluations + polish_evals),
                      "polish_evaluations": int(polish_evals),
                      "evolutions": search.state.evolution,

@@ -191,7 +191,7 @@ KEYS = [
         minimum=0, maximum=2**31 - 1),
     Key("search", "polish", "choice", "bobyqa",
         "Local optimiser run on the champion at the end (pygmo nlopt bobyqa or slsqp, pygmo "
-        "mbh, or none).", choices=POLISHERS),
+        "mbh, or none; not used for a front goal).", choices=POLISHERS),
 ]
 
 

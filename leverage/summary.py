@@ -58,7 +58,9 @@ def render(record) -> str:
     if p.get("description"):
         lines.append(f"          {p['description']}")
     lines += [
-        f"goal      {p['goal']}, flyby body {p['body']}",
+        f"goal      {p['goal']}, flyby body {p['body']}"
+        + (f", target {p['target']}" if p.get("target") else "")
+        + (f", launch vehicle {p['vehicle']}" if p.get("vehicle") else ""),
         f"search    {s['algorithm']}, {s['islands']} islands x {s['population']}, "
         f"{s['generations']} generations, seed {s['seed']}, polish {s['polish']}",
     ]
@@ -66,8 +68,19 @@ def render(record) -> str:
     if run:
         lines.append(f"effort    {run.get('evaluations', 0):,} evaluations in "
                      f"{_fmt(run.get('wall_time_s', 0.0), 1)} s")
+    front = record.get("front")
+    if front:
+        lines.append(f"front     {front['members']} feasible non-dominated designs trading "
+                     f"{', '.join(front['objectives'])}; hypervolume {_fmt(front['hypervolume'], 6)}"
+                     f" (reference {', '.join(_fmt(v, 3) for v in front['reference_point'])});"
+                     f" below: its knee point; all members in {front['file']}")
+        if as_float(front.get("knee_distance")) < 0.02:
+            lines.append("          the front is nearly straight (knee distance "
+                         f"{_fmt(front['knee_distance'], 4)} of its scaled span): no member "
+                         "stands out; choose from front.csv")
     feasible = "yes" if record["feasible"] else "NO (see margins)"
-    lines += [f"objective {_fmt(record['objective'][0], 6)}    feasible: {feasible}", "",
+    objective = ", ".join(_fmt(v, 6) for v in record["objective"])
+    lines += [f"objective {objective}    feasible: {feasible}", "",
               "timeline"] + timeline(record)
     lines += [
         "",
@@ -88,6 +101,16 @@ def render(record) -> str:
         "outgoing  " + f"a {_d(record, 'outgoing_sma', 4)}, e {_d(record, 'outgoing_eccentricity', 4)}, "
         f"i {_d(record, 'outgoing_inclination', 3)}, perihelion {_d(record, 'outgoing_perihelion', 4)}, "
         f"aphelion {_d(record, 'outgoing_aphelion', 4)}",
+    ]
+    if p.get("target"):
+        lines.append("target    " + f"{p['target']}: arrival v-inf {_d(record, 'arrival_vinf')}, "
+                     f"flyby burn {_d(record, 'flyby_burn', 4)}, arrival burn "
+                     f"{_d(record, 'arrival_burn', 4)}, total dv {_d(record, 'total_dv', 4)}")
+    if p.get("vehicle"):
+        lines.append("mass      " + f"injected {_d(record, 'injected_mass', 1)} at C3 "
+                     f"{_d(record, 'c3')}, delivered {_d(record, 'delivered_mass', 1)} after "
+                     f"{_d(record, 'total_dv', 4)}")
+    lines += [
         "",
         "limit margins (>= 0 holds)",
     ]

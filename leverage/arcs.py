@@ -61,20 +61,20 @@ def _vec(values) -> np.ndarray:
 def event_states(record) -> dict:
     """Events of a record as floats: name -> dict(t, r, and the velocities it has).
 
-    Velocity keys kept as in best.json without the unit suffix: launch ``v``; dsm
-    ``v_before``/``v_after``; flyby ``v_in``/``v_out``/``v_body``; arrival ``v`` (the
-    first ``velocity*`` field it has, if any).
+    Velocity fields renamed from best.json: ``velocity_X_km_s`` -> ``v_X`` and
+    ``Y_velocity_km_s`` -> ``v_Y``: launch ``v``; dsm ``v_before``/``v_after``; flyby
+    ``v_in``/``v_out``/``v_body``; arrival ``v`` (its first velocity field if it has no
+    plain one).
     """
     out = {}
     for ev in record["events"]:
         item = {"t": as_float(ev["epoch_tdb_s"]), "r": _vec(ev["position_km"]),
                 "utc": ev.get("utc", "")}
         for key, value in ev.items():
-            if key.startswith("velocity") or key == "body_velocity_km_s":
-                short = key.replace("_km_s", "").replace("velocity", "v")
-                if short == "body_v":
-                    short = "v_body"
-                item[short] = _vec(value)
+            if "velocity" in key and isinstance(value, list):
+                # velocity_in_km_s -> v_in; body_velocity_km_s -> v_body
+                prefix, _, rest = key.replace("_km_s", "").partition("velocity")
+                item["v" + rest + ("_" + prefix.rstrip("_") if prefix else "")] = _vec(value)
         if ev["event"] == "arrival" and "v" not in item:
             vel = [k for k in item if k.startswith("v_")]
             if vel:

@@ -1,0 +1,19 @@
+"""leverage plot RESULT_DIR: (re)draw the pictures of a result folder."""
+from ..plots import all_pictures
+from .show import load_record
+
+
+def add_parser(sub):
+    p = sub.add_parser("plot", help="draw the pictures of a result folder",
+                       description="Write trajectory.png and convergence.png into RESULT_DIR, "
+                                   "plus front.png when it has front.csv and launch_window.png "
+                                   "when it has a launch-window sweep table.")
+    p.add_argument("results", help="result folder (with best.json)")
+    return p
+
+
+def main(args) -> int:
+    record = load_record(args.results)
+    for picture in all_pictures(record, args.results):
+        print(picture.path)
+    return 0

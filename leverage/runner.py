@@ -12,7 +12,7 @@ import time
 from dataclasses import asdict, fields
 from pathlib import Path
 
-from . import summary
+from . import afterrun, summary
 from .fronts import search_class
 from .result import base_record, design_record, write_atomic, write_json
 from .search import IslandRecord, Search, SearchSettings
@@ -125,6 +125,8 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
     text = summary.render(record)
     write_atomic(out_dir / "summary.txt", text)
     echo(text)
+    if status == "complete":  # pictures and verification; a failure there is one line
+        afterrun.pictures_and_verification(out_dir, record, echo)
     echo(f"results in {out_dir}")
     if status == "interrupted":
         return EXIT_INTERRUPTED

@@ -1,13 +1,17 @@
-"""leverage show RESULT_DIR: print the summary of a finished run."""
+"""leverage show RESULT_DIR [RESULT_DIR ...]: the summary of a run, or several side by side."""
 from pathlib import Path
 
+from .. import compare
 from ..errors import NO_VALUE, ProblemError
 from ..result import read_json
 from ..summary import render
 
 
 def add_parser(sub):
-    p = sub.add_parser("show", help="print the summary of a result folder")
+    p = sub.add_parser("show", help="print the summary of a result folder, or compare several",
+                       description="One folder: print its summary. Several: lay them side by "
+                                   "side (goal, key numbers, margins, evaluations, wall time, "
+                                   "problem-file settings that differ).")
     p.add_argument("results", nargs="+", help="result folder(s)")
     return p
 
@@ -23,6 +27,19 @@ def load_record(folder) -> dict:
 
 
 def main(args) -> int:
+    if len(args.results) > 1:
+        # Several folders: one side-by-side table (leverage.compare).
+        records = [load_record(folder) for folder in args.results]
+        try:
+            text = compare.render(args.results, records)
+        except (KeyError, TypeError, ValueError, AttributeError) as exc:
+            bad = next((f for f, r in zip(args.results, records) if not _renders(r)),
+                       args.results[0])
+            raise ProblemError(str(Path(bad) / "best.json"), "", NO_VALUE,
+                               f"not a leverage result record ({type(exc).__name__}: {exc})"
+                               ) from None
+        print(text)
+        return 0
     for folder in args.results:
         record = load_record(folder)
         try:
@@ -33,3 +50,11 @@ def main(args) -> int:
                                ) from None
         print(text)
     return 0
+
+
+def _renders(record) -> bool:
+    try:
+        compare.render(["."], [record])
+        return True
+    except (KeyError, TypeError, ValueError, AttributeError):
+        return False

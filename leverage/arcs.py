@@ -89,9 +89,10 @@ def sample_times(t0: float, t1: float, n: int | None = None, step_s: float | Non
         if step_s <= 0:
             raise ValueError("step must be positive")
         times = np.arange(t0, t1, step_s)
-        if times.size == 0 or times[-1] < t1:
-            times = np.append(times, t1)
-        return times
+        # End exactly at t1; drop a regular sample that would sit within 1 s of it.
+        if times.size > 1 and t1 - times[-1] < 1.0:
+            times = times[:-1]
+        return np.append(times, t1)
     return np.linspace(t0, t1, max(2, int(n or DEFAULT_SAMPLES)))
 
 

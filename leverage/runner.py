@@ -1,22 +1,32 @@
 """One optimisation run: problem -> search -> polished champion -> files on disk.
 
 Writes into the run folder, as it goes: ``problem.toml`` (a copy),
-``convergence.csv`` (flushed after every evolution), and at the end ``best.json``
-and ``summary.txt`` (atomically). Ctrl-C or SIGTERM stops the search; the best
-design found so far is still written, marked "interrupted".
+``convergence.csv`` (flushed after every evolution), ``checkpoint.pickle`` (after
+every evolution, atomically; see ``checkpoint.py``), and at the end ``best.json``
+and ``summary.txt`` (atomically). Ctrl-C or SIGTERM stops the search within moments
+(worker processes are killed, cluster evolutions already sent are awaited); the best
+design found so far is still written, marked "interrupted", and the exit code is 130.
+``run(..., resume=checkpoint.load(folder))`` continues a run exactly where its last
+checkpoint left it: the same champion as a run that was never stopped.
 """
 import csv
+import inspect
+import io
 import signal
 import sys
+import threading
 import time
 from dataclasses import asdict, fields
 from pathlib import Path
 
-from . import afterrun, summary
+from . import afterrun, checkpoint, cluster, summary
+from .errors import ProblemError
 from .fronts import search_class
+from .islands import ClusterIslands, local_evolver
 from .result import base_record, design_record, write_atomic, write_json
-from .search import IslandRecord, Search, SearchSettings
+from .search import IslandRecord, SearchSettings
 from .udp import LeveragingUDP
+from .workers import WorkerLost
 
 EXIT_OK = 0
 EXIT_INFEASIBLE = 3
@@ -68,62 +78,193 @@ class Progress:
             self.stream.flush()
 
 
-class _Stop(Exception):
-    pass
+class StopSignals:
+    """While active, SIGTERM (and SIGINT, unless this process was started with SIGINT
+    ignored, as background jobs of a shell script are) raise KeyboardInterrupt once in
+    the main thread; later signals are only noted, so the cleanup that follows the first
+    one is not cut short. Outside the main thread it does nothing."""
+
+    def __init__(self):
+        self.armed = False
+        self.received = None
+        self._old = {}
+
+    def _handler(self, signum, frame):
+        self.received = signal.Signals(signum).name
+        if self.armed:
+            self.armed = False
+            raise KeyboardInterrupt
+
+    def __enter__(self):
+        if threading.current_thread() is threading.main_thread():
+            for sig in (signal.SIGINT, signal.SIGTERM):
+                if signal.getsignal(sig) is not signal.SIG_IGN:
+                    self._old[sig] = signal.signal(sig, self._handler)
+        self.armed = True
+        return self
+
+    def hold(self):
+        """Note signals from now on instead of raising."""
+        self.armed = False
+
+    def __exit__(self, *exc):
+        self.armed = False
+        for sig, old in self._old.items():
+            signal.signal(sig, old)
+        return False
 
 
-def _raise_stop(signum, frame):
-    raise KeyboardInterrupt
+class ConvergenceLog:
+    """convergence.csv: header and any earlier rows written atomically, then one flushed
+    write per evolution."""
+
+    def __init__(self, path: Path, columns: list, earlier_rows=()):
+        buf = io.StringIO()
+        writer = csv.DictWriter(buf, fieldnames=columns)
+        writer.writeheader()
+        for row in earlier_rows:
+            writer.writerow(asdict(row))
+        write_atomic(path, buf.getvalue())
+        self._fh = open(path, "a", newline="", encoding="utf-8")
+        self._writer = csv.DictWriter(self._fh, fieldnames=columns)
+
+    def write(self, rows):
+        for row in rows:
+            self._writer.writerow(asdict(row))
+        self._fh.flush()
+
+    def close(self):
+        self._fh.close()
 
 
-def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | None = None,
-        echo=print) -> int:
-    """Run the search and write the run folder; returns the process exit code."""
-    out_dir = Path(out_dir)
-    out_dir.mkdir(parents=True, exist_ok=True)
-    # The text that was validated and hashed, not a re-read of a file that may change.
-    write_atomic(out_dir / "problem.toml", problem.text)
-    compiled = problem.compile()
-    udp = LeveragingUDP.from_compiled(compiled, problem.name)
-    progress = progress or Progress(settings.evolutions)
-    status = "complete"
-    old_term = signal.signal(signal.SIGTERM, _raise_stop)
-    search = None
-    try:
-        # Several objectives: a FrontSearch (fronts.py), which logs a hypervolume column too.
-        search = search_class(compiled, settings)(udp, settings)
-        with open(out_dir / "convergence.csv", "w", newline="", encoding="utf-8") as fh:
-            log = csv.DictWriter(fh, fieldnames=getattr(search, "log_columns", LOG_COLUMNS))
-            log.writeheader()
-            fh.flush()
-            try:
-                while not search.done:
-                    rows = search.step()
-                    for row in rows:
-                        log.writerow(asdict(row))
-                    fh.flush()
-                    progress.update(search.state.evolution, search.champion()[1][0],
-                                    search.state.evaluations)
-            except KeyboardInterrupt:
-                status = "interrupted"
-                progress.note("interrupted: writing the best design found so far")
-    finally:
-        signal.signal(signal.SIGTERM, old_term)
+def make_search(compiled, udp, settings: SearchSettings, evolver=None):
+    """The search for this problem (Search, or FrontSearch for several objectives); the
+    evolver goes to searches that take one (FrontSearch evolves in this process with
+    pygmo's batch evaluator)."""
+    cls = search_class(compiled, settings)
+    if evolver is not None and "evolver" in inspect.signature(cls).parameters:
+        return cls(udp, settings, evolver=evolver)
+    return cls(udp, settings)
+
+
+def finish(problem, settings: SearchSettings, compiled, udp, search, status: str,
+           front_path: Path | None = None, run_info: dict | None = None) -> dict:
+    """Polish the champion (only when the search completed) and build the result record."""
     x, f = search.champion()
     polish_evals = 0
     if status == "complete":
         x, f, polish_evals = search.polish(x)
     record = base_record(problem, settings, status)
     record.update(design_record(compiled, udp, x))
-    if hasattr(search, "write_front"):
-        record["front"] = search.write_front(out_dir / "front.csv", compiled)
+    if hasattr(search, "write_front") and front_path is not None:
+        record["front"] = search.write_front(front_path, compiled)
     record["run"] = {"evaluations": int(search.state.evaluations + polish_evals),
                      "polish_evaluations": int(polish_evals),
                      "evolutions": search.state.evolution,
                      "wall_time_s": round(time.monotonic() - search.start_time, 3)}
-    write_json(out_dir / "best.json", record)
-    text = summary.render(record)
-    write_atomic(out_dir / "summary.txt", text)
+    record["run"].update(run_info or {})
+    return record
+
+
+def evolver_for(settings: SearchSettings, workers: int | None = None,
+                cluster_spec: str | None = None):
+    """Where the islands evolve: ipyparallel engines (``--cluster``, checked first), else
+    worker processes on this machine (``--workers``, default one per core up to the
+    island count), else this process."""
+    if cluster_spec:
+        client = cluster.connect(cluster_spec)
+        client.close()
+        return ClusterIslands(cluster.client_kwargs(cluster_spec))
+    return local_evolver(settings.islands, workers)
+
+
+def resumed_settings(saved: dict, overrides: dict, done_evolutions: int) -> SearchSettings:
+    """The checkpoint's settings; --generations may extend the run, any other search
+    option that differs is refused in one line."""
+    values = dict(saved)
+    for name, value in overrides.items():
+        if value is None or name == "generations" or value == values.get(name):
+            continue
+        raise ProblemError("command line", f"--{name}", value,
+                           f"the run being resumed used {values.get(name)}; a resumed run "
+                           "keeps its search settings (only --generations may grow)")
+    if overrides.get("generations") is not None:
+        per = values["generations_per_migration"]
+        wanted = -(-overrides["generations"] // per) * per
+        if wanted < done_evolutions * per:
+            raise ProblemError("command line", "--generations", overrides["generations"],
+                               f"the run already did {done_evolutions * per} generations")
+        values["generations"] = wanted
+    return SearchSettings(**{f.name: values[f.name] for f in fields(SearchSettings)})
+
+
+def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | None = None,
+        echo=print, evolver=None, resume: dict | None = None) -> int:
+    """Run the search and write the run folder; returns the process exit code.
+
+    ``evolver`` (``leverage.islands``) says where islands evolve (default: worker
+    processes on this machine when there are several islands); ``resume`` is a loaded
+    checkpoint (``checkpoint.load``) to continue from.
+    """
+    out_dir = Path(out_dir)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    # The text that was validated and hashed, not a re-read of a file that may change.
+    write_atomic(out_dir / "problem.toml", problem.text)
+    progress = progress or Progress(settings.evolutions)
+    evolver = evolver or local_evolver(settings.islands)
+    status = "complete"
+    search = None
+    run_info = {"islands_evolved": evolver.name}
+    with StopSignals() as stop:
+        try:
+            try:
+                compiled = problem.compile()
+                udp = LeveragingUDP.from_compiled(compiled, problem.name)
+                search = make_search(compiled, udp, settings, evolver)
+                if resume is not None:
+                    checkpoint.restore(search, resume)
+                    run_info["resumed_from_evolution"] = search.state.evolution
+                    progress.note(f"resuming at evolution {search.state.evolution}/"
+                                  f"{settings.evolutions} from {out_dir / checkpoint.FILE_NAME}")
+                log = ConvergenceLog(out_dir / "convergence.csv",
+                                     getattr(search, "log_columns", LOG_COLUMNS),
+                                     search.state.history)
+                try:
+                    while not search.done:
+                        rows = search.step()
+                        log.write(rows)
+                        checkpoint.save(out_dir, problem, settings, search)
+                        progress.update(search.state.evolution, search.champion()[1][0],
+                                        search.state.evaluations)
+                finally:
+                    log.close()
+            except (KeyboardInterrupt, WorkerLost) as exc:
+                stop.hold()
+                status = "interrupted"
+                evolver.abort()
+                why = f"worker lost: {exc}" if isinstance(exc, WorkerLost) else (
+                    f"{stop.received or 'SIGINT'} received")
+                if search is None:
+                    progress.note(f"interrupted ({why}) before the search started; "
+                                  "nothing to write")
+                    return EXIT_INTERRUPTED
+                progress.note(f"interrupted ({why}) at evolution {search.state.evolution}: "
+                              "writing the best design found so far")
+        finally:
+            evolver.close()
+        try:
+            record = finish(problem, settings, compiled, udp, search, status,
+                            out_dir / "front.csv", run_info)
+        except KeyboardInterrupt:  # during the polish: keep the unpolished champion
+            stop.hold()
+            status = "interrupted"
+            progress.note("interrupted during the polish: writing the unpolished best design")
+            record = finish(problem, settings, compiled, udp, search, status,
+                            out_dir / "front.csv", run_info)
+        stop.hold()
+        write_json(out_dir / "best.json", record)
+        text = summary.render(record)
+        write_atomic(out_dir / "summary.txt", text)
     echo(text)
     if status == "complete":  # pictures and verification; a failure there is one line
         afterrun.pictures_and_verification(out_dir, record, echo)

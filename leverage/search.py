@@ -3,7 +3,10 @@
 Migration is done here, between evolutions, in a fixed order (the champion of
 island i replaces the worst individual of island i+1 when better), so the same
 seed and island count always give the same champion whatever the process timing.
-Islands run in worker processes (pygmo ``mp_island``) when there is more than one.
+An evolver (``leverage.islands``) evolves the islands between migrations: in turn in
+this process, in worker processes, or on ipyparallel engines; all give the same
+answer. ``state`` holds everything that moves (populations, algorithms with their
+random-engine state, counts, history), which is what ``leverage.checkpoint`` saves.
 """
 import time
 from dataclasses import dataclass, field
@@ -12,6 +15,7 @@ import numpy as np
 import pygmo as pg
 
 from .core import layout as L
+from .islands import SerialIslands
 from .udp import LeveragingUDP
 
 ALGORITHM_NOTES = {
@@ -107,9 +111,10 @@ def min_violation(udp: LeveragingUDP, xs: np.ndarray) -> float:
 class Search:
     """Runs the archipelago step by step so a caller can log, show and stop it."""
 
-    def __init__(self, udp: LeveragingUDP, settings: SearchSettings):
+    def __init__(self, udp: LeveragingUDP, settings: SearchSettings, evolver=None):
         self.udp = udp
         self.settings = settings
+        self.evolver = evolver or SerialIslands()
         self.problem = pg.problem(udp)
         s = settings
         pops = [pg.population(self.problem, s.population, seed=s.seed * 1000 + i)
@@ -127,16 +132,7 @@ class Search:
     def step(self) -> list:
         """One evolution on every island, then ring migration; returns log rows."""
         st, s = self.state, self.settings
-        if s.islands == 1:
-            st.populations[0] = st.algorithms[0].evolve(st.populations[0])
-        else:
-            archi = pg.archipelago(t=pg.topology(pg.unconnected()))
-            for algo, pop in zip(st.algorithms, st.populations):
-                archi.push_back(udi=pg.mp_island(), algo=algo, pop=pop)
-            archi.evolve()
-            archi.wait_check()
-            st.populations = [isl.get_population() for isl in archi]
-            st.algorithms = [isl.get_algorithm() for isl in archi]
+        st.algorithms, st.populations = self.evolver.evolve(st.algorithms, st.populations)
         self._migrate()
         st.evolution += 1
         elapsed = time.monotonic() - self.start_time

@@ -2,10 +2,12 @@
 import time
 from pathlib import Path
 
+from .. import checkpoint
 from ..errors import NO_VALUE, ProblemError
 from ..problem import load_problem
-from ..runner import Progress, run, settings_from
+from ..runner import Progress, evolver_for, resumed_settings, run, settings_from
 from .options import add_search_options, search_overrides
+from .parallel import add_parallel_options, workers_option
 
 
 def add_parser(sub):
@@ -17,7 +19,12 @@ def add_parser(sub):
     p.add_argument("--force", action="store_true",
                    help="write into an existing, non-empty output folder")
     p.add_argument("--quiet", action="store_true", help="no progress lines")
+    p.add_argument("--resume", metavar="RESULT_DIR",
+                   help="continue the interrupted run in RESULT_DIR from its checkpoint "
+                        "(same problem file; results go to RESULT_DIR)")
     add_search_options(p)
+    add_parallel_options(p, "processes evolving the islands (default: one per core, at most "
+                            "one per island; 1: in this process)")
     return p
 
 
@@ -26,8 +33,30 @@ def default_out(name: str) -> Path:
     return Path("results") / f"{name}-{stamp}"
 
 
+def resume_point(args, problem):
+    """(folder, settings, checkpoint) of a --resume, refused in one line if it does not fit."""
+    folder = Path(args.resume)
+    if args.out and Path(args.out).resolve() != folder.resolve():
+        raise ProblemError("command line", "--out", args.out,
+                           "a resumed run writes into its own folder (--resume); drop --out")
+    saved = checkpoint.load(folder)
+    if saved["problem_sha256"] != problem.sha256:
+        raise ProblemError(args.problem, "", NO_VALUE,
+                           f"differs from the problem of the run in {folder} (sha256 "
+                           f"{problem.sha256[:12]}, checkpoint {saved['problem_sha256'][:12]})")
+    settings = resumed_settings(saved["settings"], search_overrides(args),
+                                saved["state"].evolution)
+    return folder, settings, saved
+
+
 def main(args) -> int:
     problem = load_problem(args.problem)
+    workers = workers_option(args)
+    if args.resume:
+        out, settings, saved = resume_point(args, problem)
+        evolver = evolver_for(settings, workers, args.cluster)
+        return run(problem, settings, out, Progress(settings.evolutions, enabled=not args.quiet),
+                   evolver=evolver, resume=saved)
     settings = settings_from(problem, search_overrides(args))
     out = Path(args.out) if args.out else default_out(problem.name)
     if out.exists() and not out.is_dir():
@@ -35,4 +64,6 @@ def main(args) -> int:
     if out.exists() and any(out.iterdir()) and not args.force:
         raise ProblemError("command line", "--out", str(out),
                            "folder exists and is not empty; pick another or add --force")
-    return run(problem, settings, out, Progress(settings.evolutions, enabled=not args.quiet))
+    evolver = evolver_for(settings, workers, args.cluster)
+    return run(problem, settings, out, Progress(settings.evolutions, enabled=not args.quiet),
+               evolver=evolver)

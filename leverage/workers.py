@@ -1,0 +1,140 @@
+"""Worker processes on this machine that the parent can always stop.
+
+A small pool over ``multiprocessing`` (``spawn`` start method, as pygmo's own
+multiprocessing island uses) with one pipe per worker. It replaces pygmo's
+``mp_island`` pool for two measured reasons: when a process-group SIGTERM kills a
+``multiprocessing.Pool`` worker mid-task, that task's result never arrives and the
+run hangs; and a busy ``mp_island`` cannot be stopped before its evolution ends.
+Here a dead worker shows up as a closed pipe (``WorkerLost``), the parent waits in
+short, signal-interruptible slices, and ``abort()`` kills the workers at once.
+
+Workers ignore SIGINT (the parent decides when to stop; a terminal Ctrl-C reaches
+the whole process group), keep the default SIGTERM (a group SIGTERM ends them), and
+exit when the parent closes their pipe or dies.
+"""
+import multiprocessing as mp
+import signal
+import traceback
+from multiprocessing.connection import wait
+
+POLL_S = 0.2  # longest uninterruptible wait in the parent, s
+
+
+class WorkerLost(RuntimeError):
+    """A worker process died before returning its task's result."""
+
+
+class WorkerFailed(RuntimeError):
+    """A task raised in a worker; the message holds the worker's traceback."""
+
+
+def _serve(conn):
+    """Worker loop: receive (function, argument), send (ok, result or traceback text)."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    while True:
+        try:
+            msg = conn.recv()
+        except (EOFError, OSError):
+            return  # the parent closed the pipe or died
+        if msg is None:
+            return
+        fn, arg = msg
+        try:
+            out = (True, fn(arg))
+        except BaseException as exc:  # report everything; the parent decides
+            out = (False, f"{type(exc).__name__}: {exc}\n{traceback.format_exc()}")
+        try:
+            conn.send(out)
+        except (BrokenPipeError, OSError):
+            return
+
+
+class WorkerPool:
+    """``n`` spawned worker processes; ``imap_unordered``/``map`` run module-level functions."""
+
+    def __init__(self, n: int):
+        if n < 1:
+            raise ValueError("a worker pool needs at least one worker")
+        ctx = mp.get_context("spawn")
+        self._workers = []
+        self._busy = set()
+        # SIG_IGN survives exec, so a Ctrl-C while a worker boots cannot reach it.
+        previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+        try:
+            for _ in range(n):
+                parent, child = ctx.Pipe()
+                proc = ctx.Process(target=_serve, args=(child,), daemon=True)
+                proc.start()
+                child.close()
+                self._workers.append((proc, parent))
+        finally:
+            signal.signal(signal.SIGINT, previous)
+
+    @property
+    def size(self) -> int:
+        return len(self._workers)
+
+    @property
+    def pids(self) -> list:
+        return [proc.pid for proc, _ in self._workers]
+
+    def imap_unordered(self, fn, items):
+        """Yield ``(index, fn(items[index]))`` as workers finish, in finishing order."""
+        queue = list(enumerate(items))[::-1]
+        owner = {}  # pipe -> (index, process)
+
+        def dispatch(proc, conn):
+            if queue:
+                index, item = queue.pop()
+                conn.send((fn, item))
+                owner[conn] = (index, proc)
+                self._busy.add(conn)
+
+        for proc, conn in self._workers:
+            dispatch(proc, conn)
+        while owner:
+            for conn in wait(list(owner), timeout=POLL_S):
+                index, proc = owner.pop(conn)
+                try:
+                    ok, value = conn.recv()
+                except (EOFError, OSError):
+                    raise WorkerLost(f"worker process {proc.pid} ended before returning "
+                                     f"its result (exit code {proc.exitcode})") from None
+                self._busy.discard(conn)
+                if not ok:
+                    raise WorkerFailed(value)
+                dispatch(proc, conn)
+                yield index, value
+
+    def map(self, fn, items) -> list:
+        """``[fn(item) for item in items]`` across the workers, in input order."""
+        items = list(items)
+        out = [None] * len(items)
+        for index, value in self.imap_unordered(fn, items):
+            out[index] = value
+        return out
+
+    def close(self, timeout_s: float = 5.0):
+        """Stop the workers: politely when idle, by force if busy or slow to leave."""
+        if self._busy:
+            self.abort()
+            return
+        for proc, conn in self._workers:
+            try:
+                conn.send(None)
+            except (BrokenPipeError, OSError):
+                pass
+        for proc, conn in self._workers:
+            proc.join(timeout_s)
+        self.abort()
+
+    def abort(self):
+        """Kill every worker now (work in progress is lost) and reap them."""
+        for proc, conn in self._workers:
+            if proc.is_alive():
+                proc.kill()
+        for proc, conn in self._workers:
+            proc.join(5.0)
+            conn.close()
+        self._workers = []
+        self._busy = set()

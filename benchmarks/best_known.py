@@ -1,0 +1,227 @@
+"""Best-known answers of the reference problems: a dense grid, each point polished locally.
+
+For every reference problem (``REFERENCES``) the launch date and the loop duration
+are laid on a grid (``--launch-step-days`` x ``--loop-step-days``, both ends
+included). At each grid point the other six decision variables (launch v-infinity and
+direction, DSM fraction, flyby altitude and B-plane angle) are searched by
+1. the best few of ``--samples`` uniform random points (one compiled batch), each
+   polished by BOBYQA (Powell 2009, through pygmo's nlopt) with the grid values fixed;
+2. a continuation sweep: each point is polished again from its grid neighbours' answers.
+The best ``--final`` grid points are then polished in all eight variables (BOBYQA,
+then monotonic basin hopping around it, pygmo mbh) and the best is the best-known
+answer. Writes ``benchmarks/best_known.json`` (objective in the problem's own units:
+km/s for min_dsm, -km/s of gain for max_gain).
+
+Usage: python -m benchmarks.best_known [--only NAME] [--smoke] [--out FILE]
+"""
+import argparse
+import json
+import sys
+import time
+from pathlib import Path
+
+import numba
+import numpy as np
+import pygmo as pg
+
+from benchmarks.common import BENCH_PROBLEMS, DEMO, print_footer, print_header
+from leverage.core import layout as L
+from leverage.core import trajectory
+from leverage.problem import load_problem
+from leverage.udp import LeveragingUDP
+
+OUT = Path(__file__).resolve().parent / "best_known.json"
+REFERENCES = {
+    "demo": DEMO,
+    "earth-3yr": BENCH_PROBLEMS / "earth-3yr.toml",
+    "earth-gain": BENCH_PROBLEMS / "earth-gain.toml",
+}
+GRID_VARS = (L.X_LAUNCH_DAY, L.X_LOOP_DAYS)
+FREE_VARS = (L.X_VINF_KMS, L.X_AZIMUTH_DEG, L.X_ELEVATION_DEG, L.X_DSM_FRACTION,
+             L.X_FLYBY_ALT_KM, L.X_BPLANE_DEG)
+
+
+class FixedGridPoint:
+    """pygmo problem over the six free variables with launch day and loop duration fixed."""
+
+    def __init__(self, params, lower, upper, fixed):
+        self.params = params
+        self.full = np.array(fixed, dtype=float)
+        self.lower = np.asarray(lower, float)[list(FREE_VARS)]
+        self.upper = np.asarray(upper, float)[list(FREE_VARS)]
+
+    def expand(self, y):
+        x = self.full.copy()
+        x[list(FREE_VARS)] = y
+        return x
+
+    def fitness(self, y):
+        return trajectory.fitness(self.expand(np.asarray(y, float)), self.params)
+
+    def get_bounds(self):
+        return (self.lower, self.upper)
+
+
+def bobyqa(maxeval=3000):
+    uda = pg.nlopt("bobyqa")
+    uda.xtol_rel = 1e-10
+    uda.ftol_rel = 1e-14
+    uda.maxeval = maxeval
+    return pg.algorithm(uda)
+
+
+def polish(udp_like, start, algo):
+    """(x, f, evaluations) after a local polish of ``start`` (clipped to the bounds)."""
+    lo, hi = udp_like.get_bounds()
+    prob = pg.problem(udp_like)
+    pop = pg.population(prob)
+    pop.push_back(np.clip(start, lo, hi))
+    pop = algo.evolve(pop)
+    return pop.champion_x.copy(), float(pop.champion_f[0]), int(pop.problem.get_fevals())
+
+
+def grid_axis(low, high, step):
+    n = max(1, int(round((high - low) / step)))
+    return np.linspace(low, high, n + 1)
+
+
+def search_grid(compiled, launch_step, loop_step, samples, starts, rng, log):
+    """Best (objective, free-variable vector) at every grid point; returns arrays."""
+    p, lo, hi = compiled.params, compiled.lower, compiled.upper
+    days = grid_axis(lo[L.X_LAUNCH_DAY], hi[L.X_LAUNCH_DAY], launch_step)
+    loops = grid_axis(lo[L.X_LOOP_DAYS], hi[L.X_LOOP_DAYS], loop_step)
+    best_f = np.full((days.size, loops.size), np.inf)
+    best_y = np.zeros((days.size, loops.size, len(FREE_VARS)))
+    algo = bobyqa()
+    evals = 0
+    free = list(FREE_VARS)
+    start = time.perf_counter()
+    for i, day in enumerate(days):
+        for j, loop in enumerate(loops):
+            fixed = lo.copy()
+            fixed[L.X_LAUNCH_DAY], fixed[L.X_LOOP_DAYS] = day, loop
+            sub = FixedGridPoint(p, lo, hi, fixed)
+            xs = np.tile(fixed, (samples, 1))
+            xs[:, free] = sub.lower + rng.random((samples, len(free))) * (sub.upper - sub.lower)
+            f = trajectory.batch_fitness(xs, p)[:, 0]
+            evals += samples
+            for k in np.argsort(f)[:starts]:
+                y, fy, n = polish(sub, xs[k, free], algo)
+                evals += n
+                if fy < best_f[i, j]:
+                    best_f[i, j], best_y[i, j] = fy, y
+        log(f"    launch day {i + 1}/{days.size} done, {evals:,} evaluations, "
+            f"{time.perf_counter() - start:.0f} s, best so far {np.min(best_f):.6f}")
+    # Continuation: neighbours' answers as starts, so one unlucky point cannot hide a basin.
+    for i in range(days.size):
+        for j in range(loops.size):
+            fixed = lo.copy()
+            fixed[L.X_LAUNCH_DAY], fixed[L.X_LOOP_DAYS] = days[i], loops[j]
+            sub = FixedGridPoint(p, lo, hi, fixed)
+            for di, dj in ((-1, 0), (1, 0), (0, -1), (0, 1)):
+                a, b = i + di, j + dj
+                if 0 <= a < days.size and 0 <= b < loops.size and best_f[a, b] < best_f[i, j]:
+                    y, fy, n = polish(sub, best_y[a, b], algo)
+                    evals += n
+                    if fy < best_f[i, j]:
+                        best_f[i, j], best_y[i, j] = fy, y
+    log(f"    continuation sweep done, {evals:,} evaluations, "
+        f"{time.perf_counter() - start:.0f} s, best {np.min(best_f):.6f}")
+    return days, loops, best_f, best_y, evals
+
+
+def full_polish(compiled, days, loops, best_f, best_y, final, seed):
+    """Polish the best ``final`` grid points in all eight variables; the best (x, f, evals)."""
+    udp = LeveragingUDP.from_compiled(compiled)
+    order = np.argsort(best_f, axis=None)[:final]
+    best_x, best = None, np.inf
+    evals = 0
+    hopper = pg.algorithm(pg.mbh(bobyqa(2000), stop=10, perturb=0.005, seed=seed))
+    for flat in order:
+        i, j = np.unravel_index(flat, best_f.shape)
+        x = compiled.lower.copy()
+        x[L.X_LAUNCH_DAY], x[L.X_LOOP_DAYS] = days[i], loops[j]
+        x[list(FREE_VARS)] = best_y[i, j]
+        for algo in (bobyqa(), hopper):
+            x, f, n = polish(udp, x, algo)
+            evals += n
+        if f < best:
+            best_x, best = x, f
+    return best_x, best, evals
+
+
+def establish(name, path, args, log):
+    problem = load_problem(path)
+    compiled = problem.compile()
+    rng = np.random.default_rng(args.seed)
+    start = time.perf_counter()
+    days, loops, best_f, best_y, evals = search_grid(
+        compiled, args.launch_step_days, args.loop_step_days, args.samples, args.starts, rng, log)
+    x, f, n = full_polish(compiled, days, loops, best_f, best_y, args.final, args.seed)
+    evals += n
+    q = trajectory.details(x, compiled.params)
+    return {
+        "file": str(Path(path).resolve().relative_to(Path(__file__).resolve().parent.parent)),
+        "sha256": problem.sha256,
+        "goal": problem.values["goal"]["kind"],
+        "objective": f,
+        "objective_unit": "km/s" if problem.values["goal"]["kind"] != "weighted" else "weighted",
+        "total_dv_km_s": float(q[L.Q_TOTAL_DV]),
+        "vinf_gain_km_s": float(q[L.Q_GAIN]),
+        "penalty": float(q[L.Q_PENALTY]),
+        "feasible": bool(q[L.Q_OK] == 1.0 and q[L.Q_PENALTY] == 0.0),
+        "decision_vector": {"names": compiled.names, "values": [float(v) for v in x]},
+        "grid": {"launch_days": [float(days[0]), float(days[-1]), int(days.size)],
+                 "loop_days": [float(loops[0]), float(loops[-1]), int(loops.size)],
+                 "samples_per_point": args.samples, "polished_starts_per_point": args.starts,
+                 "final_full_polishes": args.final,
+                 "grid_best_objective": float(np.min(best_f))},
+        "evaluations": int(evals),
+        "wall_s": round(time.perf_counter() - start, 1),
+        "date": time.strftime("%Y-%m-%d"),
+    }
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--only", action="append", choices=sorted(REFERENCES),
+                    help="establish only this reference (repeatable)")
+    ap.add_argument("--launch-step-days", type=float, default=5.0)
+    ap.add_argument("--loop-step-days", type=float, default=5.0)
+    ap.add_argument("--samples", type=int, default=1024, help="random points per grid point")
+    ap.add_argument("--starts", type=int, default=3, help="polished starts per grid point")
+    ap.add_argument("--final", type=int, default=10, help="grid points polished in full")
+    ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--out", default=str(OUT), help="JSON file to update")
+    ap.add_argument("--smoke", action="store_true",
+                    help="a 2 x 2 grid, printed only (best_known.json untouched)")
+    args = ap.parse_args(argv)
+    if args.smoke:
+        args.launch_step_days, args.loop_step_days = 1000.0, 1000.0
+        args.samples, args.starts, args.final = 64, 1, 1
+        args.only = args.only or ["demo"]
+    print_header("best-known answers" + (" (smoke: tiny grid, not written)" if args.smoke
+                                         else ""))
+    numba.set_num_threads(1)  # the other core stays free for whoever shares the machine
+    out_path = Path(args.out)
+    known = json.loads(out_path.read_text()) if out_path.exists() else {}
+    for name in args.only or REFERENCES:
+        print(f"\n{name}: {REFERENCES[name]}")
+        entry = establish(name, REFERENCES[name], args, lambda s: print(s, flush=True))
+        print(f"  best-known objective {entry['objective']:.6f} (total DSM "
+              f"{entry['total_dv_km_s']:.6f} km/s, gain {entry['vinf_gain_km_s']:.6f} km/s, "
+              f"feasible {entry['feasible']}), {entry['evaluations']:,} evaluations, "
+              f"{entry['wall_s']} s")
+        print("  x = " + ", ".join(f"{n} {v:.6f}" for n, v in
+                                   zip(entry["decision_vector"]["names"],
+                                       entry["decision_vector"]["values"])))
+        if not args.smoke:
+            known[name] = entry
+            out_path.write_text(json.dumps(known, indent=2) + "\n")
+            print(f"  written to {out_path}")
+    print_footer()
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

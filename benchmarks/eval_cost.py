@@ -1,0 +1,264 @@
+"""Cost of one evaluation: the compiled floor, inside real runs, and a unit-aware baseline.
+
+On the demo problem, in one process:
+
+1. floor: the compiled fitness on a batch of random points drawn uniformly inside the
+   bounds (``trajectory.batch_fitness`` on one thread, and on every thread;
+   ``trajectory.fitness`` called once per point), plus the layers a search adds on top
+   of one call (the pygmo problem shell, ``pygmo.problem.fitness``);
+2. in-process algorithms: each single-objective algorithm's ``evolve`` on one
+   population in this process (per-individual calls from pygmo to Python to numba), and
+   pso_gen with pygmo batch evaluation (one call per generation to the numba batch);
+3. real ``leverage run`` processes: the demo (single objective) at its own settings and
+   on one island, and the multi-objective template ``problems/trade-front.toml`` when
+   ``leverage.fronts`` exists; evaluations per wall second per core from the run's own
+   numbers (``best.json`` run.evaluations and run.wall_time_s; ``convergence.csv``);
+4. the baseline: the same evaluation with poliastro's unit-aware objects
+   (``benchmarks/unit_aware_baseline.py``) on the same points; the DSM of both must
+   agree to 1 m/s.
+
+Cores used by a run are min(islands, cores) for process islands (each island a worker
+process) and all cores for a front run (numba-parallel batches in one process).
+
+Usage: python -m benchmarks.eval_cost [--points N] [--baseline-points N] [--smoke]
+"""
+import argparse
+import importlib.util
+import os
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numba
+import numpy as np
+import pygmo as pg
+
+from benchmarks.common import DEMO, ROOT, leverage_run, print_footer, print_header
+from leverage.core import layout as L
+from leverage.core import trajectory
+from leverage.problem import load_problem
+from leverage.search import make_algorithm
+from leverage.udp import LeveragingUDP
+
+FRONT_PROBLEM = ROOT / "problems" / "trade-front.toml"
+SINGLE_ALGORITHMS = ("sade", "de", "de1220", "pso", "cmaes")
+
+
+def random_points(compiled, n, seed=7):
+    rng = np.random.default_rng(seed)
+    return compiled.lower + rng.random((n, compiled.lower.size)) * (compiled.upper - compiled.lower)
+
+
+def best_of(repeats, func):
+    """Smallest wall time (s) of ``repeats`` calls of func (the least-disturbed one)."""
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        func()
+        times.append(time.perf_counter() - start)
+    return min(times)
+
+
+def measure_floor(compiled, xs, repeats):
+    """Microseconds per evaluation of the compiled fitness, several ways."""
+    p = compiled.params
+    n = len(xs)
+    trajectory.batch_fitness(xs[:4], p)  # load or compile before timing
+    trajectory.fitness(xs[0], p)
+    threads = numba.get_num_threads()
+    out = {}
+    numba.set_num_threads(1)
+    out["batch, 1 thread"] = best_of(repeats, lambda: trajectory.batch_fitness(xs, p)) / n * 1e6
+    numba.set_num_threads(threads)
+    wall = best_of(repeats, lambda: trajectory.batch_fitness(xs, p)) / n * 1e6
+    out[f"batch, {threads} threads (wall)"] = wall
+    out[f"batch, {threads} threads (per core)"] = wall * threads
+
+    def per_call():
+        for x in xs:
+            trajectory.fitness(x, p)
+    out["trajectory.fitness per call"] = best_of(repeats, per_call) / n * 1e6
+    udp = LeveragingUDP.from_compiled(compiled)
+
+    def udp_call():
+        for x in xs:
+            udp.fitness(x)
+    out["LeveragingUDP.fitness per call"] = best_of(repeats, udp_call) / n * 1e6
+    prob = pg.problem(udp)
+
+    def pg_call():
+        for x in xs:
+            prob.fitness(x)
+    out["pygmo.problem.fitness per call"] = best_of(repeats, pg_call) / n * 1e6
+    return out
+
+
+def measure_in_process(compiled, evaluations, population):
+    """us per evaluation of each algorithm's evolve in this process on one core."""
+    udp = LeveragingUDP.from_compiled(compiled)
+    threads = numba.get_num_threads()
+    numba.set_num_threads(1)
+    out = {}
+    gens = max(1, evaluations // population)
+    for name in SINGLE_ALGORITHMS:
+        algo = make_algorithm(name, gens, 1)
+        pop = pg.population(pg.problem(udp), population, seed=1)
+        before = pop.problem.get_fevals()
+        start = time.perf_counter()
+        pop = algo.evolve(pop)
+        wall = time.perf_counter() - start
+        out[f"{name} (per-individual calls)"] = wall / (pop.problem.get_fevals() - before) * 1e6
+    for pop_size in (population, 4 * population):
+        gens = max(1, evaluations // pop_size)
+        uda = pg.pso_gen(gen=gens, seed=1)
+        uda.set_bfe(pg.bfe())  # default bfe: the UDP's batch_fitness, one call per generation
+        algo = pg.algorithm(uda)
+        pop = pg.population(pg.problem(udp), pop_size, seed=1)
+        before = pop.problem.get_fevals()
+        start = time.perf_counter()
+        pop = algo.evolve(pop)
+        wall = time.perf_counter() - start
+        out[f"pso_gen + batch evaluation, population {pop_size}"] = (
+            wall / (pop.problem.get_fevals() - before) * 1e6)
+    numba.set_num_threads(threads)
+    return out
+
+
+def run_rates(label, problem, cores, *options):
+    """Evaluations per wall second per core of one real `leverage run`."""
+    with tempfile.TemporaryDirectory(prefix="leverage-bench-") as tmp:
+        res = leverage_run(problem, Path(tmp) / "out", *options)
+    best, log = res["best"], res["log"]
+    if best is None or "run" not in best:
+        print(f"  {label}: run failed (exit {res['returncode']}): {res['stderr'].strip()[-300:]}")
+        return None
+    evals = best["run"]["evaluations"]
+    wall = best["run"]["wall_time_s"]
+    out = {"label": label, "cores": cores, "evaluations": evals, "wall_s": wall,
+           "process_wall_s": res["process_wall_s"],
+           "us_per_eval_per_core": wall * cores / evals * 1e6}
+    # Steady state: from the end of the first evolution (which includes starting the
+    # worker processes) to the end of the last, from the convergence log.
+    evolutions = sorted({int(r["evolution"]) for r in log})
+    if len(evolutions) >= 2:
+        first = [r for r in log if int(r["evolution"]) == evolutions[0]]
+        last = [r for r in log if int(r["evolution"]) == evolutions[-1]]
+        d_evals = sum(r["evaluations"] for r in last) - sum(r["evaluations"] for r in first)
+        d_wall = last[0]["wall_time_s"] - first[0]["wall_time_s"]
+        if d_evals > 0:
+            out["steady_us_per_eval_per_core"] = d_wall * cores / d_evals * 1e6
+            out["first_evolution_s"] = first[0]["wall_time_s"]
+    return out
+
+
+def measure_baseline(problem, compiled, xs):
+    """us per evaluation of the unit-aware baseline, and the largest DSM difference."""
+    from benchmarks import unit_aware_baseline as baseline
+
+    setting = baseline.Setting(compiled, problem.body)
+    start = time.perf_counter()
+    for x in xs[:2]:
+        baseline.evaluate(x, setting)  # poliastro compiles its kernels on first use
+    first_use = time.perf_counter() - start
+    start = time.perf_counter()
+    results = [baseline.evaluate(x, setting) for x in xs]
+    wall = time.perf_counter() - start
+    diffs, obj_rel = [], []
+    for x, res in zip(xs, results):
+        q = trajectory.details(x, compiled.params)
+        f = trajectory.fitness(x, compiled.params)
+        if res is None or q[L.Q_OK] != 1.0:
+            continue
+        diffs.append(abs(q[L.Q_DSM] - res["dsm_kms"]))
+        obj_rel.append(abs(f[0] - res["objective"]) / max(1.0, abs(f[0])))
+    return {"us_per_eval": wall / len(xs) * 1e6, "first_use_s": first_use, "compared": len(diffs), "points": len(xs),
+            "max_dsm_diff_m_s": 1000 * max(diffs) if diffs else float("nan"),
+            "max_objective_rel_diff": max(obj_rel) if obj_rel else float("nan")}
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--points", type=int, default=20000, help="random points for the floor")
+    ap.add_argument("--baseline-points", type=int, default=300,
+                    help="points evaluated by the unit-aware baseline")
+    ap.add_argument("--in-process-evaluations", type=int, default=48000)
+    ap.add_argument("--repeats", type=int, default=5)
+    ap.add_argument("--smoke", action="store_true", help="tiny sizes: checks that it runs")
+    args = ap.parse_args(argv)
+    if args.smoke:
+        args.points, args.baseline_points, args.in_process_evaluations, args.repeats = 200, 3, 480, 1
+    print_header("evaluation cost" + (" (smoke: tiny sizes, figures meaningless)" if args.smoke
+                                      else ""))
+    problem = load_problem(DEMO)
+    compiled = problem.compile()
+    xs = random_points(compiled, args.points)
+    cores = os.cpu_count() or 1
+
+    print(f"\n1. floor: demo problem, {args.points} random points inside the bounds, "
+          f"best of {args.repeats}")
+    floor = measure_floor(compiled, xs, args.repeats)
+    for key, value in floor.items():
+        print(f"  {key:<40} {value:8.2f} us/evaluation")
+    floor_us = floor["batch, 1 thread"]
+
+    print(f"\n2. algorithms evolving one population in this process, 1 numba thread, "
+          f"{args.in_process_evaluations} evaluations each (random start population)")
+    for key, value in measure_in_process(compiled, args.in_process_evaluations, 24).items():
+        print(f"  {key:<48} {value:8.2f} us/evaluation  {value / floor_us:5.2f} x floor")
+
+    print("\n3. real `leverage run` processes (the run's own numbers)")
+    runs = []
+    islands = problem.values["search"]["islands"]
+    smoke_opts = ["--generations", "4"] if args.smoke else []
+    if not args.smoke:  # worker-process start-up alone would take the smoke's time
+        runs.append(run_rates(f"demo, its settings ({islands} islands)", DEMO,
+                              min(islands, cores)))
+    runs.append(run_rates("demo, --islands 1", DEMO, 1, "--islands", "1", *smoke_opts))
+    if importlib.util.find_spec("leverage.fronts") and FRONT_PROBLEM.exists():
+        runs.append(run_rates("trade-front (multi-objective, batch evaluation)", FRONT_PROBLEM,
+                              cores, *(["--generations", "4"] if args.smoke else [])))
+    else:
+        print("  multi-objective: skipped (leverage/fronts.py or problems/trade-front.toml "
+              "not present yet)")
+    for r in runs:
+        if r is None:
+            continue
+        line = (f"  {r['label']:<48} {r['evaluations']:>8,} evaluations in {r['wall_s']:.2f} s "
+                f"on {r['cores']} core(s): {r['us_per_eval_per_core']:6.2f} us/evaluation/core "
+                f"= {r['us_per_eval_per_core'] / floor_us:5.2f} x floor")
+        if "steady_us_per_eval_per_core" in r:
+            s = r["steady_us_per_eval_per_core"]
+            line += (f"; after the first evolution ({r['first_evolution_s']:.2f} s): "
+                     f"{s:6.2f} us = {s / floor_us:5.2f} x floor")
+        print(line)
+
+    print(f"\n4. unit-aware baseline (poliastro Orbit/propagate/izzo.lambert, astropy "
+          f"quantities) on the first {args.baseline_points} of the same points")
+    if args.smoke:
+        print("  skipped in smoke mode: poliastro compiles its (uncached) numba kernels on "
+              "first use in every process, about 20 s")
+        print_footer()
+        return 0
+    base = measure_baseline(problem, compiled, xs[:args.baseline_points])
+    per_call = floor["trajectory.fitness per call"]
+    print(f"  baseline: {base['us_per_eval']:.0f} us/evaluation, after {base['first_use_s']:.1f} s "
+          "for its first two evaluations (poliastro compiles its uncached kernels)")
+    print(f"  DSM agreement on {base['compared']}/{base['points']} points solved by both: "
+          f"largest difference {base['max_dsm_diff_m_s']:.4f} m/s "
+          f"({'within' if base['max_dsm_diff_m_s'] <= 1.0 else 'NOT within'} 1 m/s); "
+          f"largest relative objective difference {base['max_objective_rel_diff']:.2e}")
+    print(f"  speed-up: {base['us_per_eval'] / floor_us:,.0f} x (vs the floor), "
+          f"{base['us_per_eval'] / per_call:,.0f} x (vs one compiled call)", end="")
+    in_run = [r for r in runs[:1] if r is not None]
+    if in_run:
+        print(f", {base['us_per_eval'] / in_run[0]['us_per_eval_per_core']:,.0f} x "
+              f"(vs the cost per core in the demo run)")
+    else:
+        print()
+    print_footer()
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,115 @@
+"""How often the search finds the best-known design, and how fast.
+
+For each reference problem with an entry in ``benchmarks/best_known.json`` (see
+``benchmarks/best_known.py``) and each algorithm, run ``leverage run`` once per seed
+(1..N) at the problem's own [search] settings (the defaults unless overridden here)
+and count the runs whose final design is feasible with an objective within 1 m/s
+(0.001 in the objective's km/s) of the best-known one. Time to get there is read from
+the run's own convergence log: the wall time (from the start of the search) of the
+first evolution whose best objective is within the tolerance, or the whole run
+(search and polish) when only the polish got there.
+
+Usage: python -m benchmarks.search_quality [--problems demo,earth-3yr] [--algorithms sade,pso]
+       [--seeds 20] [--population N] [--generations N] [--islands N] [--smoke]
+"""
+import argparse
+import json
+import sys
+import tempfile
+from pathlib import Path
+
+from benchmarks.best_known import OUT as BEST_KNOWN, REFERENCES
+from benchmarks.common import leverage_run, median, print_footer, print_header
+from leverage.schema import ALGORITHMS
+
+TOLERANCE = 0.001  # objective units (km/s): 1 m/s
+
+
+def one_run(path, seed, algorithm, options, target):
+    with tempfile.TemporaryDirectory(prefix="leverage-quality-") as tmp:
+        res = leverage_run(path, Path(tmp) / "out", "--seed", seed, "--algorithm", algorithm,
+                           *options)
+    best = res["best"]
+    if best is None or "run" not in best:
+        return {"ok": False, "error": res["stderr"].strip()[-200:]}
+    objective = best["objective"][0]
+    objective = float("inf") if objective is None else float(objective)
+    hit = bool(best["feasible"]) and target is not None and objective <= target + TOLERANCE
+    reach = None
+    if target is not None:
+        for row in res["log"]:
+            if row["best_objective"] <= target + TOLERANCE:
+                reach = row["wall_time_s"]
+                break
+        if reach is None and hit:
+            reach = best["run"]["wall_time_s"]
+    return {"ok": True, "objective": objective, "feasible": bool(best["feasible"]), "hit": hit,
+            "reach_s": reach if hit else None, "wall_s": best["run"]["wall_time_s"],
+            "process_wall_s": res["process_wall_s"], "evaluations": best["run"]["evaluations"]}
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--problems", default=",".join(REFERENCES))
+    ap.add_argument("--algorithms", default=",".join(ALGORITHMS))
+    ap.add_argument("--seeds", type=int, default=20)
+    ap.add_argument("--population", type=int)
+    ap.add_argument("--generations", type=int)
+    ap.add_argument("--islands", type=int)
+    ap.add_argument("--smoke", action="store_true", help="tiny: demo, 2 seeds, 1 evolution")
+    args = ap.parse_args(argv)
+    options = []
+    if args.smoke:
+        args.problems, args.seeds = "demo", 2
+        args.algorithms = args.algorithms if "," not in args.algorithms else "sade"
+        args.generations, args.islands = args.generations or 50, args.islands or 1
+    for name in ("population", "generations", "islands"):
+        if getattr(args, name) is not None:
+            options += [f"--{name}", getattr(args, name)]
+    print_header("search quality" + (" (smoke: tiny sizes, figures meaningless)" if args.smoke
+                                     else ""))
+    known = json.loads(BEST_KNOWN.read_text()) if BEST_KNOWN.exists() else {}
+    print(f"settings: each problem's own [search] values"
+          + (f", overridden by {' '.join(map(str, options))}" if options else "")
+          + f"; seeds 1..{args.seeds}; hit = feasible and within {TOLERANCE * 1000:.0f} m/s "
+          "of the best-known objective")
+    summary = []
+    for problem in args.problems.split(","):
+        path = REFERENCES[problem]
+        entry = known.get(problem)
+        target = entry["objective"] if entry else None
+        print(f"\n{problem} ({path.name}): best-known objective "
+              + (f"{target:.6f}" if target is not None else "unknown (run benchmarks.best_known)"))
+        print(f"  {'algorithm':<9} {'hits':>6} {'median s to hit':>16} {'median run s':>13} "
+              f"{'median process s':>17} {'median evals':>13} {'worst miss m/s':>15}")
+        for algorithm in args.algorithms.split(","):
+            runs = [one_run(path, seed, algorithm, options, target)
+                    for seed in range(1, args.seeds + 1)]
+            good = [r for r in runs if r["ok"]]
+            hits = [r for r in good if r["hit"]]
+            misses = [1000 * (r["objective"] - target) for r in good if target is not None]
+            better = [m for m in misses if m < -1000 * TOLERANCE]
+            row = {"problem": problem, "algorithm": algorithm, "hits": len(hits),
+                   "runs": len(runs),
+                   "median_reach_s": median([r["reach_s"] for r in hits]),
+                   "median_wall_s": median([r["wall_s"] for r in good]),
+                   "median_process_s": median([r["process_wall_s"] for r in good]),
+                   "median_evaluations": median([r["evaluations"] for r in good]),
+                   "worst_miss_m_s": max(misses) if misses else float("nan")}
+            summary.append(row)
+            print(f"  {algorithm:<9} {len(hits):>3}/{len(runs):<2} {row['median_reach_s']:>16.2f} "
+                  f"{row['median_wall_s']:>13.2f} {row['median_process_s']:>17.2f} "
+                  f"{row['median_evaluations']:>13,.0f} {row['worst_miss_m_s']:>15.1f}",
+                  flush=True)
+            for r in runs:
+                if not r["ok"]:
+                    print(f"    a run failed: {r['error']}")
+            if better:
+                print(f"    note: {len(better)} run(s) beat the best-known answer by more than "
+                      f"1 m/s (up to {-min(better):.1f} m/s): rerun benchmarks.best_known denser")
+    print_footer()
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,50 @@
+"""The benchmark scripts still run: each one's ``--smoke`` mode, at a tiny size.
+
+No outside sources: these tests check only that every script in ``benchmarks/`` runs to
+the end, exits 0 and prints its sections; they assert nothing about timings (speed is
+reported by the benchmarks themselves, never tested).
+"""
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def smoke(module: str) -> str:
+    proc = subprocess.run([sys.executable, "-m", f"benchmarks.{module}", "--smoke"], cwd=ROOT,
+                          capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    assert "load average at end" in proc.stdout
+    return proc.stdout
+
+
+@pytest.mark.slow
+def test_eval_cost_smoke():
+    out = smoke("eval_cost")
+    assert "batch, 1 thread" in out
+    assert "demo, --islands 1" in out
+    assert "x floor" in out
+
+
+@pytest.mark.slow
+def test_best_known_smoke_does_not_write(tmp_path):
+    known = ROOT / "benchmarks" / "best_known.json"
+    before = known.read_bytes() if known.exists() else None
+    out = smoke("best_known")
+    assert "best-known objective" in out
+    assert (known.read_bytes() if known.exists() else None) == before
+
+
+@pytest.mark.slow
+def test_search_quality_smoke():
+    out = smoke("search_quality")
+    assert "sade" in out and "/2" in out
+
+
+@pytest.mark.slow
+def test_startup_smoke():
+    out = smoke("startup")
+    assert "to first evaluation" in out

@@ -168,3 +168,22 @@ def body_orbit(name: str, t_start: float, n: int = DEFAULT_SAMPLES,
         rs[k] = r
         vs[k] = v
     return Arc(f"body_{body.name.lower()}", f"{body.name} orbit", times, rs, vs)
+
+
+def target_orbit(record, n: int = DEFAULT_SAMPLES, mu=bodies.GM_SUN_KM3_S2) -> Arc | None:
+    """One period of the target's orbit, two-body from its state at arrival (if known).
+
+    Needs an ``arrival`` event with the target's velocity; exact for a small body on
+    fixed elements, a close stand-in for a planet over one period. None otherwise.
+    """
+    ev = event_states(record).get("arrival")
+    if ev is None or "v_target" not in ev:
+        return None
+    a, ecc, *_ = elements_from_state(mu, ev["r"], ev["v_target"])
+    if not (ecc < 1.0 and a > 0):
+        return None
+    period = 2.0 * math.pi * math.sqrt(a ** 3 / mu)
+    times = np.linspace(ev["t"], ev["t"] + period, n)
+    rs, vs = conic_states(mu, ev["t"], ev["r"], ev["v_target"], times)
+    name = record["problem"].get("target") or "target"
+    return Arc("target", f"{name} orbit", times, rs, vs)

@@ -9,12 +9,14 @@ design's DSM applied as an impulse at its epoch. Two cases:
   flyby epoch. The design starts and ends at that body's centre, where its point
   mass is singular, so its gravity is left out (as the patched-conic heliocentric
   legs leave it out); this isolates the pull of the Sun's motion and the other planets.
-* ``all planets``: every body including the launch/flyby body, from the epoch the
-  launch conic crosses the body's sphere of influence (Laplace radius
-  a (m/M_sun)^(2/5), e.g. Curtis, Orbital Mechanics for Engineering Students,
-  sec. 8.4) to the epoch the DSM-to-flyby conic crosses it again. At the start the
-  body-relative speed is raised to sqrt(v^2 + 2 GM/d), the speed on a departure
-  hyperbola at that distance, so the spacecraft escapes with the design's v-infinity.
+* ``all planets``: every body including the launch/flyby body, from the periapsis of
+  a departure hyperbola at the launch epoch (``PARKING_ALTITUDE_KM`` above the body,
+  outgoing asymptote = the design's launch v-infinity; ``departure_periapsis``) to
+  the epoch the DSM-to-flyby conic enters the body's sphere of influence (Laplace
+  radius a (m/M_sun)^(2/5), e.g. Curtis, Orbital Mechanics for Engineering Students,
+  sec. 8.4), where the comparison stops: the conic aims at the body's centre, which a
+  point mass cannot reach. The flyby v-infinity there comes from the body-relative
+  energy, v^2 - 2 GM/d.
 
 For each case the report gives the position and velocity differences from the
 conics at the DSM and at the end, and the DSM that would restore the end point in
@@ -30,10 +32,12 @@ from scipy.optimize import brentq
 
 from . import bodies
 from .arcs import event_states
+from .core.ephemeris import body_state
 from .core.kepler import propagate
 from .integrate import PointMassField, integrate_point_masses
 from .precise_ephemeris import PLANET_NAMES, ecliptic_to_equatorial, equatorial_to_ecliptic
 
+PARKING_ALTITUDE_KM = 200.0  # departure periapsis altitude: a low parking orbit (common practice)
 GRID_STEP_S = 43200.0      # planet table spacing (cubic Hermite; see leverage.integrate)
 RETARGET_TOL_KM = 1.0      # end-point miss at which the DSM re-targeting stops
 RETARGET_MAX_ITER = 8
@@ -108,6 +112,31 @@ def _retarget(field, frames, t_dsm, r_dsm_b, v_before_b, dsm_vec_ecl, t_end, r_t
         dsm = dsm - np.linalg.solve(jac, err)
 
 
+def departure_periapsis(mu, vinf_vec, rp):
+    """Body-relative periapsis state (km, km/s) of the departure hyperbola whose outgoing
+    asymptote is ``vinf_vec`` (km/s), periapsis radius rp (km), ecliptic axes.
+
+    e = 1 + rp v^2/mu and the asymptote's true anomaly nu = acos(-1/e) (e.g. Curtis,
+    sec. 2.7 and 8.8). The hyperbola's plane holds the asymptote and the part of
+    ecliptic north at right angles to it (x if the asymptote points north): the plane
+    is not part of a patched-conic design, and it moves the far path by about the
+    impact parameter only.
+    """
+    speed = float(np.linalg.norm(vinf_vec))
+    v_hat = vinf_vec / speed
+    north = np.array([0.0, 0.0, 1.0])
+    h_hat = north - (north @ v_hat) * v_hat
+    if np.linalg.norm(h_hat) < 1e-6:
+        h_hat = np.array([1.0, 0.0, 0.0]) - v_hat[0] * v_hat
+    h_hat /= np.linalg.norm(h_hat)
+    w_hat = np.cross(h_hat, v_hat)
+    ecc = 1.0 + rp * speed ** 2 / mu
+    nu = math.acos(-1.0 / ecc)
+    p_hat = math.cos(nu) * v_hat - math.sin(nu) * w_hat   # periapsis direction
+    q_hat = math.cos(nu) * w_hat + math.sin(nu) * v_hat   # velocity direction there
+    return rp * p_hat, math.sqrt(speed ** 2 + 2.0 * mu / rp) * q_hat
+
+
 def _crossing(frames, field, body, t0, r0, v0, t_lo, t_hi, radius):
     """Epoch in [t_lo, t_hi] where the conic from (t0, r0, v0) is ``radius`` from body."""
     def gap(t):
@@ -175,24 +204,20 @@ def check_point_masses(record, source, grid_step_s: float = GRID_STEP_S) -> dict
                             flyby["r"], flyby["v_in"], vinf_design_body))
     report["other_planets"] = case
 
-    # Case 2: all bodies, between the sphere-of-influence crossings.
+    # Case 2: all bodies, from a departure hyperbola's periapsis to the SOI entry.
     radius = soi_radius_km(body)
     mu_b = body.gm_km3_s2
-    t_exit = _crossing(frames, field, name, launch["t"], launch["r"], launch["v"],
-                       launch["t"], dsm["t"], radius)
     t_entry = _crossing(frames, field, name, dsm["t"], dsm["r"], dsm["v_after"],
                         dsm["t"], flyby["t"], radius)
-    r_x, v_x = _conic(launch["t"], launch["r"], launch["v"], t_exit)
-    rxb, vxb = frames.to_bary(t_exit, r_x, v_x)
-    rb, vb = field.state(name, t_exit)
-    v_rel = vxb - vb
-    speed = float(np.linalg.norm(v_rel))
-    dist = float(np.linalg.norm(rxb - rb))
-    vxb = vb + v_rel * math.sqrt(speed ** 2 + 2 * mu_b / dist) / speed
+    rm, vm = body_state(body.ephemeris_array(), launch["t"])
+    rp = body.equatorial_radius_km + PARKING_ALTITUDE_KM
+    r_rel, v_rel = departure_periapsis(mu_b, launch["v"] - vm, rp)
+    rb, vb = field.state(name, launch["t"])
+    r0b = rb + ecliptic_to_equatorial(r_rel[None])[0]
+    v0b = vb + ecliptic_to_equatorial(v_rel[None])[0]
     r_n, v_n = _conic(dsm["t"], dsm["r"], dsm["v_after"], t_entry)
-    case = {"from": "sphere-of-influence exit", "to": "sphere-of-influence entry",
-            "soi_radius_km": radius,
-            "soi_exit_days_after_launch": (t_exit - launch["t"]) / 86400.0,
+    case = {"from": f"departure periapsis ({PARKING_ALTITUDE_KM:g} km altitude)",
+            "to": "sphere-of-influence entry", "soi_radius_km": radius,
             "soi_entry_days_before_flyby": (flyby["t"] - t_entry) / 86400.0}
 
     def vinf_energy(r_b, v_b):
@@ -201,7 +226,7 @@ def check_point_masses(record, source, grid_step_s: float = GRID_STEP_S) -> dict
         rel_v = float(np.linalg.norm(v_b - vb_e))
         return math.sqrt(max(0.0, rel_v ** 2 - 2 * mu_b / float(np.linalg.norm(r_b - rb_e))))
 
-    case.update(_leg_report(frames, field, ev, t_exit, rxb, vxb, t_entry, r_n, v_n,
+    case.update(_leg_report(frames, field, ev, launch["t"], r0b, v0b, t_entry, r_n, v_n,
                             vinf_energy))
     report["all_planets"] = case
     return report

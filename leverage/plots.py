@@ -28,7 +28,7 @@ from matplotlib import dates as mdates
 from matplotlib.figure import Figure
 
 from . import bodies, times
-from .arcs import body_orbit, design_arcs, event_states
+from .arcs import body_orbit, design_arcs, event_states, target_orbit
 from .result import as_float
 
 AU_KM = bodies.AU_KM
@@ -149,6 +149,11 @@ def trajectory(record, folder) -> Picture:
         (artists["body orbit"],) = top.plot(orbit.r_km[:, 0] / AU_KM, orbit.r_km[:, 1] / AU_KM,
                                             ls="--", lw=1.0, color=COLOURS["body"],
                                             label=f"{orbit.label} (mean elements)")
+        target = target_orbit(record)
+        if target is not None:
+            (artists["target orbit"],) = top.plot(target.r_km[:, 0] / AU_KM,
+                                                  target.r_km[:, 1] / AU_KM, ls=":", lw=1.2,
+                                                  color=COLOURS["target"], label=target.label)
         artists["sun"] = top.scatter([0.0], [0.0], s=110, color=COLOURS["sun"], zorder=3,
                                      edgecolor="#a07800", label="Sun")
         horizontal, vertical, _ = side_axes(record)
@@ -248,21 +253,24 @@ def convergence(record, folder) -> Picture | None:
             mine = [r for r in rows if r["island"] == island]
             x = np.array([_float(r["evaluations"]) for r in mine])
             y = np.array([_float(r["best_objective"]) for r in mine])
-            (artists[f"island {island}"],) = axes[0].plot(x, y, label=f"island {island}", **look)
+            label = f"island {island}" if island.isdigit() else island
+            (artists[f"island {island}"],) = axes[0].plot(x, y, label=label, **look)
             if has_hv:
                 hv = np.array([_float(r["hypervolume"]) for r in mine])
                 (artists[f"hypervolume {island}"],) = axes[1].plot(x, hv, **look)
+        several = len(record.get("objective") or []) > 1
         final = as_float(record["objective"][0]) if record.get("objective") else math.nan
-        if math.isfinite(final):
+        if math.isfinite(final) and not several:
             axes[0].axhline(final, color="#555555", lw=0.9, ls=":",
                             label=f"after polish: {final:.6g}")
-        axes[0].set_ylabel("best objective (lower is better)")
+        axes[0].set_ylabel("lowest first objective" if several
+                           else "best objective (lower is better)")
         axes[0].set_title(f"{record['problem']['name']}: search progress "
                           f"(goal {record['problem']['goal']}, {record['search']['algorithm']})")
         axes[0].legend()
         if has_hv:
             axes[1].set_ylabel("hypervolume of the front")
-        axes[-1].set_xlabel("objective evaluations on the island")
+        axes[-1].set_xlabel("objective evaluations")
         fig.subplots_adjust(left=0.12, right=0.97, bottom=0.12 if not has_hv else 0.09,
                             top=0.92, hspace=0.12)
     return Picture(_save(fig, folder / "convergence.png"), artists)
@@ -271,7 +279,11 @@ def convergence(record, folder) -> Picture | None:
 # ------------------------------------------------------------------ trade front
 
 def _column(names, *wanted, exclude=()):
-    """First column whose name contains every word of one of ``wanted`` (in order)."""
+    """Column named exactly like one of ``wanted`` (spaces as underscores), else the
+    first whose name contains every word of one of them (tried in order)."""
+    for words in wanted:
+        if words.replace(" ", "_") in names:
+            return words.replace(" ", "_")
     for words in wanted:
         for name in names:
             low = name.lower()
@@ -308,9 +320,11 @@ def front(record, folder) -> Picture | None:
     if not rows:
         return None
     names = list(rows[0])
-    c_dsm = _column(names, "dsm km", "dsm", "total_dv")
-    c_gain = _column(names, "gain km", "gain")
-    c_inc = _column(names, "inclination deg", "inclination")
+    # front.csv as written by the front search: one row per member, every derived
+    # quantity in a column named <quantity>_<unit>, and a 0/1 "knee" column.
+    c_dsm = _column(names, "dsm km s", "dsm km", "total dv km s")
+    c_gain = _column(names, "vinf gain km s", "gain km")
+    c_inc = _column(names, "outgoing inclination deg", "inclination deg")
     if c_dsm is None or c_gain is None:
         return None
     dsm = np.array([_float(r[c_dsm]) for r in rows])
@@ -340,9 +354,12 @@ def front(record, folder) -> Picture | None:
             artists["front"] = ax.scatter(dsm[ok], gain[ok], color="#2b6cb0", s=28, zorder=2)
         artists["knee"] = ax.scatter([dsm[knee]], [gain[knee]], s=170, facecolor="none",
                                      edgecolor="#c53030", lw=1.8, zorder=3)
-        ax.annotate(f"knee: {dsm[knee]:.3f} km/s for {gain[knee]:.3f} km/s",
-                    (dsm[knee], gain[knee]), xytext=(12, -16), textcoords="offset points",
-                    fontsize=8.5, color="#c53030")
+        # Lower right is empty on any front of a minimised DSM against a maximised gain.
+        ax.annotate(f"knee: DSM {dsm[knee]:.3f} km/s, gain {gain[knee]:.3f} km/s",
+                    (dsm[knee], gain[knee]), xytext=(0.97, 0.06), textcoords="axes fraction",
+                    ha="right", fontsize=8.5, color="#c53030",
+                    arrowprops=dict(arrowstyle="-", color="#c53030", lw=0.8,
+                                    shrinkA=2, shrinkB=7))
         ax.set_xlabel("DSM (km/s)" if "dsm" in c_dsm.lower() else f"{c_dsm} (km/s)")
         ax.set_ylabel("v-infinity gain (km/s)")
         ax.set_title(f"{record['problem']['name']}: trade front ({int(ok.sum())} designs)")

@@ -36,9 +36,10 @@ COVERS = [
     "would restore the flyby point in that model",
 ]
 DOES_NOT_COVER = [
-    "the flyby body's gravity close to it: inside its sphere of influence the departure "
-    "and flyby hyperbolae are not integrated (patched conics leave the body's gravity out "
-    "of the heliocentric legs; the 'all planets' case adds it only outside that sphere)",
+    "the return flyby itself: the 'all planets' case stops where the conic enters the "
+    "body's sphere of influence (patched conics leave the body's gravity out of the "
+    "heliocentric legs; the departure hyperbola's plane, not part of the design, is "
+    "assumed)",
     "the Moon and other satellites, asteroids, relativity, and the bodies' non-spherical "
     "gravity (J2 and higher) during the flyby",
     "finite burns, burn execution errors, navigation and targeting errors",
@@ -205,10 +206,9 @@ def _ephemeris_lines(eph) -> list:
 def _case_lines(title, case) -> list:
     lines = [f"  {title}: {case['from']} to {case['to']}"]
     if "soi_radius_km" in case:
-        lines.append(f"    sphere of influence {_num(case['soi_radius_km'], 0)} km: left "
-                     f"{_num(case['soi_exit_days_after_launch'], 2)} days after launch, "
-                     f"re-entered {_num(case['soi_entry_days_before_flyby'], 2)} days before "
-                     f"the flyby")
+        lines.append(f"    sphere of influence {_num(case['soi_radius_km'], 0)} km, entered "
+                     f"{_num(case['soi_entry_days_before_flyby'], 2)} days before the flyby "
+                     "on the conic")
     lines += [
         f"    at the DSM   position differs by {_num(case['dsm_position_difference_km'], 0):>12} km,"
         f" velocity by {_num(case['dsm_velocity_difference_m_s'], 2)} m/s",

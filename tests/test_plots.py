@@ -1,0 +1,190 @@
+"""Pictures of a result folder (leverage.plots): files written, valid PNGs of sensible
+size, and the plotted data equal to the result's data.
+
+Outside sources: the PNG file signature and IHDR chunk layout (PNG specification,
+W3C/ISO 15948, sections 5.2 and 11.2.2). The knee definition checked (largest
+distance from the line joining a front's ends, after scaling) is common practice.
+Fixtures: a real small run of the (invented) demo problem; front and sweep tables
+are written here with the columns the front search and the sweep write.
+"""
+import csv
+import shutil
+import struct
+
+import numpy as np
+import pytest
+
+from leverage import bodies, plots
+from leverage.arcs import design_arcs, event_states
+from leverage.result import read_json
+
+AU = bodies.AU_KM
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
+
+
+def png_size(path):
+    """(width, height) from the IHDR chunk, after checking the PNG signature."""
+    data = path.read_bytes()
+    assert data[:8] == PNG_SIGNATURE, f"{path.name} is not a PNG"
+    assert data[12:16] == b"IHDR"
+    return struct.unpack(">II", data[16:24])
+
+
+def assert_sensible_png(path):
+    width, height = png_size(path)
+    assert 500 <= width <= 3000 and 300 <= height <= 2000, (width, height)
+    assert path.stat().st_size > 15_000  # a blank canvas of that size compresses far smaller
+
+
+@pytest.fixture(scope="module")
+def folder(demo_result, tmp_path_factory):
+    """A private copy of the demo result (pictures are rewritten here)."""
+    dest = tmp_path_factory.mktemp("plots") / "run"
+    shutil.copytree(demo_result, dest)
+    return dest
+
+
+@pytest.fixture(scope="module")
+def record(folder):
+    return read_json(folder / "best.json")
+
+
+def test_a_run_writes_its_pictures(demo_result):
+    for name in ("trajectory.png", "convergence.png"):
+        assert_sensible_png(demo_result / name)
+    assert not (demo_result / "front.png").exists()  # no front.csv in a one-objective run
+
+
+def test_trajectory_draws_the_records_arcs_and_events(folder, record):
+    pic = plots.trajectory(record, folder)
+    assert pic.path == folder / "trajectory.png"
+    assert_sensible_png(pic.path)
+    horizontal, vertical, _ = plots.side_axes(record)
+    for arc in design_arcs(record):
+        line = pic.artists[arc.key]
+        assert np.allclose(line.get_xdata(), arc.r_km[:, 0] / AU)
+        assert np.allclose(line.get_ydata(), arc.r_km[:, 1] / AU)
+        side = pic.artists[f"side {arc.key}"]
+        assert np.allclose(side.get_xdata(), arc.r_km @ horizontal / AU)
+        assert np.allclose(side.get_ydata(), arc.r_km[:, 2] / AU)
+    for name, ev in event_states(record).items():
+        marker = pic.artists[f"event {name}"]
+        assert np.allclose(marker.get_offsets()[0], ev["r"][:2] / AU)
+    assert np.allclose(pic.artists["sun"].get_offsets()[0], [0.0, 0.0])
+
+
+def test_side_view_looks_across_the_outgoing_node_line(record):
+    horizontal, vertical, looking = plots.side_axes(record)
+    ev = event_states(record)
+    h = np.cross(ev["flyby"]["r"], ev["flyby"]["v_out"])
+    # the node line is in the ecliptic and in the outgoing orbit plane
+    assert abs(horizontal[2]) < 1e-12 and abs(horizontal @ h) < 1e-9 * np.linalg.norm(h)
+    assert np.allclose(vertical, [0, 0, 1])
+    assert abs(looking @ horizontal) < 1e-12 and abs(looking[2]) < 1e-12
+
+
+def test_convergence_draws_the_log(folder, record):
+    pic = plots.convergence(record, folder)
+    assert_sensible_png(pic.path)
+    with open(folder / "convergence.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    for island in {r["island"] for r in rows}:
+        mine = [r for r in rows if r["island"] == island]
+        line = pic.artists[f"island {island}"]
+        assert np.allclose(line.get_xdata(), [float(r["evaluations"]) for r in mine])
+        assert np.allclose(line.get_ydata(), [float(r["best_objective"]) for r in mine])
+
+
+def test_convergence_adds_the_hypervolume_when_logged(folder, record, tmp_path):
+    dest = tmp_path / "run"
+    shutil.copytree(folder, dest)
+    rows = [["evolution", "island", "evaluations", "best_objective", "hypervolume"],
+            [1, 0, 100, 2.0, 0.5], [2, 0, 200, 1.5, 0.8], [1, 1, 100, 2.5, 0.4],
+            [2, 1, 200, 1.2, 0.9]]
+    with open(dest / "convergence.csv", "w", newline="") as fh:
+        csv.writer(fh).writerows(rows)
+    pic = plots.convergence(record, dest)
+    assert_sensible_png(pic.path)
+    assert list(pic.artists["hypervolume 1"].get_ydata()) == [0.4, 0.9]
+    assert list(pic.artists["island 0"].get_ydata()) == [2.0, 1.5]
+
+
+def test_knee_of_an_l_shaped_front_is_its_corner():
+    dsm = np.array([0.0, 0.1, 1.0, 2.0])
+    gain = np.array([0.0, 1.9, 1.95, 2.0])
+    assert plots.knee_index(dsm, gain) == 1
+    # order does not matter
+    assert plots.knee_index(dsm[::-1], gain[::-1]) == 2
+
+
+def test_front_draws_front_csv_with_its_knee(folder, record, tmp_path):
+    dest = tmp_path / "run"
+    shutil.copytree(folder, dest)
+    dsm = np.linspace(0.05, 1.5, 25)
+    gain = 2.8 * (1 - np.exp(-dsm / 0.4))
+    inc = 3 + 2 * dsm
+    knee = 7
+    with open(dest / "front.csv", "w", newline="") as fh:
+        out = csv.writer(fh)
+        # column names as the front search writes them (derived quantity + unit)
+        out.writerow(["member", "knee", "objective_total_dv_km_s", "dsm_km_s",
+                      "dsm_radial_km_s", "vinf_gain_km_s", "outgoing_inclination_deg"])
+        for k in range(dsm.size):
+            out.writerow([k, int(k == knee), dsm[k], dsm[k], 0.1, gain[k], inc[k]])
+    pic = plots.front(record, dest)
+    assert pic.path.name == "front.png"
+    assert_sensible_png(pic.path)
+    scatter = pic.artists["front"]
+    assert np.allclose(scatter.get_offsets(), np.column_stack([dsm, gain]))
+    assert np.allclose(scatter.get_array(), inc)
+    assert np.allclose(pic.artists["knee"].get_offsets()[0], [dsm[knee], gain[knee]])
+    assert plots.front(record, folder) is None  # no front.csv, no picture
+
+
+@pytest.mark.slow
+def test_front_reads_a_real_front_search_table(tmp_path, problems_dir):
+    """Small real run of the trade-front template: its front.csv gives a front picture."""
+    from leverage.cli import main
+
+    out = tmp_path / "front"
+    code = main(["run", str(problems_dir / "trade-front.toml"), "--out", str(out),
+                 "--generations", "50", "--islands", "1", "--quiet"])
+    assert code in (0, 3)
+    with open(out / "front.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    pic = plots.front(read_json(out / "best.json"), out)
+    assert_sensible_png(pic.path)
+    assert np.allclose(pic.artists["front"].get_offsets()[:, 0],
+                       [float(r["dsm_km_s"]) for r in rows])
+    assert np.allclose(pic.artists["front"].get_offsets()[:, 1],
+                       [float(r["vinf_gain_km_s"]) for r in rows])
+
+
+def test_launch_window_draws_the_sweep_table(folder, record, tmp_path):
+    dest = tmp_path / "run"
+    shutil.copytree(folder, dest)
+    dates = ["2031-01-10T04:00:00", "2031-02-10T00:00:00", "", "2031-04-12T12:00:00"]
+    objective = [1.2, 0.9, "", 1.1]
+    feasible = [1, 1, "", 0]
+    with open(dest / "sweep.csv", "w", newline="") as fh:
+        out = csv.writer(fh)
+        out.writerow(["slice", "start_utc", "end_utc", "best_objective", "feasible",
+                      "launch_utc"])
+        for k in range(4):
+            out.writerow([k + 1, f"2031-0{k + 1}-01T00:00:00", f"2031-0{k + 2}-01T00:00:00",
+                          objective[k], feasible[k], dates[k]])
+    pic = plots.launch_window(record, dest)
+    assert_sensible_png(pic.path)
+    line = pic.artists["scan"]
+    assert list(line.get_ydata()) == [1.2, 0.9, 1.1]  # the unfinished slice is left out
+    assert [d.strftime("%Y-%m-%d") for d in line.get_xdata()] == [
+        "2031-01-10", "2031-02-10", "2031-04-12"]
+    assert len(pic.artists["infeasible"].get_offsets()) == 1
+    # the best feasible slice is ringed
+    assert pic.artists["best"].get_offsets()[0][1] == 0.9
+    assert plots.launch_window(record, folder) is None
+
+
+def test_all_pictures_skips_what_has_no_data(folder, record):
+    names = [p.path.name for p in plots.all_pictures(record, folder)]
+    assert names == ["trajectory.png", "convergence.png"]

@@ -1,0 +1,83 @@
+"""leverage show with several result folders (leverage.compare, leverage/cli/show.py).
+
+No outside numbers are involved: the table must repeat each record's own values. The
+fixture is a real small run of the (invented) demo problem; a second and third
+folder are copies of it with one problem-file setting and some record fields changed.
+"""
+import json
+import shutil
+
+import pytest
+
+from leverage import compare
+from leverage.cli import main
+from leverage.result import read_json
+from leverage.summary import render as summary_render
+
+
+@pytest.fixture(scope="module")
+def folders(demo_result, tmp_path_factory):
+    root = tmp_path_factory.mktemp("show")
+    a = root / "baseline"
+    shutil.copytree(demo_result, a)
+    b = root / "higher-flyby"
+    shutil.copytree(demo_result, b)
+    text = (b / "problem.toml").read_text()
+    (b / "problem.toml").write_text(text.replace("min_altitude_km = 300.0",
+                                                 "min_altitude_km = 1000.0"))
+    record = read_json(b / "best.json")
+    record["margins"]["min_flyby_altitude"]["margin"] = -12.5
+    record["margins"]["min_flyby_altitude"]["holds"] = False
+    record["feasible"] = False
+    record["run"]["evaluations"] = 123456
+    (b / "best.json").write_text(json.dumps(record))
+    return a, b
+
+
+def _table(capsys, *paths):
+    assert main(["show", *map(str, paths)]) == 0
+    return capsys.readouterr().out
+
+
+def _row(text, label):
+    return next(ln for ln in text.splitlines() if ln.startswith(label))
+
+
+def test_several_folders_side_by_side(folders, capsys):
+    a, b = folders
+    text = _table(capsys, a, b)
+    ra, rb = read_json(a / "best.json"), read_json(b / "best.json")
+    assert f"A = {a}" in text and f"B = {b}" in text
+    assert "CAUTION" in text
+    dsm = _row(text, "DSM (km/s)").split()[-2:]
+    assert dsm == [f"{ra['derived']['dsm']['value']:.4f}", f"{rb['derived']['dsm']['value']:.4f}"]
+    assert _row(text, "goal").split()[-2:] == [ra["problem"]["goal"]] * 2
+    assert _row(text, "feasible").split()[-2:] == ["yes", "NO"]
+    assert _row(text, "evaluations").split()[-1] == "123,456"
+    altitude = _row(text, "  min_flyby_altitude")
+    assert altitude.endswith("-12.5000 !")
+    wall = _row(text, "wall time (s)").split()[-2]
+    assert float(wall) == pytest.approx(ra["run"]["wall_time_s"], abs=0.05)
+    # the problem-file setting that differs is named with both values
+    diff = _row(text, "  flyby.min_altitude_km").split()
+    assert diff[-2:] == ["300.0", "1000.0"]
+
+
+def test_one_folder_keeps_the_full_summary(folders, capsys):
+    a, _ = folders
+    text = _table(capsys, a)
+    assert text.strip() == summary_render(read_json(a / "best.json")).strip()
+
+
+def test_same_problem_files_say_so(folders):
+    a, _ = folders
+    assert compare.setting_differences([a, a]) == []
+    text = compare.render([str(a), str(a)], [read_json(a / "best.json")] * 2)
+    assert "no setting differs" in text
+
+
+def test_a_folder_without_best_json_is_a_one_line_error(folders, tmp_path, capsys):
+    a, _ = folders
+    assert main(["show", str(a), str(tmp_path)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "no best.json here" in err and len(err.splitlines()) == 1

@@ -19,7 +19,7 @@ state) under a small style of our own.
 import csv
 import math
 from dataclasses import dataclass, field
-from datetime import datetime, timedelta
+from datetime import datetime
 from pathlib import Path
 
 import matplotlib

@@ -144,9 +144,9 @@ def _num(value, digits=3):
 def _pair_line(label, item, unit, scale=1.0, digits=3, change_unit=None, change_scale=1.0,
                change_digits=1):
     change_unit = change_unit or unit
+    change = f"{item['change'] * change_scale:+,.{change_digits}f} {change_unit}".rstrip()
     return (f"  {label:<34}{_num(item['design'] * scale, digits):>14} -> "
-            f"{_num(item['check'] * scale, digits):>14} {unit:<9}"
-            f"(change {item['change'] * change_scale:+,.{change_digits}f} {change_unit})")
+            f"{_num(item['check'] * scale, digits):>14} {unit:<9}(change {change})")
 
 
 def _ephemeris_lines(eph) -> list:
@@ -210,10 +210,12 @@ def _case_lines(title, case) -> list:
                      f"{_num(case['soi_entry_days_before_flyby'], 2)} days before the flyby "
                      "on the conic")
     lines += [
-        f"    at the DSM   position differs by {_num(case['dsm_position_difference_km'], 0):>12} km,"
-        f" velocity by {_num(case['dsm_velocity_difference_m_s'], 2)} m/s",
-        f"    at the end   position differs by {_num(case['end_position_difference_km'], 0):>12} km,"
-        f" velocity by {_num(case['end_velocity_difference_m_s'], 2)} m/s",
+        f"    at the DSM   position differs by "
+        f"{_num(case['dsm_position_difference_km'], 0):>12} km, velocity by "
+        f"{_num(case['dsm_velocity_difference_m_s'], 2)} m/s",
+        f"    at the end   position differs by "
+        f"{_num(case['end_position_difference_km'], 0):>12} km, velocity by "
+        f"{_num(case['end_velocity_difference_m_s'], 2)} m/s",
         f"    DSM to restore the end point: {_num(case['retargeted_dsm_km_s']['check'], 4)} km/s "
         f"(design {_num(case['retargeted_dsm_km_s']['design'], 4)}; magnitude "
         f"{case['retargeted_dsm_km_s']['change'] * 1e3:+,.1f} m/s, vector change "
@@ -234,10 +236,12 @@ def render(report) -> str:
     for eph in report["ephemeris"]:
         lines += _ephemeris_lines(eph) + [""]
     tb = report["two_body"]
-    lines.append(f"Conic arcs integrated numerically, Sun only ({tb['method']}, rtol {tb['rtol']:g})")
+    lines.append(f"Conic arcs integrated numerically, Sun only ({tb['method']}, "
+                 f"rtol {tb['rtol']:g})")
     for row in tb["arcs"]:
         lines.append(f"  {row['arc']:<18} {row['days']:8.1f} days  mismatch at {row['end']}: "
-                     f"{row['position_mismatch_km']:.3g} km, {row['velocity_mismatch_m_s']:.3g} m/s")
+                     f"{row['position_mismatch_km']:.3g} km, "
+                     f"{row['velocity_mismatch_m_s']:.3g} m/s")
     pm = report["point_masses"]
     lines += ["", f"Sun and planets as point masses ({', '.join(pm['bodies'])}; positions from "
                   f"{pm['source']})",
@@ -278,6 +282,9 @@ def headline(report) -> str:
     if "dsm_km_s" in eph:
         parts.append(f"outside ephemeris moves the DSM {eph['dsm_km_s']['change'] * 1e3:+.1f} m/s "
                      f"and flyby v-inf {eph['flyby_vinf_in_km_s']['change'] * 1e3:+.1f} m/s")
+    broken = [row["limit"] for row in eph.get("limits", []) if not row["holds"]]
+    if broken:
+        parts.append(f"with it {', '.join(broken)} no longer holds")
     parts.append(f"point masses put the spacecraft "
                  f"{pm['other_planets']['end_position_difference_km']:,.0f} km from the conic "
                  f"at the flyby epoch (without {pm['other_planets']['left_out']}), "

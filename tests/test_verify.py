@@ -15,7 +15,6 @@ Outside sources:
   accuracy, from memory): bounds below are generous multiples of these.
 The fixture is a real small run of the (invented) demo problem.
 """
-import io
 import json
 import math
 import shutil

@@ -339,7 +339,8 @@ def compile_problem(problem: Problem) -> CompiledProblem:
     p[L.P_REQ_INC_RAD] = math.radians(goal["min_outgoing_inclination_deg"])
     p[L.P_REQ_APHELION_KM] = goal["min_outgoing_aphelion_au"] * bodies.AU_KM
     kind = goal["kind"]
-    p[L.P_W_DSM] = {"min_dsm": 1.0, "max_gain": 0.0}.get(kind, goal["dsm_weight"] or 1.0)
+    p[L.P_W_DSM] = {"min_dsm": 1.0, "max_gain": 0.0}.get(
+        kind, goal["dsm_weight"] if goal["dsm_weight"] is not None else 1.0)  # 0 is a weight
     p[L.P_W_GAIN] = 0.0 if kind == "min_dsm" else (goal["gain_weight"] if goal["gain_weight"]
                                                    is not None else 1.0)
     p[L.P_W_INC] = 0.0 if kind == "min_dsm" else goal["inclination_weight_per_deg"]

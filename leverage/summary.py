@@ -75,9 +75,9 @@ def render(record) -> str:
                      f" (reference {', '.join(_fmt(v, 3) for v in front['reference_point'])});"
                      f" below: its knee point; all members in {front['file']}")
         if as_float(front.get("knee_distance")) < 0.02:
-            lines.append("          the front is nearly straight (knee distance "
-                         f"{_fmt(front['knee_distance'], 4)} of its scaled span): no member "
-                         "stands out; choose from front.csv")
+            lines.append("          no member stands out as a knee (knee distance "
+                         f"{_fmt(front['knee_distance'], 4)} of the front's scaled span: it "
+                         "does not bulge toward the ideal point); choose from front.csv")
     feasible = "yes" if record["feasible"] else "NO (see margins)"
     objective = ", ".join(_fmt(v, 6) for v in record["objective"])
     lines += [f"objective {objective}    feasible: {feasible}", "",

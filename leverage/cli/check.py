@@ -1,15 +1,19 @@
-"""leverage check PROBLEM: validate, list the decision variables, sample a few points."""
+"""leverage check PROBLEM: validate, list the decision variables, sample a few points,
+and screen whether the goal is reachable at all (``leverage.screen``)."""
 import numpy as np
 
 from ..core import layout as L
 from ..problem import load_problem
+from ..screen import screen
 from ..udp import LeveragingUDP
 
 
 def add_parser(sub):
     p = sub.add_parser("check", help="validate a problem file and show its scales",
                        description="Validate PROBLEM, print the decision variables with bounds "
-                                   "and units, and evaluate a few random points.")
+                                   "and units, evaluate a few random points, and estimate "
+                                   "whether the goal is reachable with the launch C3 and DSM "
+                                   "budget (Tisserand's parameter, turn limit).")
     p.add_argument("problem", help="problem file (TOML)")
     p.add_argument("--samples", type=int, default=5, help="random points to evaluate (default 5)")
     p.add_argument("--seed", type=int, default=0, help="seed of the random points")
@@ -37,6 +41,7 @@ def report(problem, samples: int, seed: int) -> str:
             continue
         lines.append(f"  {f[0]:>12.4g}{q[L.Q_C3]:>11.3f}{q[L.Q_DSM]:>10.3f}{q[L.Q_VINF_IN]:>13.3f}"
                      f"{q[L.Q_ALT]:>10.0f}{q[L.Q_PENALTY]:>10.3g}")
+    lines += [""] + screen(problem).lines()
     return "\n".join(lines)
 
 

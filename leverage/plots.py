@@ -33,7 +33,7 @@ from .result import as_float
 
 AU_KM = bodies.AU_KM
 DPI = 120
-FOOTER = "Preliminary patched-conic design: verify before any use (see summary.txt)."
+FOOTER = "Preliminary patched-conic design: verify it before any flight use."
 
 STYLE = {
     "font.size": 9.5,
@@ -263,6 +263,13 @@ def convergence(record, folder) -> Picture | None:
         if math.isfinite(final) and not several:
             axes[0].axhline(final, color="#555555", lw=0.9, ls=":",
                             label=f"after polish: {final:.6g}")
+        axes[-1].set_xlim(left=0)
+        per_island = min(sum(r["island"] == i for r in rows) for i in islands)
+        if per_island < 3:
+            axes[0].text(0.02, 0.5, f"{per_island} log row(s) per island: the log gets one "
+                         "row per island after each migration interval of "
+                         f"{rows[0].get('generations', '?')} generations",
+                         transform=axes[0].transAxes, fontsize=8, color="#777777")
         axes[0].set_ylabel("lowest first objective" if several
                            else "best objective (lower is better)")
         axes[0].set_title(f"{record['problem']['name']}: search progress "

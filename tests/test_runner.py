@@ -135,3 +135,36 @@ def test_progress_is_one_live_line_on_a_terminal_and_plain_lines_otherwise():
     quiet = io.StringIO()
     Progress(2, stream=quiet, enabled=False).update(1, 1.0, 10)
     assert quiet.getvalue() == ""
+
+
+def _tiny_run(tmp_path, label, problem=DEMO, *extra):
+    out = tmp_path / label
+    code = main(["run", str(problem), "--out", str(out), "--quiet", "--workers", "1",
+                 "--generations", "60", "--population", "16"] + list(extra))
+    assert code in (0, 3)
+    return best(out)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("algorithm", ["sade", "de", "de1220", "pso", "cmaes"])
+def test_every_offered_algorithm_runs(algorithm, tmp_path, no_pictures):
+    record = _tiny_run(tmp_path, algorithm, DEMO, "--algorithm", algorithm)
+    assert record["search"]["algorithm"] == algorithm
+    assert record["status"] == "complete" and record["objective"][0] < 1e3
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("polish", ["bobyqa", "slsqp", "mbh"])
+def test_polish_never_worsens_the_champion(polish, tmp_path, no_pictures):
+    """Same seed and search, with and without the local polish at the end."""
+    text = DEMO.read_text(encoding="utf-8")
+    assert 'polish = "bobyqa"' in text
+    records = {}
+    for name in (polish, "none"):
+        problem = tmp_path / f"{name}.toml"
+        problem.write_text(text.replace('polish = "bobyqa"', f'polish = "{name}"'), encoding="utf-8")
+        records[name] = _tiny_run(tmp_path, f"out-{name}", problem)
+    assert records[polish]["search"]["polish"] == polish
+    assert records[polish]["objective"][0] <= records["none"]["objective"][0]
+    assert records[polish]["run"]["polish_evaluations"] > 0
+    assert records["none"]["run"]["polish_evaluations"] == 0

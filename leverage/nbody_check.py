@@ -172,6 +172,7 @@ def _leg_report(frames, field, ev, t_start, r_start_b, v_start_b, t_end, r_end_c
     out["retargeted_dsm_vector_change_m_s"] = float(np.linalg.norm(new_dsm - dsm_vec) * 1e3)
     out["retarget_end_miss_km"] = miss
     out["retarget_iterations"] = iters
+    out["retarget_converged"] = bool(miss < RETARGET_TOL_KM)
     design_vinf = float(np.linalg.norm(ev["flyby"]["v_in"] - ev["flyby"]["v_body"]))
     check_vinf = vinf_at_end(r_hit, v_hit)
     out["retargeted_flyby_vinf_km_s"] = {"design": design_vinf, "check": check_vinf,
@@ -179,19 +180,10 @@ def _leg_report(frames, field, ev, t_start, r_start_b, v_start_b, t_end, r_end_c
     return out
 
 
-def check_point_masses(record, source, grid_step_s: float = GRID_STEP_S) -> dict:
-    """Both point-mass cases (see module docstring) for a design record."""
-    ev = event_states(record)
-    body = bodies.planet(record["problem"]["body"])
-    name = body.name.lower()
-    launch, dsm, flyby = ev["launch"], ev["dsm"], ev["flyby"]
-    field = PointMassField(source, masses(), launch["t"], flyby["t"], grid_step_s)
-    frames = _Frames(field)
-    report = {"source": source.name, "bodies": ["Sun"] + [bodies.planet(n).name
-                                                          for n in PLANET_NAMES]}
-
-    # Case 1: the flyby body's gravity left out, launch to flyby.
-    others = field.without(name)
+def _without_body(ev, body, field, frames) -> dict:
+    """Case 1: the flyby body's gravity left out, launch to the flyby epoch."""
+    launch, flyby = ev["launch"], ev["flyby"]
+    others = field.without(body.name.lower())
     r0b, v0b = frames.to_bary(launch["t"], launch["r"], launch["v"])
     case = {"from": "launch", "to": "flyby epoch",
             "left_out": body.name}
@@ -202,9 +194,13 @@ def check_point_masses(record, source, grid_step_s: float = GRID_STEP_S) -> dict
 
     case.update(_leg_report(frames, others, ev, launch["t"], r0b, v0b, flyby["t"],
                             flyby["r"], flyby["v_in"], vinf_design_body))
-    report["other_planets"] = case
+    return case
 
-    # Case 2: all bodies, from a departure hyperbola's periapsis to the SOI entry.
+
+def _all_bodies(ev, body, field, frames) -> dict:
+    """Case 2: all bodies, from a departure hyperbola's periapsis to the SOI entry."""
+    name = body.name.lower()
+    launch, dsm, flyby = ev["launch"], ev["dsm"], ev["flyby"]
     radius = soi_radius_km(body)
     mu_b = body.gm_km3_s2
     t_entry = _crossing(frames, field, name, dsm["t"], dsm["r"], dsm["v_after"],
@@ -217,6 +213,8 @@ def check_point_masses(record, source, grid_step_s: float = GRID_STEP_S) -> dict
     v0b = vb + ecliptic_to_equatorial(v_rel[None])[0]
     r_n, v_n = _conic(dsm["t"], dsm["r"], dsm["v_after"], t_entry)
     case = {"from": f"departure periapsis ({PARKING_ALTITUDE_KM:g} km altitude)",
+            "note": "starts from the outside ephemeris' body state, so the launch-state "
+                    "difference of the ephemeris check is in these numbers too",
             "to": "sphere-of-influence entry", "soi_radius_km": radius,
             "soi_entry_days_before_flyby": (flyby["t"] - t_entry) / 86400.0}
 
@@ -228,5 +226,22 @@ def check_point_masses(record, source, grid_step_s: float = GRID_STEP_S) -> dict
 
     case.update(_leg_report(frames, field, ev, launch["t"], r0b, v0b, t_entry, r_n, v_n,
                             vinf_energy))
-    report["all_planets"] = case
+    return case
+
+
+def check_point_masses(record, source, grid_step_s: float = GRID_STEP_S) -> dict:
+    """Both point-mass cases (see module docstring) for a design record."""
+    ev = event_states(record)
+    body = bodies.planet(record["problem"]["body"])
+    field = PointMassField(source, masses(), ev["launch"]["t"], ev["flyby"]["t"], grid_step_s)
+    frames = _Frames(field)
+    report = {"source": source.name, "bodies": ["Sun"] + [bodies.planet(n).name
+                                                          for n in PLANET_NAMES]}
+
+    for key, case in (("other_planets", _without_body), ("all_planets", _all_bodies)):
+        try:
+            report[key] = case(ev, body, field, frames)
+        except (ValueError, RuntimeError, np.linalg.LinAlgError) as exc:
+            # e.g. no sphere-of-influence crossing, an integration that fails: say so
+            report[key] = {"skipped": f"{type(exc).__name__}: {exc}"}
     return report

@@ -204,7 +204,11 @@ def _ephemeris_lines(eph) -> list:
 
 
 def _case_lines(title, case) -> list:
+    if "skipped" in case:
+        return [f"  {title}: not computed ({case['skipped']})"]
     lines = [f"  {title}: {case['from']} to {case['to']}"]
+    if case.get("note"):
+        lines.append(f"    ({case['note']})")
     if "soi_radius_km" in case:
         lines.append(f"    sphere of influence {_num(case['soi_radius_km'], 0)} km, entered "
                      f"{_num(case['soi_entry_days_before_flyby'], 2)} days before the flyby "
@@ -221,12 +225,16 @@ def _case_lines(title, case) -> list:
         f"{case['retargeted_dsm_km_s']['change'] * 1e3:+,.1f} m/s, vector change "
         f"{_num(case['retargeted_dsm_vector_change_m_s'], 1)} m/s; end miss "
         f"{_num(case['retarget_end_miss_km'], 2)} km after {case['retarget_iterations']} "
-        f"iterations)",
+        f"iterations{'' if case['retarget_converged'] else ', NOT converged'})",
         f"    flyby v-infinity then {_num(case['retargeted_flyby_vinf_km_s']['check'], 4)} km/s "
         f"(design {_num(case['retargeted_flyby_vinf_km_s']['design'], 4)}, change "
         f"{case['retargeted_flyby_vinf_km_s']['change'] * 1e3:+,.1f} m/s)",
     ]
     return lines
+
+
+def record_body(report) -> str:
+    return report["ephemeris"][0]["body"]
 
 
 def render(report) -> str:
@@ -247,7 +255,7 @@ def render(report) -> str:
                   f"{pm['source']})",
               "  differences are from the patched-conic design; they are not errors of the "
               "integration"]
-    lines += _case_lines(f"without {pm['other_planets']['left_out']}", pm["other_planets"])
+    lines += _case_lines(f"without {record_body(report)}", pm["other_planets"])
     lines += _case_lines("all planets", pm["all_planets"])
     lines += ["", "This check covers:"] + [f"  - {item}" for item in report["covers"]]
     lines += ["It does not cover:"] + [f"  - {item}" for item in report["does_not_cover"]]
@@ -285,9 +293,13 @@ def headline(report) -> str:
     broken = [row["limit"] for row in eph.get("limits", []) if not row["holds"]]
     if broken:
         parts.append(f"with it {', '.join(broken)} no longer holds")
-    parts.append(f"point masses put the spacecraft "
-                 f"{pm['other_planets']['end_position_difference_km']:,.0f} km from the conic "
-                 f"at the flyby epoch (without {pm['other_planets']['left_out']}), "
-                 f"{pm['all_planets']['end_position_difference_km']:,.0f} km at "
-                 f"sphere-of-influence entry (all planets)")
+    moved = []
+    if "skipped" not in pm["other_planets"]:
+        moved.append(f"{pm['other_planets']['end_position_difference_km']:,.0f} km from the "
+                     f"conic at the flyby epoch (without {record_body(report)})")
+    if "skipped" not in pm["all_planets"]:
+        moved.append(f"{pm['all_planets']['end_position_difference_km']:,.0f} km at "
+                     "sphere-of-influence entry (all planets)")
+    if moved:
+        parts.append("point masses put the spacecraft " + ", ".join(moved))
     return "verification: " + "; ".join(parts)

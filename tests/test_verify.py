@@ -179,7 +179,7 @@ def test_point_mass_cases_are_reported_and_retargeted(report):
     pm = report["point_masses"]
     assert pm["other_planets"]["left_out"] == "Earth"
     for case in (pm["other_planets"], pm["all_planets"]):
-        assert case["retarget_end_miss_km"] < 1.0
+        assert case["retarget_end_miss_km"] < 1.0 and case["retarget_converged"]
         assert 0.0 < case["end_position_difference_km"] < 1.0e8
         assert abs(case["retargeted_dsm_km_s"]["change"]) < 0.5
     # ~0.9 million km for the Earth: Laplace radius a (m/M)^(2/5) (Curtis, sec. 8.4)
@@ -334,3 +334,17 @@ def test_after_run_ctrl_c_is_one_line(record, tmp_path, monkeypatch):
     lines = []
     afterrun.pictures_and_verification(tmp_path, record, lines.append)
     assert len(lines) == 1 and lines[0].startswith("pictures skipped (interrupted)")
+
+
+def test_a_point_mass_case_that_cannot_be_set_up_is_reported_not_fatal(record, monkeypatch):
+    from leverage import nbody_check
+
+    def no_crossing(*args, **kwargs):
+        raise ValueError("f(a) and f(b) must have different signs")
+
+    monkeypatch.setattr(nbody_check, "_crossing", no_crossing)
+    report = verify_record(record)
+    assert report["point_masses"]["all_planets"] == {
+        "skipped": "ValueError: f(a) and f(b) must have different signs"}
+    assert "end_position_difference_km" in report["point_masses"]["other_planets"]
+    assert "all planets: not computed (ValueError" in render(report)

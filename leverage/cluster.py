@@ -24,7 +24,8 @@ def client_kwargs(spec: str) -> dict:
     if path.suffix == ".json" or path.is_file() or "/" in spec:
         if not path.is_file():
             raise ProblemError("command line", "--cluster", spec, "no such connection file")
-        return {"url_file": str(path.resolve())}
+        # ipyparallel 9 reads a connection file from connection_info (its url_file is ignored)
+        return {"connection_info": str(path.resolve())}
     return {"profile": spec}
 
 

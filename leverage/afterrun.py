@@ -10,6 +10,10 @@ from . import plots, verify
 
 def pictures_and_verification(out_dir, record, echo=print) -> None:
     """Write the pictures and verification.txt/.json into ``out_dir``; one line each."""
+    solved = record.get("margins", {}).get("lambert_solved", {}).get("margin", 0.0)
+    if solved is not None and float(solved) < 0:
+        echo("pictures and verification skipped: the best point has an unsolved leg")
+        return
     try:
         pictures = plots.all_pictures(record, out_dir)
         echo("pictures: " + ", ".join(p.path.name for p in pictures))

@@ -348,3 +348,13 @@ def test_a_point_mass_case_that_cannot_be_set_up_is_reported_not_fatal(record, m
         "skipped": "ValueError: f(a) and f(b) must have different signs"}
     assert "end_position_difference_km" in report["point_masses"]["other_planets"]
     assert "all planets: not computed (ValueError" in render(report)
+
+
+def test_after_run_skips_a_design_with_an_unsolved_leg(record, tmp_path):
+    broken = json.loads(json.dumps(record))
+    broken["margins"]["lambert_solved"] = {"margin": -1.0, "unit": "", "holds": False,
+                                           "meaning": "0 when every arc was solved"}
+    lines = []
+    afterrun.pictures_and_verification(tmp_path, broken, lines.append)
+    assert lines == ["pictures and verification skipped: the best point has an unsolved leg"]
+    assert not any(tmp_path.iterdir())

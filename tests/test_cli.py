@@ -26,7 +26,7 @@ from leverage.cli import main
 
 ROOT = Path(__file__).resolve().parent.parent
 PROBLEMS = ROOT / "problems"
-TEMPLATES = ["outer_departure", "inclination_raise"]
+TEMPLATES = ["outer-departure", "inclination-raise"]
 SMALL = ["--generations", "100", "--population", "16"]
 NUM = r"(-?\d+(?:\.\d+)?)"
 DATE = r"(\d{4}-\d\d-\d\d \d\d:\d\d:\d\d)"

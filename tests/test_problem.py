@@ -104,7 +104,7 @@ def test_shipped_problems_load_and_say_what_they_are(path):
 
 def test_shipped_problems_include_the_demo_and_two_templates():
     names = {p.stem for p in SHIPPED}
-    assert {"demo", "outer_departure", "inclination_raise"} <= names
+    assert {"demo", "outer-departure", "inclination-raise"} <= names
 
 
 def test_offset_datetime_is_the_same_instant_in_utc(tmp_path):

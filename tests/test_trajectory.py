@@ -1,11 +1,11 @@
 """Identities of one evaluation of the compiled model (leverage.core.trajectory.details).
 
 Outside sources, beside each check:
-- C3 = v_inf^2: definition of launch energy (Vallado, Fundamentals of Astrodynamics
-  and Applications, sec. 12.x "Launch energy", from memory).
+- C3 = v_inf^2: the definition of launch energy (twice the specific energy of the
+  departure hyperbola; Curtis, Orbital Mechanics for Engineering Students, ch. 8,
+  from memory).
 - Hyperbolic flyby: e = 1 + r_p v_inf^2 / mu and turn delta = 2 asin(1/e); an
-  unpowered flyby keeps |v_inf| (Curtis, Orbital Mechanics for Engineering Students,
-  sec. 8.9, eqs. 8.53-8.58 area, quoted from memory).
+  unpowered flyby keeps |v_inf| (Curtis, sec. 8.9, from memory).
 - Two-body motion: scipy.integrate.solve_ivp (DOP853) on r'' = -mu r / |r|^3, an
   integrator independent of the model's universal-variable propagator; and vis-viva
   (Curtis sec. 2.8) for the outgoing semi-major axis.

@@ -83,6 +83,26 @@ def event_states(record) -> dict:
     return out
 
 
+def check_record(record, source: str) -> None:
+    """ProblemError (one line) unless ``record`` has solved launch, DSM and flyby events."""
+    from .errors import NO_VALUE, ProblemError
+
+    try:
+        names = [e["event"] for e in record["events"]]
+        solved = record.get("margins", {}).get("lambert_solved", {}).get("margin", 0.0)
+        event_states(record)
+    except (KeyError, TypeError, ValueError) as exc:
+        raise ProblemError(source, "", NO_VALUE,
+                           f"not a leverage result record ({type(exc).__name__}: {exc})") \
+            from None
+    missing = [n for n in ("launch", "dsm", "flyby") if n not in names]
+    if missing:
+        raise ProblemError(source, "events", NO_VALUE, f"no {missing[0]} event")
+    if solved is not None and float(solved) < 0:
+        raise ProblemError(source, "margins.lambert_solved", solved,
+                           "the best point has an unsolved leg: nothing to draw, check or export")
+
+
 def sample_times(t0: float, t1: float, n: int | None = None, step_s: float | None = None):
     """Epochs from t0 to t1 inclusive: ``n`` evenly spaced, or every ``step_s`` plus t1."""
     if step_s is not None:

@@ -358,3 +358,18 @@ def test_after_run_skips_a_design_with_an_unsolved_leg(record, tmp_path):
     afterrun.pictures_and_verification(tmp_path, broken, lines.append)
     assert lines == ["pictures and verification skipped: the best point has an unsolved leg"]
     assert not any(tmp_path.iterdir())
+
+
+@pytest.mark.parametrize("command", [["plot"], ["verify"], ["export", "--format", "csv"]])
+def test_commands_refuse_a_record_without_a_solved_design(record, tmp_path, capsys, command):
+    broken = json.loads(json.dumps(record))
+    broken["margins"]["lambert_solved"] = {"margin": -1.0, "unit": "", "holds": False,
+                                           "meaning": "0 when every arc was solved"}
+    (tmp_path / "best.json").write_text(json.dumps(broken))
+    assert main([command[0], str(tmp_path), *command[1:]]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "unsolved leg" in err and len(err.splitlines()) == 1
+    del broken["events"][1]
+    (tmp_path / "best.json").write_text(json.dumps(broken))
+    assert main([command[0], str(tmp_path), *command[1:]]) == 2
+    assert "no dsm event" in capsys.readouterr().err

@@ -1,6 +1,8 @@
 """leverage export RESULT_DIR --format csv|oem: hand-off files of the best design."""
 import math
+from pathlib import Path
 
+from ..arcs import check_record
 from ..errors import ProblemError
 from ..export import DEFAULT_STEP_HOURS, FRAMES, export
 from .show import load_record
@@ -31,6 +33,7 @@ def main(args) -> int:
                            "the OEM is written in EME2000 only (CCSDS has no common name for a "
                            "Sun-centred ecliptic frame)")
     record = load_record(args.results)
+    check_record(record, str(Path(args.results) / "best.json"))
     path = export(record, args.results, args.format, args.step_hours, args.frame, args.output)
     print(path)
     return 0

@@ -1,4 +1,7 @@
 """leverage plot RESULT_DIR: (re)draw the pictures of a result folder."""
+from pathlib import Path
+
+from ..arcs import check_record
 from ..plots import all_pictures
 from .show import load_record
 
@@ -14,6 +17,7 @@ def add_parser(sub):
 
 def main(args) -> int:
     record = load_record(args.results)
+    check_record(record, str(Path(args.results) / "best.json"))
     for picture in all_pictures(record, args.results):
         print(picture.path)
     return 0

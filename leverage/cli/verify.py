@@ -1,5 +1,8 @@
 """leverage verify RESULT_DIR: check the best design against an outside ephemeris and
 numerical integration; writes verification.txt and verification.json there."""
+from pathlib import Path
+
+from ..arcs import check_record
 from ..verify import render, verify_record, write
 from .show import load_record
 
@@ -19,6 +22,7 @@ def add_parser(sub):
 
 def main(args) -> int:
     record = load_record(args.results)
+    check_record(record, str(Path(args.results) / "best.json"))
     report = verify_record(record, spk_path=args.spk)
     txt, _ = write(args.results, report)
     print(render(report))

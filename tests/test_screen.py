@@ -1,0 +1,74 @@
+"""Tests of the feasibility screen (leverage.screen).
+
+Outside sources: Tisserand's parameter with respect to a body on a circular orbit,
+T = a_b/a + 2 cos i sqrt(a (1 - e^2)/a_b), and v_inf = V_b sqrt(3 - T) (the Tisserand
+relation used in gravity-assist design, e.g. Strange and Longuski 2002, J. Spacecraft
+and Rockets 39(1); from memory): with no DSM the return v-infinity equals the launch
+v-infinity. The turn limit 2 asin(1/(1 + r_p v^2/mu)) (Curtis, Orbital Mechanics for
+Engineering Students, sec. 8.9; from memory). The problems are the invented demo
+(problems/demo.toml) and goals made impossible by construction from it.
+"""
+import json
+
+import numpy as np
+import pytest
+
+from leverage.problem import load_problem
+from leverage.runner import Progress, run, settings_from
+from leverage.screen import _Model, screen
+
+
+def edited(demo_path, tmp_path, replacements, extra=""):
+    text = demo_path.read_text()
+    for old, new in replacements:
+        assert old in text
+        text = text.replace(old, new)
+    path = tmp_path / "edited.toml"
+    path.write_text(text + extra)
+    return load_problem(path)
+
+
+def test_without_a_dsm_the_return_vinf_is_the_launch_vinf(demo_path):
+    model = _Model(load_problem(demo_path))
+    w, vt, vr, v0 = model.returns(0.0)
+    assert len(w) > 50
+    np.testing.assert_allclose(w, v0, rtol=1e-9)
+
+
+def test_unreachable_outgoing_vinf(demo_path, tmp_path):
+    # 15 km/s from C3 <= 10 (3.2 km/s) with at most 0.3 km/s of DSM: impossible.
+    problem = edited(demo_path, tmp_path, [
+        ("max_c3_km2_s2 = 24.0", "max_c3_km2_s2 = 10.0"),
+        ("min_outgoing_vinf_km_s = 7.5", "min_outgoing_vinf_km_s = 15.0\ndsm_budget_km_s = 0.3")])
+    result = screen(problem)
+    assert result.verdict == "unreachable"
+    (req,) = result.requirements
+    assert req.shortfall() > 5.0  # km/s short
+    text = "\n".join(result.lines())
+    assert "UNREACHABLE" in text and "short by" in text
+
+
+def test_unreachable_inclination_beyond_one_turn(demo_path, tmp_path):
+    # A 70 deg inclination needs a v-infinity near the body's orbital speed; at C3 <= 10
+    # and 0.2 km/s of DSM the turn at the minimum periapsis cannot tilt the orbit so far.
+    problem = edited(demo_path, tmp_path, [
+        ("max_c3_km2_s2 = 24.0", "max_c3_km2_s2 = 10.0"),
+        ("min_outgoing_vinf_km_s = 7.5",
+         "min_outgoing_inclination_deg = 70.0\ndsm_budget_km_s = 0.2")])
+    result = screen(problem)
+    assert result.verdict == "unreachable"
+    assert result.requirements[0].best < 70.0
+
+
+@pytest.mark.slow
+def test_reachable_goal_is_then_reached(demo_path, tmp_path):
+    problem = load_problem(demo_path)
+    result = screen(problem)
+    assert result.verdict == "reachable"
+    settings = settings_from(problem)
+    code = run(problem, settings, tmp_path / "run", Progress(1, enabled=False),
+               echo=lambda *a: None)
+    record = json.loads((tmp_path / "run" / "best.json").read_text())
+    assert code == 0 and record["feasible"]
+    # The screen ignores phasing: its DSM estimate is optimistic, never above the search's.
+    assert result.min_dsm_kms <= record["derived"]["dsm"]["value"]

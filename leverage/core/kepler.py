@@ -14,6 +14,7 @@ TWO_PI = 2.0 * np.pi
 _KEPLER_TOL = 1e-13
 _MAX_ITER = 50
 _PROPAGATION_ITER = 350
+_MAX_SPLIT_STEPS = 16
 
 
 @njit(cache=True)
@@ -73,17 +74,10 @@ def elements_from_state(mu, r, v):
 
 
 @njit(cache=True)
-def propagate(mu, r0, v0, tof):
-    """State after ``tof`` seconds of two-body motion (km, km/s), and an ok flag.
-
-    Universal-variable Lagrange coefficients from poliastro.core.propagation.vallado
-    (Vallado 2013, Algorithm 8). Any number of revolutions; tof may be negative.
-    Never raises: on non-convergence returns zeros and ok=False.
-    """
+def _propagate_once(mu, r0, v0, tof):
+    """One universal-variable step (see ``propagate``); (r, v, ok)."""
     r = np.zeros(3)
     v = np.zeros(3)
-    if tof == 0.0:
-        return r0.copy(), v0.copy(), True
     try:
         f, g, fdot, gdot = _vallado_fg(mu, r0, v0, tof, _PROPAGATION_ITER)
     except Exception:
@@ -92,6 +86,32 @@ def propagate(mu, r0, v0, tof):
         r[k] = f * r0[k] + g * v0[k]
         v[k] = fdot * r0[k] + gdot * v0[k]
     return r, v, True
+
+
+@njit(cache=True)
+def propagate(mu, r0, v0, tof):
+    """State after ``tof`` seconds of two-body motion (km, km/s), and an ok flag.
+
+    Universal-variable Lagrange coefficients from poliastro.core.propagation.vallado
+    (Vallado 2013, Algorithm 8). Any number of revolutions; tof may be negative.
+    Never raises: on non-convergence returns zeros and ok=False.
+    """
+    if tof == 0.0:
+        return r0.copy(), v0.copy(), True
+    # The Newton iteration on the universal anomaly can fail to settle for some
+    # near-parabolic ellipses at particular times; the same motion in 2, 4, ... equal
+    # steps starts every iteration from another guess.
+    steps = 1
+    while steps <= _MAX_SPLIT_STEPS:
+        r, v, ok = r0.copy(), v0.copy(), True
+        for _ in range(steps):
+            r, v, ok = _propagate_once(mu, r, v, tof / steps)
+            if not ok:
+                break
+        if ok:
+            return r, v, True
+        steps *= 2
+    return np.zeros(3), np.zeros(3), False
 
 
 @njit(cache=True)

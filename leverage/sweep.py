@@ -264,8 +264,7 @@ class Sweep:
         udp = LeveragingUDP.from_compiled(compiled, task.problem.name)
         x = (compiled.lower + compiled.upper) / 2.0
         udp.fitness(x)
-        udp.details(x)
-        udp.batch_fitness(x)
+        udp.details(x)  # no batch_fitness: its numba threads must not exist before a fork
 
     def _run_local(self, pending, workers, on_result, progress):
         workers = max(1, min(workers or cpu_count(), len(pending) or 1))

@@ -37,6 +37,7 @@ from .workers import WorkerLost, WorkerPool
 FORMAT = "leverage-sweep/1"
 EXIT_OK, EXIT_FAILED, EXIT_INFEASIBLE, EXIT_INTERRUPTED = 0, 1, 3, 130
 POLL_S = 0.2
+ABORT_WAIT_S = 5.0
 
 
 @dataclass
@@ -309,10 +310,11 @@ class Sweep:
                     if waiting:
                         time.sleep(POLL_S)
             except BaseException:
-                # Runs not started are withdrawn; runs already on engines finish there
-                # and are dropped (their results are not waited for).
+                # Runs not started are withdrawn (the engines confirm within seconds); runs
+                # already on engines finish there and are dropped.
                 try:
-                    client.abort([h for h, _ in waiting], block=False)
+                    reply = client.abort([h for h, _ in waiting], block=False)
+                    reply.wait(ABORT_WAIT_S)
                 except Exception:
                     pass
                 raise

@@ -51,3 +51,6 @@ def main(argv=None) -> int:
     except ProblemError as exc:
         print(f"leverage: {exc}", file=sys.stderr)
         return 2
+    except KeyboardInterrupt:  # Ctrl-C before a run or sweep took over its signals
+        print("leverage: interrupted", file=sys.stderr)
+        return 130

@@ -221,6 +221,8 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
                 compiled = problem.compile()
                 udp = LeveragingUDP.from_compiled(compiled, problem.name)
                 search = make_search(compiled, udp, settings, evolver)
+                if getattr(search, "evolver", None) is not evolver:
+                    run_info["islands_evolved"] = "this process (batch evaluation)"
                 if resume is not None:
                     checkpoint.restore(search, resume)
                     run_info["resumed_from_evolution"] = search.state.evolution

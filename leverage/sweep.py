@@ -65,13 +65,16 @@ def solve(task: Task) -> dict:
         problem, settings = task.problem, task.settings
         compiled = problem.compile()
         udp = LeveragingUDP.from_compiled(compiled, problem.name)
-        search = make_search(compiled, udp, settings, SerialIslands())
+        evolver = SerialIslands()
+        search = make_search(compiled, udp, settings, evolver)
         while not search.done:
             search.step()
+        where = ("serial" if getattr(search, "evolver", None) is evolver
+                 else "this process (batch evaluation)")
         with tempfile.TemporaryDirectory() as tmp:
             front_path = Path(tmp) / "front.csv"
             record = finish(problem, settings, compiled, udp, search, "complete", front_path,
-                            {"islands_evolved": "serial", "host": socket.gethostname()})
+                            {"islands_evolved": where, "host": socket.gethostname()})
             front = front_path.read_text(encoding="utf-8") if front_path.exists() else None
         return {"record": record, "columns": getattr(search, "log_columns", LOG_COLUMNS),
                 "rows": [asdict(r) for r in search.state.history], "front_csv": front}

@@ -132,3 +132,29 @@ def test_resume_refuses_another_problem_in_one_line(demo_path, tmp_path, capsys)
     assert "differs from the problem of the run in" in err and str(other) in err
     assert cli_main(["run", str(demo_path), "--resume", str(out), "--islands", "3"]) == 2
     assert "--islands = 3: the run being resumed used 1" in capsys.readouterr().err
+
+
+@pytest.mark.slow
+def test_a_front_search_checkpoints_the_same_way(problems_dir, tmp_path):
+    # FrontSearch (leverage/fronts.py) keeps an archive in its state; the checkpoint
+    # pickles whatever the state holds, so a resumed front search ends the same.
+    problem = load_problem(problems_dir / "trade-front.toml")
+    over = {"islands": 2, "population": 16, "generations": 30, "generations_per_migration": 10}
+
+    def fresh():
+        settings = settings_from(problem, over)
+        compiled = problem.compile()
+        udp = LeveragingUDP.from_compiled(compiled, problem.name)
+        return make_search(compiled, udp, settings, SerialIslands()), settings
+
+    straight, _ = fresh()
+    x_ref, f_ref = run_out(straight)
+    first, settings = fresh()
+    first.step()
+    checkpoint.save(tmp_path, problem, settings, first)
+    resumed, _ = fresh()
+    checkpoint.restore(resumed, checkpoint.load(tmp_path))
+    x, f = run_out(resumed)
+    np.testing.assert_array_equal(x, x_ref)
+    np.testing.assert_array_equal(f, f_ref)
+    np.testing.assert_array_equal(resumed.state.archive_f, straight.state.archive_f)

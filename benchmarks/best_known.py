@@ -7,9 +7,13 @@ direction, DSM fraction, flyby altitude and B-plane angle) are searched by
 1. the best few of ``--samples`` uniform random points (one compiled batch), each
    polished by BOBYQA (Powell 2009, through pygmo's nlopt) with the grid values fixed;
 2. a continuation sweep: each point is polished again from its grid neighbours' answers.
-The best ``--final`` grid points are then polished in all eight variables (BOBYQA,
-then monotonic basin hopping around it, pygmo mbh) and the best is the best-known
-answer. Writes ``benchmarks/best_known.json`` (objective in the problem's own units:
+The best ``--final`` grid points, and the best point of every launch date (so that a
+basin at the edge of the window is not crowded out), are then polished in all eight
+variables by a chain of local steps, each kept only if it improves and stays strictly
+feasible: BOBYQA on the penalised objective; SLSQP (Kraft 1988, scipy) on the objective
+without penalty subject to every limit margin >= 0 (BOBYQA stalls on the kink a
+penalty has where a limit becomes active); BOBYQA again; monotonic basin hopping
+around it (pygmo mbh); SLSQP again. The best is the best-known answer. Writes ``benchmarks/best_known.json`` (objective in the problem's own units:
 km/s for min_dsm, -km/s of gain for max_gain).
 
 Usage: python -m benchmarks.best_known [--only NAME] [--smoke] [--out FILE]
@@ -130,23 +134,80 @@ def search_grid(compiled, launch_step, loop_step, samples, starts, rng, log):
     return days, loops, best_f, best_y, evals
 
 
-def full_polish(compiled, days, loops, best_f, best_y, final, seed):
-    """Polish the best ``final`` grid points in all eight variables; the best (x, f, evals)."""
+def constrained_polish(compiled, x):
+    """SLSQP from x on the objective without penalty, every finite margin >= 0.
+
+    Variables scaled to [0, 1] over the bounds; margins divided by the penalty scales
+    of ``leverage.core.penalties``. Returns (x, kernel objective, evaluations).
+    """
+    from scipy.optimize import minimize
+
+    from leverage.core.penalties import MARGIN_SCALES
+
+    p, lo, hi = compiled.params, compiled.lower, compiled.upper
+    span = hi - lo
+    slots = [k for k in range(L.N_MARGINS)
+             if np.isfinite(trajectory.details(x, p)[L.Q_MARGIN_ALT_KM + k])]
+    count = [0]
+
+    def unscale(z):
+        return lo + np.clip(z, 0.0, 1.0) * span
+
+    def objective(z):
+        count[0] += 1
+        q = trajectory.details(unscale(z), p)
+        return trajectory.fitness(unscale(z), p)[0] - q[L.Q_PENALTY]
+
+    def margins(z):
+        count[0] += 1
+        q = trajectory.details(unscale(z), p)
+        m = np.array([q[L.Q_MARGIN_ALT_KM + k] / MARGIN_SCALES[k] for k in slots])
+        # A hair inside each limit (1e-7 of its scale), so the answer is strictly feasible.
+        return np.where(np.isfinite(m), m, 1.0e3) - 1.0e-7
+
+    res = minimize(objective, (x - lo) / span, method="SLSQP", bounds=[(0.0, 1.0)] * lo.size,
+                   constraints=[{"type": "ineq", "fun": margins}],
+                   options={"ftol": 1e-12, "maxiter": 500, "eps": 1e-8})
+    x_new = unscale(res.x)
+    return x_new, float(trajectory.fitness(x_new, p)[0]), count[0]
+
+
+def feasible(compiled, x) -> bool:
+    """The rule of leverage.result: every leg solved and every limit margin >= 0."""
+    q = trajectory.details(x, compiled.params)
+    return bool(q[L.Q_OK] == 1.0 and np.all(q[L.Q_MARGIN_ALT_KM:L.Q_MARGIN_ALT_KM + L.N_MARGINS]
+                                               >= 0.0))
+
+
+def full_polish(compiled, days, loops, best_f, best_y, final):
+    """Polish the best grid points in all eight variables; the best (x, f, evals)."""
     udp = LeveragingUDP.from_compiled(compiled)
-    order = np.argsort(best_f, axis=None)[:final]
+    chosen = set(np.argsort(best_f, axis=None)[:final].tolist())
+    chosen |= {int(np.ravel_multi_index((i, int(np.argmin(best_f[i]))), best_f.shape))
+               for i in range(days.size)}
+    hopper = pg.algorithm(pg.mbh(bobyqa(2000), stop=5, perturb=0.002, seed=1))
+    # Each step starts from the best strictly feasible point so far; SLSQP can wander
+    # off where the best Lambert branch changes (a kink), BOBYQA stalls at active limits.
+    steps = [lambda x: polish(udp, x, bobyqa()), lambda x: constrained_polish(compiled, x),
+             lambda x: polish(udp, x, bobyqa()), lambda x: polish(udp, x, hopper),
+             lambda x: constrained_polish(compiled, x)]
     best_x, best = None, np.inf
     evals = 0
-    hopper = pg.algorithm(pg.mbh(bobyqa(2000), stop=10, perturb=0.005, seed=seed))
-    for flat in order:
+    for flat in sorted(chosen):
         i, j = np.unravel_index(flat, best_f.shape)
         x = compiled.lower.copy()
         x[L.X_LAUNCH_DAY], x[L.X_LOOP_DAYS] = days[i], loops[j]
         x[list(FREE_VARS)] = best_y[i, j]
-        for algo in (bobyqa(), hopper):
-            x, f, n = polish(udp, x, algo)
+        f = np.inf
+        for step in steps:
+            x2, f2, n = step(x)
             evals += n
+            if f2 < f and feasible(compiled, x2):
+                x, f = x2, f2
         if f < best:
             best_x, best = x, f
+    if best_x is None:
+        raise RuntimeError("no feasible design found; a reference problem must have one")
     return best_x, best, evals
 
 
@@ -157,7 +218,7 @@ def establish(name, path, args, log):
     start = time.perf_counter()
     days, loops, best_f, best_y, evals = search_grid(
         compiled, args.launch_step_days, args.loop_step_days, args.samples, args.starts, rng, log)
-    x, f, n = full_polish(compiled, days, loops, best_f, best_y, args.final, args.seed)
+    x, f, n = full_polish(compiled, days, loops, best_f, best_y, args.final)
     evals += n
     q = trajectory.details(x, compiled.params)
     return {
@@ -169,7 +230,7 @@ def establish(name, path, args, log):
         "total_dv_km_s": float(q[L.Q_TOTAL_DV]),
         "vinf_gain_km_s": float(q[L.Q_GAIN]),
         "penalty": float(q[L.Q_PENALTY]),
-        "feasible": bool(q[L.Q_OK] == 1.0 and q[L.Q_PENALTY] == 0.0),
+        "feasible": feasible(compiled, x),
         "decision_vector": {"names": compiled.names, "values": [float(v) for v in x]},
         "grid": {"launch_days": [float(days[0]), float(days[-1]), int(days.size)],
                  "loop_days": [float(loops[0]), float(loops[-1]), int(loops.size)],
@@ -190,7 +251,8 @@ def main(argv=None) -> int:
     ap.add_argument("--loop-step-days", type=float, default=5.0)
     ap.add_argument("--samples", type=int, default=1024, help="random points per grid point")
     ap.add_argument("--starts", type=int, default=3, help="polished starts per grid point")
-    ap.add_argument("--final", type=int, default=10, help="grid points polished in full")
+    ap.add_argument("--final", type=int, default=40,
+                    help="best grid points polished in full (besides the best of each date)")
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--out", default=str(OUT), help="JSON file to update")
     ap.add_argument("--smoke", action="store_true",

@@ -21,7 +21,7 @@ import csv
 import io
 import math
 import time
-from dataclasses import asdict, dataclass, field, fields
+from dataclasses import dataclass, field, fields
 
 import numpy as np
 import pygmo as pg

@@ -156,12 +156,10 @@ class _Model:
             energy = 0.5 * (v_t * v_t + v_r * v_r + v_n * v_n) - 1.0
             p = h * h
             with np.errstate(divide="ignore", invalid="ignore"):
-                a = -0.5 / energy
                 e = np.sqrt(np.clip(1.0 + 2.0 * energy * p, 0.0, None))
                 apo = np.where(energy < 0.0, p / np.maximum(1.0 - e, 1e-12), np.inf)
                 peri = p / (1.0 + e)
                 inc = np.arccos(np.clip(v_t / np.where(h > 0, h, 1.0), -1.0, 1.0))
-            del a
             n = len(w)
             results.append((apo.reshape(n, -1), peri.reshape(n, -1), inc.reshape(n, -1)))
         return tuple(np.concatenate([r[k] for r in results], axis=1) for k in range(3))

@@ -16,7 +16,7 @@ import pytest
 
 from leverage.core import layout as L
 from leverage.errors import ProblemError
-from leverage.fronts import (FrontSearch, feasible, hypervolume, knee, non_dominated,
+from leverage.fronts import (feasible, hypervolume, knee, non_dominated,
                              reference_point)
 from leverage.problem import load_problem
 from leverage.runner import Progress, run, settings_from

@@ -131,16 +131,14 @@ def _no_target_requirements(p, q):
 
 
 @njit(cache=True)
-def _target_leg(x, p, q):
-    """Lambert leg (M = 0, prograde) from the body at the flyby to the target.
+def _target_leg(x, p, q, r2):
+    """Lambert leg (M = 0, prograde) from the body at the flyby (r2, km) to the target.
 
     Fills the arrival quantities of q; returns (departure velocity km/s, ok).
     """
-    eph = p[L.P_BODY_EPH:L.P_BODY_EPH + EPHEMERIS_SIZE]
     teph = p[L.P_TARGET_EPH:L.P_TARGET_EPH + EPHEMERIS_SIZE]
     t2 = q[L.Q_T_FLYBY]
     t3 = t2 + x[L.X_TARGET_LEG_DAYS] * DAY_S
-    r2, _ = body_state(eph, t2)
     r3, v3_body = body_state(teph, t3)
     v_dep, v_arr, ok = lambert(p[L.P_MU_SUN], r2, r3, t3 - t2, 0, True, True)
     if not ok:
@@ -171,20 +169,18 @@ def _no_target(q):
 
 
 @njit(cache=True)
-def _loop_arc(p, q, branch, r1, v1m):
-    """Lambert arc on ``branch`` from the DSM point to the body, and the DSM.
+def _loop_arc(p, q, branch, r1, v1m, r2, vb2):
+    """Lambert arc on ``branch`` from the DSM point to the body (at r2 with velocity
+    vb2 at the flyby), and the DSM.
 
-    Fills the DSM and incoming quantities; returns (incoming v_inf, body position,
-    body velocity at the flyby, ok).
+    Fills the DSM and incoming quantities; returns (incoming v_inf, ok).
     """
-    eph = p[L.P_BODY_EPH:L.P_BODY_EPH + EPHEMERIS_SIZE]
     t1 = q[L.Q_T_DSM]
     t2 = q[L.Q_T_FLYBY]
-    r2, vb2 = body_state(eph, t2)
     revs, low = branch_revs(branch)
     v1p, v2, ok = lambert(p[L.P_MU_SUN], r1, r2, t2 - t1, revs, True, low)
     if not ok:
-        return v2, r2, vb2, False
+        return v2, False
     dsm = v1p - v1m
     dsm_r, dsm_t, dsm_n = rtn_components(r1, v1m, dsm)
     vinf_in = v2 - vb2
@@ -205,7 +201,7 @@ def _loop_arc(p, q, branch, r1, v1m):
     _put(q, L.Q_V_DSM_AFTER, v1p)
     _put(q, L.Q_V_FLYBY_IN, v2)
     _put(q, L.Q_V_BODY_FLYBY, vb2)
-    return vinf_in, r2, vb2, True
+    return vinf_in, True
 
 
 @njit(cache=True)
@@ -300,10 +296,12 @@ def evaluate(x, p, q, f):
     for k in range(q.shape[0]):
         q[k] = 0.0
     r1, v1m, ok = _launch(x, p, q)
+    # The body at the flyby is the same for every branch: one ephemeris call.
+    r2, vb2 = body_state(p[L.P_BODY_EPH:L.P_BODY_EPH + EPHEMERIS_SIZE], q[L.Q_T_FLYBY])
     has_target = p[L.P_HAS_TARGET] == 1.0
-    v_dep = np.zeros(3)
+    v_dep = vb2  # placeholder of the right type; used only with a target
     if ok and has_target:
-        v_dep, ok = _target_leg(x, p, q)
+        v_dep, ok = _target_leg(x, p, q, r2)
     elif ok:
         _no_target(q)
     if not ok:
@@ -315,7 +313,7 @@ def evaluate(x, p, q, f):
     f_trial = np.empty_like(f)
     best = np.inf
     for branch in range(first, last + 1):
-        vinf_in, r2, vb2, solved = _loop_arc(p, trial, branch, r1, v1m)
+        vinf_in, solved = _loop_arc(p, trial, branch, r1, v1m, r2, vb2)
         if not solved:
             continue
         if has_target:

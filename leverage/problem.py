@@ -214,6 +214,10 @@ def validate(source: str, table: dict, schema: dict | None = None) -> dict:
     return values
 
 
+# Standish's Table 1 elements are fitted for 1800 AD - 2050 AD.
+MEAN_ELEMENTS_SPAN_UTC = ("1800-01-01", "2050-12-31")
+
+
 def _check_relations(source: str, values: dict, body: bodies.Body) -> None:
     launch, loop, flyby, goal = (values[s] for s in ("launch", "loop", "flyby", "goal"))
     t_open = times.tdb_seconds(launch["window_open_utc"])
@@ -221,6 +225,16 @@ def _check_relations(source: str, values: dict, body: bodies.Body) -> None:
     if t_close < t_open:
         raise ProblemError(source, "[launch] window_close_utc", launch["window_close_utc"],
                            f"is before window_open_utc ({launch['window_open_utc']})")
+    first, last = (times.tdb_seconds(d) for d in MEAN_ELEMENTS_SPAN_UTC)
+    if t_open < first:
+        raise ProblemError(source, "[launch] window_open_utc", launch["window_open_utc"],
+                           f"is before {MEAN_ELEMENTS_SPAN_UTC[0]}, outside the span of the "
+                           "planets' mean elements (Standish Table 1, 1800-2050)")
+    if t_close + loop["duration_days"][1] * times.DAY_S > last:
+        raise ProblemError(source, "[launch] window_close_utc", launch["window_close_utc"],
+                           f"plus the longest loop ({loop['duration_days'][1]:g} days) ends after "
+                           f"{MEAN_ELEMENTS_SPAN_UTC[1]}, outside the span of the planets' mean "
+                           "elements (Standish Table 1, 1800-2050)")
     if launch["min_c3_km2_s2"] > launch["max_c3_km2_s2"]:
         raise ProblemError(source, "[launch] min_c3_km2_s2", launch["min_c3_km2_s2"],
                            f"is above max_c3_km2_s2 ({launch['max_c3_km2_s2']:g})")
@@ -239,6 +253,12 @@ def _check_relations(source: str, values: dict, body: bodies.Body) -> None:
     if goal["kind"] == "max_gain" and goal["dsm_budget_km_s"] is None:
         raise ProblemError(source, "[goal] dsm_budget_km_s", NO_VALUE,
                            "missing: a max_gain goal needs a DSM budget (km/s)")
+    if goal["kind"] == "min_dsm":
+        for name in ("gain_weight", "inclination_weight_per_deg"):
+            if goal[name]:
+                raise ProblemError(source, f"[goal] {name}", goal[name],
+                                   "not used by kind = \"min_dsm\" (state requirements as "
+                                   "min_outgoing_* keys, or use max_gain or weighted)")
     if goal["kind"] != "weighted" and goal["dsm_weight"] is not None:
         raise ProblemError(source, "[goal] dsm_weight", goal["dsm_weight"],
                            "only used with kind = \"weighted\"")

@@ -231,11 +231,12 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
                 log = ConvergenceLog(out_dir / "convergence.csv",
                                      getattr(search, "log_columns", LOG_COLUMNS),
                                      search.state.history)
+                saver = checkpoint.Checkpointer(out_dir, problem, settings)
                 try:
                     while not search.done:
                         rows = search.step()
                         log.write(rows)
-                        checkpoint.save(out_dir, problem, settings, search)
+                        saver.save(search, final=search.done)
                         progress.update(search.state.evolution, search.champion()[1][0],
                                         search.state.evaluations)
                 finally:

@@ -1,20 +1,23 @@
 """Two-body motion: Kepler's equation, orbital elements <-> state, propagation.
 
 Units: km, s, km/s, rad. Frame: whatever frame the input state is in.
-Propagation calls poliastro's numba kernel for the universal-variable method
-(Vallado, Fundamentals of Astrodynamics and Applications, Algorithm 8) and never
-raises: a failure comes back as ``ok=False``.
+Propagation solves the universal-variable Kepler equation (Vallado, Fundamentals of
+Astrodynamics and Applications, Algorithm 8; Curtis, Orbital Mechanics for
+Engineering Students, Algorithm 3.4) by Newton's method safeguarded with bisection on
+a bracket, and never raises: a failure comes back as ``ok=False``.
+(poliastro 0.17's ``vallado`` kernel, retried in equal sub-steps, was used before: it
+loops forever when its hyperbolic starting guess is NaN (its Stumpff series never
+ends on NaN), stops at an absolute 1e-7 step in the universal anomaly and evaluates
+the Lagrange coefficients one iterate behind, ~1e-8 relative error on hyperbolas.)
 """
 import numpy as np
 from numba import njit
 from poliastro.core.elements import coe2rv, rv2coe
-from poliastro.core.propagation.vallado import vallado as _vallado_fg
 
 TWO_PI = 2.0 * np.pi
 _KEPLER_TOL = 1e-13
 _MAX_ITER = 50
-_PROPAGATION_ITER = 350
-_MAX_SPLIT_STEPS = 16
+_PROPAGATION_ITER = 200
 
 
 @njit(cache=True)
@@ -74,44 +77,144 @@ def elements_from_state(mu, r, v):
 
 
 @njit(cache=True)
-def _propagate_once(mu, r0, v0, tof):
-    """One universal-variable step (see ``propagate``); (r, v, ok)."""
-    r = np.zeros(3)
-    v = np.zeros(3)
-    try:
-        f, g, fdot, gdot = _vallado_fg(mu, r0, v0, tof, _PROPAGATION_ITER)
-    except Exception:
-        return r, v, False
-    for k in range(3):
-        r[k] = f * r0[k] + g * v0[k]
-        v[k] = fdot * r0[k] + gdot * v0[k]
-    return r, v, True
+def _stumpff(psi):
+    """Stumpff functions C(psi), S(psi) (Curtis eqs. 3.52-3.53); series for |psi| <= 1."""
+    if psi > 1.0:
+        sq = np.sqrt(psi)
+        return (1.0 - np.cos(sq)) / psi, (sq - np.sin(sq)) / (psi * sq)
+    if psi < -1.0:
+        sq = np.sqrt(-psi)
+        return (np.cosh(sq) - 1.0) / (-psi), (np.sinh(sq) - sq) / (-psi * sq)
+    c = 0.0
+    s = 0.0
+    term_c = 0.5
+    term_s = 1.0 / 6.0
+    for k in range(12):  # C = sum (-psi)^k/(2k+2)!, S = sum (-psi)^k/(2k+3)!
+        c += term_c
+        s += term_s
+        term_c *= -psi / ((2 * k + 3) * (2 * k + 4))
+        term_s *= -psi / ((2 * k + 4) * (2 * k + 5))
+    return c, s
+
+
+@njit(cache=True)
+def _universal_time(chi, r0n, sigma0, alpha):
+    """sqrt(mu) * time to universal anomaly chi, and its derivative (the radius)."""
+    psi = alpha * chi * chi
+    c, s = _stumpff(psi)
+    chi2 = chi * chi
+    f_val = sigma0 * chi2 * c + (1.0 - alpha * r0n) * chi2 * chi * s + r0n * chi
+    radius = chi2 * c + sigma0 * chi * (1.0 - psi * s) + r0n * (1.0 - psi * c)
+    return f_val, radius
 
 
 @njit(cache=True)
 def propagate(mu, r0, v0, tof):
     """State after ``tof`` seconds of two-body motion (km, km/s), and an ok flag.
 
-    Universal-variable Lagrange coefficients from poliastro.core.propagation.vallado
-    (Vallado 2013, Algorithm 8). Any number of revolutions; tof may be negative.
-    Never raises: on non-convergence returns zeros and ok=False.
+    Universal-variable Lagrange coefficients (Vallado 2013, Algorithm 8). Any number
+    of revolutions (an ellipse's time is first reduced modulo its period); tof may
+    be negative. Never raises: on failure returns zeros and ok=False.
     """
+    r = np.zeros(3)
+    v = np.zeros(3)
     if tof == 0.0:
         return r0.copy(), v0.copy(), True
-    # The Newton iteration on the universal anomaly can fail to settle for some
-    # near-parabolic ellipses at particular times; the same motion in 2, 4, ... equal
-    # steps starts every iteration from another guess.
-    steps = 1
-    while steps <= _MAX_SPLIT_STEPS:
-        r, v, ok = r0.copy(), v0.copy(), True
-        for _ in range(steps):
-            r, v, ok = _propagate_once(mu, r, v, tof / steps)
-            if not ok:
+    r0n = np.sqrt(r0 @ r0)
+    if not (np.isfinite(tof) and np.isfinite(r0n) and np.all(np.isfinite(v0))
+            and r0n > 0.0 and mu > 0.0):
+        return r, v, False
+    sqrt_mu = np.sqrt(mu)
+    sigma0 = (r0 @ v0) / sqrt_mu
+    alpha = 2.0 / r0n - (v0 @ v0) / mu
+    t = tof
+    if alpha * r0n > 1e-12:
+        # Ellipse: reduce to |t| <= P/2; then |delta E| < 2 pi brackets chi = dE/sqrt(alpha).
+        period = TWO_PI / (sqrt_mu * alpha * np.sqrt(alpha))
+        t = tof - period * np.round(tof / period)
+        hi = TWO_PI / np.sqrt(alpha)
+        lo = -hi
+        chi = sqrt_mu * t * alpha
+    else:
+        # Parabola or hyperbola: F(chi) increases monotonically (dF/dchi = r > 0) and
+        # without bound; start from Vallado's hyperbolic guess when it is defined,
+        # else sqrt(mu) t / r0, and double until the root is bracketed.
+        chi = sqrt_mu * t / r0n
+        if alpha < 0.0:
+            sign_t = 1.0 if t > 0.0 else -1.0
+            arg = (-2.0 * mu * alpha * t) / (
+                r0 @ v0 + sign_t * np.sqrt(-mu / alpha) * (1.0 - r0n * alpha))
+            if arg > 0.0 and np.isfinite(arg):
+                guess = sign_t * np.sqrt(-1.0 / alpha) * np.log(arg)
+                if np.isfinite(guess) and guess * t > 0.0:
+                    chi = guess
+        lo = min(0.0, chi)
+        hi = max(0.0, chi)
+        for _ in range(200):
+            f_end, _r = _universal_time(chi, r0n, sigma0, alpha)
+            past = (not np.isfinite(f_end)) or (f_end >= sqrt_mu * t if t > 0.0
+                                                else f_end <= sqrt_mu * t)
+            if past:
                 break
-        if ok:
-            return r, v, True
-        steps *= 2
-    return np.zeros(3), np.zeros(3), False
+            if t > 0.0:
+                lo = chi
+            else:
+                hi = chi
+            chi *= 2.0
+        if t > 0.0:
+            hi = chi
+        else:
+            lo = chi
+    target = sqrt_mu * t
+    if not (lo <= chi <= hi):
+        chi = 0.5 * (lo + hi)
+    # Newton's method kept inside the bracket, bisecting when a Newton step would
+    # leave it or shrink slower than bisection ("rtsafe", Press et al., Numerical
+    # Recipes, sec. 9.4).
+    dx = hi - lo
+    dx_old = dx
+    converged = False
+    for _ in range(_PROPAGATION_ITER):
+        f_val, radius = _universal_time(chi, r0n, sigma0, alpha)
+        dx_old = dx
+        if not (np.isfinite(f_val) and np.isfinite(radius)):
+            if chi > 0.0:
+                hi = chi
+            else:
+                lo = chi
+            dx = 0.5 * (hi - lo)
+            chi = lo + dx
+            continue
+        resid = f_val - target
+        if resid > 0.0:
+            hi = chi
+        else:
+            lo = chi
+        newton = chi - resid / radius if radius > 0.0 else np.inf
+        if lo <= newton <= hi and abs(2.0 * resid) <= abs(dx_old * radius):
+            dx = chi - newton
+            chi = newton
+        else:
+            dx = 0.5 * (hi - lo)
+            chi = lo + dx
+        if abs(dx) <= 1e-12 * abs(chi) or dx == 0.0:
+            converged = True
+            break
+    if not converged:
+        return r, v, False
+    psi = alpha * chi * chi
+    c, s = _stumpff(psi)
+    _f, rn = _universal_time(chi, r0n, sigma0, alpha)
+    f = 1.0 - chi * chi / r0n * c
+    g = t - chi * chi * chi / sqrt_mu * s
+    fdot = sqrt_mu / (rn * r0n) * chi * (psi * s - 1.0)
+    gdot = 1.0 - chi * chi / rn * c
+    if not (np.isfinite(f) and np.isfinite(g) and np.isfinite(fdot) and np.isfinite(gdot)):
+        return r, v, False
+    for k in range(3):
+        r[k] = f * r0[k] + g * v0[k]
+        v[k] = fdot * r0[k] + gdot * v0[k]
+    return r, v, True
 
 
 @njit(cache=True)

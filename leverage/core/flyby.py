@@ -73,7 +73,9 @@ def bplane_angle_of(vinf_in, vinf_out, pole):
     """B-plane angle (rad, [0, 2 pi)) of the flyby that turns vinf_in into vinf_out."""
     s, t, r = bplane_frame(vinf_in, pole)
     minus_b = vinf_out - (vinf_out @ s) * s
-    return np.arctan2(-(minus_b @ r), -(minus_b @ t)) % (2.0 * np.pi)
+    angle = np.arctan2(-(minus_b @ r), -(minus_b @ t)) % (2.0 * np.pi)
+    # x % 2 pi rounds to exactly 2 pi for a tiny negative x: keep [0, 2 pi).
+    return angle if angle < 2.0 * np.pi else 0.0
 
 
 @njit(cache=True)

@@ -64,6 +64,8 @@ def launch_asymptote(vinf_ecliptic, pole_ra, pole_dec):
         return 0.0, 0.0, 0.0
     dla = np.arcsin(min(1.0, max(-1.0, eq[2] / speed)))
     rla = np.arctan2(eq[1], eq[0]) % (2.0 * np.pi)
+    if rla >= 2.0 * np.pi:  # x % 2 pi rounds to 2 pi for a tiny negative x
+        rla = 0.0
     return c3, dla, rla
 
 

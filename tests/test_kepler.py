@@ -6,6 +6,9 @@ Outside sources:
 - H. D. Curtis, Orbital Mechanics for Engineering Students, Example 3.5 (geocentric
   hyperbola) and eq. 3.32 (Barker's equation solved for a parabola).
 - scipy.optimize.brentq on M = E - e sin E (reference root finder).
+- poliastro 0.17's farnocchia_rv propagator (reference library): our universal-
+  variable solver replaced poliastro's vallado kernel, which can loop forever on a
+  nearly radial inbound hyperbola; both must agree on random heliocentric states.
 - Textbook two-body relations (common practice): vis-viva energy -mu/(2a), angular
   momentum sqrt(mu a (1 - e^2)) along (sin i sin raan, -sin i cos raan, cos i),
   r = a (1 - e cos E), escape speed sqrt(2) times circular speed; conservation of
@@ -348,3 +351,28 @@ def test_parabola_from_periapsis_follows_barker(t):
     assert ok
     assert np.linalg.norm(r) == pytest.approx(r_ref, rel=1e-9)
     assert np.arctan2(r[1], r[0]) == pytest.approx(nu, abs=1e-9)
+
+
+def test_agrees_with_poliastro_farnocchia():
+    """Reference library: poliastro.core.propagation.farnocchia.farnocchia_rv."""
+    from poliastro.core.propagation.farnocchia import farnocchia_rv
+
+    mu = 1.32712440041279419e11  # Sun, km^3/s^2 (DE440)
+    rng = np.random.default_rng(7)
+    worst = 0.0
+    for _ in range(500):
+        r0 = rng.normal(size=3) * 1.5e8
+        v0 = rng.normal(size=3) * 25.0
+        tof = rng.uniform(-3e8, 3e8)
+        r, v, ok = propagate(mu, r0, v0, tof)
+        assert ok
+        r_ref, v_ref = farnocchia_rv(mu, r0, v0, tof)
+        worst = max(worst, np.linalg.norm(r - r_ref) / np.linalg.norm(r_ref),
+                    np.linalg.norm(v - v_ref) / np.linalg.norm(v_ref))
+    assert worst < 1e-8, worst
+
+
+def test_rectilinear_state_gives_nan_elements_not_an_error():
+    """Zero angular momentum has no orbit plane (common practice); never raise."""
+    el = elements_from_state(MU_EARTH, np.array([7000.0, 0.0, 0.0]), np.array([1.0, 0.0, 0.0]))
+    assert all(np.isnan(v) for v in el)

@@ -74,7 +74,7 @@ def demo_point(u, revolutions=None):
 
 # Found by this test: a near-parabolic Lambert arc (e = 0.985, 41 km/s of DSM) on which
 # poliastro's universal-variable iteration did not settle at that one time of flight;
-# core.kepler.propagate now retries in equal sub-steps.
+# core.kepler.propagate (own safeguarded solver) must handle it.
 NEAR_PARABOLIC = [0.00390625, 0.7515833207860543, 0.65625, 0.283273024983046, 0.3125,
                   0.6635009004673834, 0.0, 0.0]
 

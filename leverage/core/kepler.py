@@ -69,9 +69,14 @@ def elements_from_state(mu, r, v):
     """Classical elements (a km, e, i, raan, argp, nu rad) from a state (km, km/s).
 
     a is negative for hyperbolas (a = -mu / v_inf^2 convention). Uses
-    poliastro.core.elements.rv2coe.
+    poliastro.core.elements.rv2coe. A rectilinear state (zero angular momentum)
+    gives NaN for every element instead of raising.
     """
-    p, ecc, inc, raan, argp, nu = rv2coe(mu, r, v, 1e-8)
+    try:
+        p, ecc, inc, raan, argp, nu = rv2coe(mu, r, v, 1e-8)
+    except Exception:
+        # rv2coe divides by |h|: a rectilinear state has no plane; never raise here.
+        return np.nan, np.nan, np.nan, np.nan, np.nan, np.nan
     a = p / (1.0 - ecc * ecc) if abs(1.0 - ecc) > 1e-12 else np.inf
     return a, ecc, inc, raan, argp, nu
 

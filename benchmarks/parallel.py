@@ -11,12 +11,14 @@ the whole process on the wall clock:
   ``run.wall_time_s``) is shown beside the process time.
 
 Runs alternate between the worker counts so a change in machine load hits both. The
-machine's load average is printed at start and end: other work on the machine slows
-both sides and shrinks the speed-up.
+machine's load average is printed at start and end, and beside each sweep figure the
+cores it actually got (CPU seconds of the child processes over wall seconds): other
+work on the machine slows both sides and shrinks the speed-up.
 
 Usage: python -m benchmarks.parallel [--repeats 3] [--slice-days 30] [--seeds 2] [--smoke]
 """
 import argparse
+import resource
 import subprocess
 import sys
 import tempfile
@@ -26,16 +28,23 @@ from pathlib import Path
 from benchmarks.common import DEMO, ROOT, leverage_run, median, print_footer, print_header
 
 
-def sweep_wall(out, slice_days, seeds, workers, extra) -> float:
+def children_cpu_s() -> float:
+    usage = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return usage.ru_utime + usage.ru_stime
+
+
+def sweep_wall(out, slice_days, seeds, workers, extra) -> tuple:
+    """(wall s, CPU s) of one ``leverage sweep`` process and its workers."""
     cmd = [sys.executable, "-m", "leverage", "sweep", str(DEMO), "--slice-days",
            str(slice_days), "--seeds", str(seeds), "--workers", str(workers), "--out", str(out),
            "--force", "--quiet", *extra]
+    cpu0 = children_cpu_s()
     start = time.perf_counter()
     proc = subprocess.run(cmd, capture_output=True, text=True, cwd=ROOT)
     wall = time.perf_counter() - start
     if proc.returncode not in (0, 3):
         raise RuntimeError(f"sweep failed ({proc.returncode}): {proc.stderr.strip()[-400:]}")
-    return wall
+    return wall, children_cpu_s() - cpu0
 
 
 def table_of(out) -> str:
@@ -67,12 +76,16 @@ def main(argv=None) -> int:
         print(f"\nsweep of the demo window: slices of {slice_days:g} days, {seeds} seed(s) "
               f"each, {repeats} repeat(s); whole process, median")
         times = {1: [], 2: []}
+        cores = {1: [], 2: []}
         for _ in range(repeats):
             for workers in (1, 2):
-                times[workers].append(sweep_wall(tmp / f"s{workers}", slice_days, seeds,
-                                                 workers, extra))
+                wall, cpu = sweep_wall(tmp / f"s{workers}", slice_days, seeds, workers, extra)
+                times[workers].append(wall)
+                cores[workers].append(cpu / wall)
         same = table_of(tmp / "s1") == table_of(tmp / "s2")
         report("sweep", times[1], times[2])
+        print(f"  cores used (CPU s / wall s, median): 1 worker {median(cores[1]):.2f}, "
+              f"2 workers {median(cores[2]):.2f}")
         print(f"  same table with 1 and 2 workers: {'yes' if same else 'NO'}")
 
         sizes = [("demo size (400 generations)", [])]

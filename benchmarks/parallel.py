@@ -3,8 +3,11 @@
 Each measurement starts the command as a user would, in a new process, and times
 the whole process on the wall clock:
 
-- ``leverage sweep problems/demo.toml --slice-days D --seeds K --workers W`` for W = 1
-  (every run in this process, one after the other) and W = 2 (two worker processes);
+- ``leverage sweep problems/demo.toml --slice-days D --seeds K --generations G
+  --workers W`` for W = 1 (every run in this process, one after the other) and W = 2
+  (two worker processes); G defaults to 2000 (about a second per run here) because
+  at the demo's 400 generations a run takes 0.2 s and the sweep's own start-up,
+  table writing and picture (about 3 s, in one process) hide the parallel part;
 - ``leverage run`` of the demo with its two islands, ``--workers 1`` (islands in turn
   in one process) and ``--workers 2`` (one worker process per island), at the demo's
   own size and with more generations; the run's own search time (``best.json``
@@ -15,7 +18,8 @@ machine's load average is printed at start and end, and beside each sweep figure
 cores it actually got (CPU seconds of the child processes over wall seconds): other
 work on the machine slows both sides and shrinks the speed-up.
 
-Usage: python -m benchmarks.parallel [--repeats 3] [--slice-days 30] [--seeds 2] [--smoke]
+Usage: python -m benchmarks.parallel [--repeats 3] [--slice-days 30] [--seeds 2]
+       [--generations 2000] [--smoke]
 """
 import argparse
 import resource
@@ -63,18 +67,20 @@ def main(argv=None) -> int:
     ap.add_argument("--repeats", type=int, default=3)
     ap.add_argument("--slice-days", type=float, default=30.0)
     ap.add_argument("--seeds", type=int, default=2)
+    ap.add_argument("--generations", type=int, default=2000, help="per sweep run")
     ap.add_argument("--smoke", action="store_true", help="tiny sizes, one repeat")
     args = ap.parse_args(argv)
     repeats = 1 if args.smoke else args.repeats
     slice_days = 180.0 if args.smoke else args.slice_days
     seeds = 1 if args.smoke else args.seeds
-    extra = ["--generations", "20", "--population", "8"] if args.smoke else []
+    extra = (["--generations", "20", "--population", "8"] if args.smoke
+             else ["--generations", str(args.generations)])
     print_header("speed-up from 1 to 2 workers")
 
     with tempfile.TemporaryDirectory(prefix="leverage-parallel-") as tmp:
         tmp = Path(tmp)
         print(f"\nsweep of the demo window: slices of {slice_days:g} days, {seeds} seed(s) "
-              f"each, {repeats} repeat(s); whole process, median")
+              f"each, {' '.join(extra)}, {repeats} repeat(s); whole process, median")
         times = {1: [], 2: []}
         cores = {1: [], 2: []}
         for _ in range(repeats):

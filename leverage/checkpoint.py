@@ -18,6 +18,8 @@ killed run) could lose the unsynced last seconds. Format: a Python pickle
   pygmo populations and algorithms, whose pickles carry each algorithm's random-engine
   state, the evolution count, evaluation count and convergence history), so any
   search class with a picklable ``state`` checkpoints the same way;
+- ``champion``: ``{"x": [...], "f": [...]}``, the search's best so far (for people
+  reading a checkpoint; a resume takes it from the state);
 - ``elapsed_s``: search wall time so far (s); ``saved_utc``.
 
 A pickle runs code when loaded: only resume from checkpoints you wrote yourself.
@@ -69,6 +71,7 @@ def save(folder, problem, settings, search, sync: bool = True) -> Path:
         "island_seeds": island_seeds(settings),
         "search_class": f"{type(search).__module__}.{type(search).__qualname__}",
         "state": search.state,
+        "champion": {k: [float(v) for v in a] for k, a in zip(("x", "f"), search.champion())},
         "elapsed_s": time.monotonic() - search.start_time,
         "saved_utc": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()),
     }

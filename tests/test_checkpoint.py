@@ -52,6 +52,7 @@ def test_save_load_continue_gives_the_same_champion(demo_path, tmp_path):
     assert data["problem_sha256"] == problem.sha256
     assert data["island_seeds"] == [7000, 7001]
     assert data["state"].evolution == 2
+    assert data["champion"]["f"] == first.champion()[1].tolist()
 
     resumed, _ = small_search(problem)
     checkpoint.restore(resumed, data)

@@ -181,10 +181,18 @@ class Sweep:
         self.tasks = [Task(sl.number, seed, f"runs/{sl.name}-seed-{seed}", prob,
                            replace(self.settings, seed=seed))
                       for sl, prob in zip(self.slices, problems) for seed in self.seeds]
+        self._done = {}  # folder -> record of a finished run
+        self._redo = False  # True: runs already on disk do not count (--force)
 
     def finished(self, task: Task) -> dict | None:
-        return sweep_report.finished_record(self.out_dir / task.folder,
-                                            task.problem.sha256, task.seed)
+        """The record of a finished run (read from disk once, then kept)."""
+        record = self._done.get(task.folder)
+        if record is None and not self._redo:
+            record = sweep_report.finished_record(self.out_dir / task.folder,
+                                                  task.problem.sha256, asdict(task.settings))
+            if record is not None:
+                self._done[task.folder] = record
+        return record
 
     def rows(self) -> list:
         out = []
@@ -215,7 +223,8 @@ class Sweep:
     def run(self, workers: int | None = None, cluster_spec: str | None = None,
             progress: SweepProgress | None = None, redo: bool = False, echo=print) -> int:
         """Run every task not already done; returns the exit code."""
-        pending = [t for t in self.tasks if redo or self.finished(t) is None]
+        self._redo = redo
+        pending = [t for t in self.tasks if self.finished(t) is None]
         progress = progress or SweepProgress(len(self.tasks), len(self.slices))
         done = len(self.tasks) - len(pending)
         if done:
@@ -229,7 +238,7 @@ class Sweep:
                 failures.append(task)
                 progress.line(f"sweep: {task.folder} failed: {result['error']}")
                 return
-            write_run(self.out_dir, task, result)
+            self._done[task.folder] = write_run(self.out_dir, task, result)
             done += 1
             self.write_table("running")
             progress.update(done, self._rows)

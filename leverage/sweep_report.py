@@ -25,15 +25,16 @@ KEY_NUMBERS = {"c3_km2_s2": "c3", "dla_deg": "dla", "dsm_km_s": "dsm",
                "total_dv_km_s": "total_dv"}
 
 
-def finished_record(folder, sha256: str, seed: int) -> dict | None:
-    """best.json of a run folder if that run completed for this problem text and seed."""
+def finished_record(folder, sha256: str, search: dict) -> dict | None:
+    """best.json of a run folder if that run completed for this problem text and these
+    search settings (``SearchSettings`` as a dict, seed included)."""
     path = folder / "best.json"
     if not path.is_file():
         return None
     try:
         record = read_json(path)
         ok = (record.get("status") == "complete" and record["problem"]["sha256"] == sha256
-              and record["search"]["seed"] == seed)
+              and all(record["search"].get(k) == v for k, v in search.items()))
     except (ValueError, KeyError, TypeError, OSError):
         return None
     return record if ok else None

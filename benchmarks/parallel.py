@@ -68,6 +68,7 @@ def main(argv=None) -> int:
     ap.add_argument("--slice-days", type=float, default=30.0)
     ap.add_argument("--seeds", type=int, default=2)
     ap.add_argument("--generations", type=int, default=2000, help="per sweep run")
+    ap.add_argument("--only", choices=("sweep", "run"), help="measure only one of the two")
     ap.add_argument("--smoke", action="store_true", help="tiny sizes, one repeat")
     args = ap.parse_args(argv)
     repeats = 1 if args.smoke else args.repeats
@@ -79,47 +80,63 @@ def main(argv=None) -> int:
 
     with tempfile.TemporaryDirectory(prefix="leverage-parallel-") as tmp:
         tmp = Path(tmp)
-        print(f"\nsweep of the demo window: slices of {slice_days:g} days, {seeds} seed(s) "
-              f"each, {' '.join(extra)}, {repeats} repeat(s); whole process, median")
-        times = {1: [], 2: []}
-        cores = {1: [], 2: []}
-        for _ in range(repeats):
-            for workers in (1, 2):
-                wall, cpu = sweep_wall(tmp / f"s{workers}", slice_days, seeds, workers, extra)
-                times[workers].append(wall)
-                cores[workers].append(cpu / wall)
-        same = table_of(tmp / "s1") == table_of(tmp / "s2")
-        report("sweep", times[1], times[2])
-        print(f"  cores used (CPU s / wall s, median): 1 worker {median(cores[1]):.2f}, "
-              f"2 workers {median(cores[2]):.2f}")
-        print(f"  same table with 1 and 2 workers: {'yes' if same else 'NO'}")
-
-        sizes = [("demo size (400 generations)", [])]
-        if args.smoke:
-            sizes = [("smoke size", ["--generations", "20", "--population", "8"])]
-        else:
-            sizes.append(("4000 generations", ["--generations", "4000"]))
-        print(f"\nleverage run of the demo, 2 islands, {repeats} repeat(s); "
-              "process wall time and search time, median")
-        for label, options in sizes:
-            walls = {1: [], 2: []}
-            search = {1: [], 2: []}
-            answers = {}
-            for _ in range(repeats):
-                for workers in (1, 2):
-                    res = leverage_run(DEMO, tmp / f"r{workers}", "--islands", "2",
-                                       "--workers", str(workers), *options)
-                    if res["best"] is None:
-                        raise RuntimeError(res["stderr"][-400:])
-                    walls[workers].append(res["process_wall_s"])
-                    search[workers].append(res["best"]["run"]["wall_time_s"])
-                    answers[workers] = res["best"]["decision_vector"]["values"]
-            report(f"run, {label}: process", walls[1], walls[2])
-            report(f"run, {label}: search", search[1], search[2])
-            print(f"  same champion with 1 and 2 workers: "
-                  f"{'yes' if answers[1] == answers[2] else 'NO'}")
+        if args.only != "run":
+            measure_sweep(tmp, slice_days, seeds, extra, repeats)
+        if args.only != "sweep":
+            measure_runs(tmp, repeats, args.smoke)
     print_footer()
     return 0
+
+
+def measure_sweep(tmp, slice_days, seeds, extra, repeats):
+    """Whole `leverage sweep` processes with 1 and 2 workers."""
+    print(f"\nsweep of the demo window: slices of {slice_days:g} days, {seeds} seed(s) "
+          f"each, {' '.join(extra)}, {repeats} repeat(s); whole process, median")
+    times = {1: [], 2: []}
+    cores = {1: [], 2: []}
+    for _ in range(repeats):
+        for workers in (1, 2):
+            wall, cpu = sweep_wall(tmp / f"s{workers}", slice_days, seeds, workers, extra)
+            times[workers].append(wall)
+            cores[workers].append(cpu / wall)
+    same = table_of(tmp / "s1") == table_of(tmp / "s2")
+    report("sweep", times[1], times[2])
+    print(f"  cores used (CPU s / wall s, median): 1 worker {median(cores[1]):.2f}, "
+          f"2 workers {median(cores[2]):.2f}")
+    print(f"  same table with 1 and 2 workers: {'yes' if same else 'NO'}")
+
+
+def measure_runs(tmp, repeats, smoke):
+    """Whole `leverage run` processes of the demo, 2 islands, with 1 and 2 workers."""
+    sizes = [("demo size (400 generations)", [])]
+    if smoke:
+        sizes = [("smoke size", ["--generations", "20", "--population", "8"])]
+    else:
+        sizes.append(("4000 generations", ["--generations", "4000"]))
+    print(f"\nleverage run of the demo, 2 islands, {repeats} repeat(s); "
+          "process wall time and search time, median")
+    for label, options in sizes:
+        walls = {1: [], 2: []}
+        search = {1: [], 2: []}
+        cores = {1: [], 2: []}
+        answers = {}
+        for _ in range(repeats):
+            for workers in (1, 2):
+                cpu0 = children_cpu_s()
+                res = leverage_run(DEMO, tmp / f"r{workers}", "--islands", "2",
+                                   "--workers", str(workers), *options)
+                if res["best"] is None:
+                    raise RuntimeError(res["stderr"][-400:])
+                walls[workers].append(res["process_wall_s"])
+                cores[workers].append((children_cpu_s() - cpu0) / res["process_wall_s"])
+                search[workers].append(res["best"]["run"]["wall_time_s"])
+                answers[workers] = res["best"]["decision_vector"]["values"]
+        report(f"run, {label}: process", walls[1], walls[2])
+        report(f"run, {label}: search", search[1], search[2])
+        print(f"  cores used by the whole process (median): 1 worker {median(cores[1]):.2f}, "
+              f"2 workers {median(cores[2]):.2f}")
+        print(f"  same champion with 1 and 2 workers: "
+              f"{'yes' if answers[1] == answers[2] else 'NO'}")
 
 
 if __name__ == "__main__":

@@ -107,6 +107,10 @@ class StopSignals:
         """Note signals from now on instead of raising."""
         self.armed = False
 
+    def arm(self):
+        """Raise on the next signal again (only if none came while held)."""
+        self.armed = self.received is None
+
     def __exit__(self, *exc):
         self.armed = False
         for sig, old in self._old.items():
@@ -254,7 +258,11 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
                 progress.note(f"interrupted ({why}) at evolution {search.state.evolution}: "
                               "writing the best design found so far")
         finally:
+            stop.hold()  # shutting the workers down is not to be cut short
             evolver.close()
+        if status == "complete" and stop.received:
+            status = "interrupted"  # asked to stop while the workers shut down: no polish
+        stop.arm()
         try:
             record = finish(problem, settings, compiled, udp, search, status,
                             out_dir / "front.csv", run_info)

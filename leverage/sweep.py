@@ -27,6 +27,7 @@ from pathlib import Path
 from . import CAUTION, cluster, summary, sweep_report
 from .islands import SerialIslands, cpu_count
 from .errors import NO_VALUE, ProblemError
+from .fronts import search_class
 from .result import read_json, write_atomic, write_json
 from .runner import LOG_COLUMNS, StopSignals, finish, make_search
 from .search import SearchSettings
@@ -175,6 +176,9 @@ class Sweep:
 
     def prepare(self):
         """Write sweep.json and the slice problem files; make the tasks."""
+        # A settings mismatch (e.g. --algorithm for the wrong goal) is one line here,
+        # before anything is written, not one failure per run.
+        search_class(self.problem.compile(), self.settings)
         self.out_dir.mkdir(parents=True, exist_ok=True)
         write_json(self.out_dir / "sweep.json", self.meta)
         problems = write_slice_problems(self.problem, self.slices, self.out_dir / "slices")

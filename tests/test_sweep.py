@@ -7,7 +7,6 @@ to ``leverage run`` on the same slice file and seed (the same champion, bit for 
 """
 import csv
 import json
-from datetime import datetime, timedelta
 
 import pytest
 from astropy.time import Time

@@ -2,15 +2,17 @@
 
 For each reference problem with an entry in ``benchmarks/best_known.json`` (see
 ``benchmarks/best_known.py``) and each algorithm, run ``leverage run`` once per seed
-(1..N) at the problem's own [search] settings (the defaults unless overridden here)
-and count the runs whose final design is feasible with an objective within 1 m/s
+(1..N) at the default settings (``leverage.schema``'s [search] population, generations
+and islands, passed on the command line so a problem file's own [search] values do
+not count; ``--file-settings`` uses them instead) and count the runs whose final design is feasible with an objective within 1 m/s
 (0.001 in the objective's km/s) of the best-known one. Time to get there is read from
 the run's own convergence log: the wall time (from the start of the search) of the
 first evolution whose best objective is within the tolerance, or the whole run
 (search and polish) when only the polish got there.
 
 Usage: python -m benchmarks.search_quality [--problems demo,earth-3yr] [--algorithms sade,pso]
-       [--seeds 20] [--population N] [--generations N] [--islands N] [--smoke]
+       [--seeds 20] [--population N] [--generations N] [--islands N] [--file-settings]
+       [--smoke]
 """
 import argparse
 import json
@@ -20,7 +22,7 @@ from pathlib import Path
 
 from benchmarks.best_known import OUT as BEST_KNOWN, REFERENCES
 from benchmarks.common import leverage_run, median, print_footer, print_header
-from leverage.schema import ALGORITHMS
+from leverage.schema import ALGORITHMS, keys_by_section
 
 TOLERANCE = 0.001  # objective units (km/s): 1 m/s
 
@@ -56,21 +58,28 @@ def main(argv=None) -> int:
     ap.add_argument("--population", type=int)
     ap.add_argument("--generations", type=int)
     ap.add_argument("--islands", type=int)
+    ap.add_argument("--file-settings", action="store_true",
+                    help="each problem file's own [search] values instead of the defaults")
     ap.add_argument("--smoke", action="store_true", help="tiny: demo, 2 seeds, 1 evolution")
     args = ap.parse_args(argv)
+    if not args.file_settings:
+        defaults = keys_by_section()["search"]
+        for name in ("population", "generations", "islands"):
+            if getattr(args, name) is None:
+                setattr(args, name, defaults[name].default)
     options = []
     if args.smoke:
         args.problems, args.seeds = "demo", 2
         args.algorithms = args.algorithms if "," not in args.algorithms else "sade"
-        args.generations, args.islands = args.generations or 50, args.islands or 1
+        args.generations, args.islands, args.population = 50, 1, 16
     for name in ("population", "generations", "islands"):
         if getattr(args, name) is not None:
             options += [f"--{name}", getattr(args, name)]
     print_header("search quality" + (" (smoke: tiny sizes, figures meaningless)" if args.smoke
                                      else ""))
     known = json.loads(BEST_KNOWN.read_text()) if BEST_KNOWN.exists() else {}
-    print(f"settings: each problem's own [search] values"
-          + (f", overridden by {' '.join(map(str, options))}" if options else "")
+    source = "each problem file's [search] values" if args.file_settings else "the defaults"
+    print(f"settings: {source}, {' '.join(map(str, options)) or 'no overrides'}"
           + f"; seeds 1..{args.seeds}; hit = feasible and within {TOLERANCE * 1000:.0f} m/s "
           "of the best-known objective")
     summary = []

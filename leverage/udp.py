@@ -4,10 +4,19 @@ pygmo's pattern (inherit nothing; ``fitness``, ``get_bounds``, ``get_nobj``,
 ``batch_fitness``). Worker processes unpickle it by importing this module, so it
 holds only numpy arrays and module-level jitted functions.
 """
-import numpy as np
-import pygmo as pg
+import os
 
-from .core import trajectory
+# numba's default threading layer here is GNU OpenMP, whose idle threads spin. On a
+# shared or busy machine a spinning thread takes the core from the one with work, and
+# a batch of 24-64 points on 2 threads ran 10-50x slower than on one
+# (benchmarks/README.md). Passive waiting only adds a wake-up per batch. Must be set
+# before the first numba-parallel call loads OpenMP; a value the user set is kept.
+os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
+
+import numpy as np  # noqa: E402
+import pygmo as pg  # noqa: E402
+
+from .core import trajectory  # noqa: E402
 
 
 class LeveragingUDP:

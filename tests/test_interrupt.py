@@ -10,6 +10,7 @@ the same seed: both must end on the very same champion and log.
 import csv
 import json
 import os
+import re
 import signal
 import subprocess
 import sys
@@ -30,9 +31,10 @@ TIMEOUT_S = 240  # no test here may hang CI
 def problem_file(demo_path: Path, folder: Path, generations: int) -> Path:
     """The demo problem with many short evolutions (20 generations each)."""
     text = demo_path.read_text()
-    text = text.replace("generations = 400", f"generations = {generations}")
+    # Patterns, not the demo's literal values, so a change of the demo's [search] keeps this.
+    text = re.sub(r"(?m)^generations = \d+$", f"generations = {generations}", text)
     text = text.replace("generations_per_migration = 50", "generations_per_migration = 20")
-    text = text.replace("population = 24", "population = 16")
+    text = re.sub(r"(?m)^population = \d+$", "population = 16", text)
     assert f"generations = {generations}" in text and "generations_per_migration = 20" in text
     path = folder / "problem.toml"
     path.write_text(text)

@@ -24,36 +24,17 @@ killed run) could lose the unsynced last seconds. Format: a Python pickle
 
 A pickle runs code when loaded: only resume from checkpoints you wrote yourself.
 """
-import os
 import pickle
-import tempfile
 import time
 from dataclasses import asdict
 from pathlib import Path
 
 from .errors import NO_VALUE, ProblemError
+from .result import write_bytes_atomic
 
 FILE_NAME = "checkpoint.pickle"
 FORMAT = "leverage-checkpoint/1"
 SYNC_EVERY_S = 10.0
-
-
-def write_bytes_atomic(path, data: bytes, sync: bool = True) -> None:
-    """Write bytes via a temporary file in the same folder (fsync'd if ``sync``) and a
-    rename."""
-    path = Path(path)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            if sync:
-                os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
 
 
 def island_seeds(settings) -> list:

@@ -12,7 +12,7 @@ from pathlib import Path
 import tomli
 
 from . import CAUTION
-from .result import as_float
+from .summary import fmt_number
 
 # label, derived quantity, digits
 KEY_NUMBERS = [
@@ -33,12 +33,7 @@ COL = 14
 
 
 def _num(value, digits) -> str:
-    v = as_float(value) if not isinstance(value, str) else float(value)
-    if math.isnan(v):
-        return "n/a"
-    if math.isinf(v):
-        return "unbounded" if v > 0 else "-inf"
-    return f"{v:,.{digits}f}"
+    return fmt_number(value, digits, thousands=True)
 
 
 def _event(record, name):

@@ -18,6 +18,8 @@ from . import times
 from .core import layout as L
 
 AU_KM = 149_597_870.700
+_UMASK = os.umask(0o022)
+os.umask(_UMASK)  # read without changing it
 
 # name, slot, unit, factor from the kernel's unit, meaning
 DERIVED = [
@@ -162,20 +164,32 @@ def package_versions() -> dict:
             "astropy": astropy.__version__}
 
 
-def write_atomic(path, text: str) -> None:
-    """Write text to path via a temporary file in the same folder and a rename."""
+def write_bytes_atomic(path, data: bytes, sync: bool = True) -> None:
+    """Write bytes to path via a temporary file in the same folder and a rename.
+
+    The file is fsync'd first when ``sync`` (a crash then leaves the old file or the
+    new one, never a partial one). It gets the usual permissions (0666 less the
+    umask), not mkstemp's owner-only 0600.
+    """
     path = Path(path)
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
             fh.flush()
-            os.fsync(fh.fileno())
+            if sync:
+                os.fsync(fh.fileno())
+        os.chmod(tmp, 0o666 & ~_UMASK)
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):
             os.unlink(tmp)
         raise
+
+
+def write_atomic(path, text: str) -> None:
+    """Write text (UTF-8) to path atomically; see ``write_bytes_atomic``."""
+    write_bytes_atomic(path, text.encode("utf-8"))
 
 
 def write_json(path, data: dict) -> None:

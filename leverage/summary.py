@@ -9,13 +9,17 @@ from . import CAUTION
 from .result import as_float
 
 
-def _fmt(value, digits=3):
+def fmt_number(value, digits=3, thousands=False):
+    """A record value as text: 'n/a' for missing, 'unbounded' for +inf."""
     v = as_float(value) if not isinstance(value, str) else float(value)
     if math.isnan(v):
         return "n/a"
     if math.isinf(v):
         return "unbounded" if v > 0 else "-inf"
-    return f"{v:.{digits}f}"
+    return f"{v:,.{digits}f}" if thousands else f"{v:.{digits}f}"
+
+
+_fmt = fmt_number
 
 
 def _d(record, name, digits=3):

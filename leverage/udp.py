@@ -6,12 +6,15 @@ holds only numpy arrays and module-level jitted functions.
 """
 import os
 
-# numba's default threading layer here is GNU OpenMP, whose idle threads spin. On a
-# shared or busy machine a spinning thread takes the core from the one with work, and
-# a batch of 24-64 points on 2 threads ran 10-50x slower than on one
-# (benchmarks/README.md). Passive waiting only adds a wake-up per batch. Must be set
-# before the first numba-parallel call loads OpenMP; a value the user set is kept.
-os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
+# numba's threading layer here is GNU OpenMP, whose idle threads spin for about 300,000
+# turns before sleeping. On a busy machine a spinning thread takes the core from the one
+# with work: a batch of 24-64 points on 2 threads ran 2-40x slower than on one. Never
+# spinning (OMP_WAIT_POLICY=PASSIVE) loses the 2-thread gain on small batches of a quiet
+# machine; 1,000 turns kept most of it and never fell behind one thread
+# (benchmarks/README.md). Read when the first numba-parallel call loads OpenMP; a user's
+# own setting is kept.
+if "OMP_WAIT_POLICY" not in os.environ:
+    os.environ.setdefault("GOMP_SPINCOUNT", "1000")
 
 import numpy as np  # noqa: E402
 import pygmo as pg  # noqa: E402

@@ -75,6 +75,12 @@ def measure_floor(compiled, xs, repeats):
     out[f"batch, {threads} threads (wall)"] = wall
     out[f"batch, {threads} threads (per core)"] = wall * threads
 
+    def chunks():
+        for i in range(0, n, 64):
+            trajectory.batch_fitness(xs[i:i + 64], p)
+    wall = best_of(repeats, chunks) / n * 1e6
+    out[f"batches of 64, {threads} threads (per core)"] = wall * threads
+
     def per_call():
         for x in xs:
             trajectory.fitness(x, p)
@@ -122,6 +128,23 @@ def measure_in_process(compiled, evaluations, population):
         out[f"pso_gen + batch evaluation, population {pop_size}"] = (
             wall / (pop.problem.get_fevals() - before) * 1e6)
     numba.set_num_threads(threads)
+    if FRONT_PROBLEM.exists() and importlib.util.find_spec("leverage.fronts"):
+        front = load_problem(FRONT_PROBLEM).compile()
+        front_udp = LeveragingUDP.from_compiled(front)
+        size = 64
+        gens = max(1, evaluations // size)
+        for n_threads in sorted({1, threads}):
+            numba.set_num_threads(n_threads)
+            uda = pg.nsga2(gen=gens, seed=1)
+            uda.set_bfe(pg.bfe())
+            pop = pg.population(pg.problem(front_udp), size, b=pg.bfe(), seed=1)
+            before = pop.problem.get_fevals()
+            start = time.perf_counter()
+            pop = pg.algorithm(uda).evolve(pop)
+            wall = time.perf_counter() - start
+            out[f"trade-front: nsga2 + batch evaluation, pop. {size}, {n_threads} thread(s), "
+                f"per core"] = wall * n_threads / (pop.problem.get_fevals() - before) * 1e6
+        numba.set_num_threads(threads)
     return out
 
 
@@ -140,6 +163,8 @@ def run_rates(label, problem, cores, *options):
            "us_per_eval_per_core": wall * cores / evals * 1e6}
     # Steady state: from the end of the first evolution (which includes starting the
     # worker processes) to the end of the last, from the convergence log.
+    # Island rows only: a front run's log also has an all-islands "front" row per evolution.
+    log = [r for r in log if isinstance(r["island"], float)]
     evolutions = sorted({int(r["evolution"]) for r in log})
     if len(evolutions) >= 2:
         first = [r for r in log if int(r["evolution"]) == evolutions[0]]
@@ -201,11 +226,22 @@ def main(argv=None) -> int:
     for key, value in floor.items():
         print(f"  {key:<40} {value:8.2f} us/evaluation")
     floor_us = floor["batch, 1 thread"]
+    if FRONT_PROBLEM.exists():
+        # The front template has its own limits; its floor, for comparison with the demo's.
+        front = load_problem(FRONT_PROBLEM).compile()
+        fxs = random_points(front, args.points)
+        trajectory.batch_fitness(fxs[:4], front.params)
+        threads = numba.get_num_threads()
+        numba.set_num_threads(1)
+        front_floor = best_of(args.repeats, lambda: trajectory.batch_fitness(fxs, front.params))
+        numba.set_num_threads(threads)
+        print(f"  {'trade-front problem: batch, 1 thread':<40} "
+              f"{front_floor / args.points * 1e6:8.2f} us/evaluation")
 
-    print(f"\n2. algorithms evolving one population in this process, 1 numba thread, "
-          f"{args.in_process_evaluations} evaluations each (random start population)")
+    print(f"\n2. algorithms evolving one population in this process, 1 numba thread unless "
+          f"said, {args.in_process_evaluations} evaluations each (random start population)")
     for key, value in measure_in_process(compiled, args.in_process_evaluations, 24).items():
-        print(f"  {key:<48} {value:8.2f} us/evaluation  {value / floor_us:5.2f} x floor")
+        print(f"  {key:<72} {value:8.2f} us/evaluation  {value / floor_us:5.2f} x floor")
 
     print("\n3. real `leverage run` processes (the run's own numbers)")
     runs = []

@@ -2,9 +2,10 @@
 
 ``python -m benchmarks.first_evaluation MARKER_FILE leverage-arguments...`` runs
 ``leverage.cli.main`` with the given arguments unchanged; the only addition is that the
-first call of the pygmo problem's fitness or batch fitness writes the wall-clock time
-(``time.time()``, s) to MARKER_FILE, once. The parent process compares it with the
-wall-clock time at which it started this process.
+first call of the pygmo problem's fitness or batch fitness writes two wall-clock times
+(``time.time()``, s) to MARKER_FILE, once: when it started and when it returned (the
+first call loads, or on a cold cache compiles, the kernels). The parent process
+compares them with the wall-clock time at which it started this process.
 """
 import sys
 import time
@@ -15,18 +16,17 @@ _marker = sys.argv[1]
 _noted = False
 
 
-def _note():
-    global _noted
-    if not _noted:
-        _noted = True
-        with open(_marker, "w", encoding="utf-8") as fh:
-            fh.write(repr(time.time()))
-
-
 def _wrap(method):
     def wrapper(self, *args):
-        _note()
-        return method(self, *args)
+        global _noted
+        if _noted:
+            return method(self, *args)
+        _noted = True
+        start = time.time()
+        out = method(self, *args)
+        with open(_marker, "w", encoding="utf-8") as fh:
+            fh.write(f"{start!r} {time.time()!r}")
+        return out
     wrapper.__name__ = method.__name__
     wrapper.__doc__ = method.__doc__
     return wrapper

@@ -4,11 +4,12 @@ Each measurement starts a new process and times, on the wall clock:
 - ``python -c pass`` (the interpreter alone);
 - importing the command (``import leverage.cli`` plus every subcommand module, which is
   what ``leverage`` does before parsing its arguments);
-- ``leverage run`` of the demo with one evolution on one island (1,224 evaluations),
+- ``leverage run`` of the demo with one generation (``--generations 1``) on one island,
   through ``benchmarks/first_evaluation.py``, which notes when the first evaluation
-  starts without changing what the command does: time to the first evaluation and to
-  the end of the process; and the same with the demo's own two islands (worker
-  processes start at the first evolution).
+  returns (kernels loaded from the numba cache, or compiled when it is cold) without
+  changing what the command does: time to the first evaluation and to the end of the
+  process (which includes the run's pictures and verification); and the same with the
+  demo's own two islands (worker processes start at the first evolution).
 Cold: NUMBA_CACHE_DIR and XDG_CACHE_HOME point at a fresh temporary folder, so every
 kernel compiles. ``--new-venv`` also builds a fresh virtual environment with
 ``pip install -e .`` (downloads every dependency) and measures a cold start in it.
@@ -40,7 +41,7 @@ def timed(cmd, env=None) -> float:
 
 
 def first_evaluation(python, islands, env=None) -> tuple:
-    """(s to the first evaluation, s to the end) of a one-evolution demo run."""
+    """(s to the end of the first evaluation, s to the end) of a one-generation demo run."""
     with tempfile.TemporaryDirectory(prefix="leverage-start-") as tmp:
         marker = Path(tmp) / "first"
         cmd = [python, "-m", "benchmarks.first_evaluation", str(marker), "run", str(DEMO),
@@ -48,7 +49,7 @@ def first_evaluation(python, islands, env=None) -> tuple:
                "--islands", str(islands)]
         t0 = time.time()
         total = timed(cmd, env)
-        first = float(marker.read_text()) - t0
+        first = float(marker.read_text().split()[1]) - t0
     return first, total
 
 
@@ -92,7 +93,8 @@ def cold_run(python, label):
     env, folder = cold_env()
     try:
         first, total = first_evaluation(python, 1, env)
-        print(f"  {label}: to first evaluation {first:.2f} s, whole process {total:.2f} s")
+        print(f"  {label}: to first evaluation {first:.2f} s, whole process {total:.2f} s "
+          "(one generation, then pictures and verification)")
         sys.stdout.flush()
         return first, total
     finally:

@@ -8,7 +8,7 @@ import os
 
 # numba's threading layer here is GNU OpenMP, whose idle threads spin for about 300,000
 # turns before sleeping. On a busy machine a spinning thread takes the core from the one
-# with work: a batch of 24-64 points on 2 threads ran 2-40x slower than on one. Never
+# with work: a batch of 24-64 points on 2 threads ran 2-45x slower than on one. Never
 # spinning (OMP_WAIT_POLICY=PASSIVE) loses the 2-thread gain on small batches of a quiet
 # machine; 1,000 turns kept most of it and never fell behind one thread
 # (benchmarks/README.md). Read when the first numba-parallel call loads OpenMP; a user's

@@ -31,8 +31,8 @@ import pygmo as pg
 from benchmarks.common import BENCH_PROBLEMS, DEMO, print_footer, print_header
 from leverage.core import layout as L
 from leverage.core import trajectory
-from leverage.problem import load_problem
-from leverage.udp import LeveragingUDP
+from leverage.problem.load import load_problem
+from leverage.search.udp import LeveragingUDP
 
 OUT = Path(__file__).resolve().parent / "best_known.json"
 REFERENCES = {

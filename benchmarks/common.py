@@ -38,7 +38,7 @@ def cpu_model() -> str:
 
 def machine() -> dict:
     """Cores, CPU, Python and package versions of this machine."""
-    from leverage.result import package_versions
+    from leverage.record.design import package_versions
 
     return {"cores": os.cpu_count(), "cpu": cpu_model(), "platform": platform.platform(),
             "packages": package_versions()}

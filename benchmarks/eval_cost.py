@@ -37,9 +37,9 @@ import pygmo as pg
 from benchmarks.common import DEMO, ROOT, leverage_run, print_footer, print_header
 from leverage.core import layout as L
 from leverage.core import trajectory
-from leverage.problem import load_problem
-from leverage.search import make_algorithm
-from leverage.udp import LeveragingUDP
+from leverage.problem.load import load_problem
+from leverage.search.single import make_algorithm
+from leverage.search.udp import LeveragingUDP
 
 FRONT_PROBLEM = ROOT / "problems" / "trade-front.toml"
 SINGLE_ALGORITHMS = ("sade", "de", "de1220", "pso", "cmaes")
@@ -128,7 +128,7 @@ def measure_in_process(compiled, evaluations, population):
         out[f"pso_gen + batch evaluation, population {pop_size}"] = (
             wall / (pop.problem.get_fevals() - before) * 1e6)
     numba.set_num_threads(threads)
-    if FRONT_PROBLEM.exists() and importlib.util.find_spec("leverage.fronts"):
+    if FRONT_PROBLEM.exists() and importlib.util.find_spec("leverage.search.fronts"):
         front = load_problem(FRONT_PROBLEM).compile()
         front_udp = LeveragingUDP.from_compiled(front)
         size = 64
@@ -251,7 +251,7 @@ def main(argv=None) -> int:
         runs.append(run_rates(f"demo, its settings ({islands} islands)", DEMO,
                               min(islands, cores)))
     runs.append(run_rates("demo, --islands 1", DEMO, 1, "--islands", "1", *smoke_opts))
-    if importlib.util.find_spec("leverage.fronts") and FRONT_PROBLEM.exists():
+    if importlib.util.find_spec("leverage.search.fronts") and FRONT_PROBLEM.exists():
         runs.append(run_rates("trade-front (multi-objective, batch evaluation)", FRONT_PROBLEM,
                               cores, *(["--generations", "4"] if args.smoke else [])))
     else:

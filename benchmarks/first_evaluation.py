@@ -10,7 +10,7 @@ compares them with the wall-clock time at which it started this process.
 import sys
 import time
 
-from leverage.udp import LeveragingUDP
+from leverage.search.udp import LeveragingUDP
 
 _marker = sys.argv[1]
 _noted = False

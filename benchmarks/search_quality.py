@@ -20,9 +20,10 @@ import sys
 import tempfile
 from pathlib import Path
 
-from benchmarks.best_known import OUT as BEST_KNOWN, REFERENCES
+from benchmarks.best_known import OUT as BEST_KNOWN
+from benchmarks.best_known import REFERENCES
 from benchmarks.common import leverage_run, median, print_footer, print_header
-from leverage.schema import ALGORITHMS, keys_by_section
+from leverage.problem.schema import ALGORITHMS, keys_by_section
 
 TOLERANCE = 0.001  # objective units (km/s): 1 m/s
 

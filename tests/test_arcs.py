@@ -12,12 +12,19 @@ import math
 import numpy as np
 import pytest
 
-from leverage import bodies
-from leverage.arcs import (DAY_S, body_orbit, design_arcs, event_states, outgoing_span_s,
-                           sample_times, target_orbit)
+from leverage.astro import bodies
 from leverage.core.kepler import propagate
-from leverage.integrate import two_body
-from leverage.result import read_json
+from leverage.fileio import read_json
+from leverage.record.arcs import (
+    DAY_S,
+    body_orbit,
+    design_arcs,
+    event_states,
+    outgoing_span_s,
+    sample_times,
+    target_orbit,
+)
+from leverage.verify.integrate import two_body
 
 MU = bodies.GM_SUN_KM3_S2
 

@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 from astropy import constants as const
 
-from leverage import bodies
+from leverage.astro import bodies
 
 M3_TO_KM3 = 1e-9
 

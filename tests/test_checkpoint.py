@@ -11,13 +11,13 @@ import pickle
 import numpy as np
 import pytest
 
-from leverage import checkpoint
 from leverage.cli import main as cli_main
 from leverage.errors import ProblemError
-from leverage.islands import ProcessIslands, SerialIslands
-from leverage.problem import load_problem
-from leverage.runner import make_search, resumed_settings, settings_from
-from leverage.udp import LeveragingUDP
+from leverage.problem.load import load_problem
+from leverage.run.runner import make_search, resumed_settings, settings_from
+from leverage.search import checkpoint
+from leverage.search.islands import ProcessIslands, SerialIslands
+from leverage.search.udp import LeveragingUDP
 
 SMALL = {"islands": 2, "population": 10, "generations": 60, "generations_per_migration": 10,
          "seed": 7}

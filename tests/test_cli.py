@@ -21,8 +21,9 @@ from pathlib import Path
 import pytest
 from astropy.time import Time
 
-from leverage import CAUTION, afterrun
+from leverage import CAUTION
 from leverage.cli import main
+from leverage.run import afterrun
 
 ROOT = Path(__file__).resolve().parent.parent
 PROBLEMS = ROOT / "problems"
@@ -284,10 +285,10 @@ def test_check_lists_variables_with_bounds_and_units(name, capsys):
     path = PROBLEMS / f"{name}.toml"
     assert main(["check", str(path), "--samples", "3"]) == 0
     out = capsys.readouterr().out
-    from leverage.problem import load_problem
+    from leverage.problem.load import load_problem
     compiled = load_problem(path).compile()
     for var, lo, hi, unit in zip(compiled.names, compiled.lower, compiled.upper, compiled.units):
-        line = next((l for l in out.splitlines() if l.split()[:1] == [var]), None)
+        line = next((ln for ln in out.splitlines() if ln.split()[:1] == [var]), None)
         assert line is not None, var
         assert line.rstrip().endswith(unit)
         lo_s, hi_s = line.split()[1:3]

@@ -19,10 +19,10 @@ from pathlib import Path
 import pytest
 
 from leverage.cli import main as cli_main
-from leverage.islands import SerialIslands
-from leverage.problem import load_problem
-from leverage.runner import finish, make_search, settings_from
-from leverage.udp import LeveragingUDP
+from leverage.problem.load import load_problem
+from leverage.run.runner import finish, make_search, settings_from
+from leverage.search.islands import SerialIslands
+from leverage.search.udp import LeveragingUDP
 
 ROOT = Path(__file__).resolve().parent.parent
 START_TIMEOUT_S = 120

@@ -16,14 +16,14 @@ Outside sources:
 The Earth row of Standish's Table 1 is the Earth-Moon barycentre; it is compared with
 astropy's 'earth-moon-barycenter' (plan94's EMB), not with the Earth.
 """
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
-from astropy.coordinates import get_body_barycentric, get_body_barycentric_posvel
+from astropy.coordinates import get_body_barycentric_posvel
 from astropy.time import Time
 from scipy.optimize import brentq
 
-from leverage.bodies import AU_KM, GM_SUN_KM3_S2, PLANETS, osculating_array
+from leverage.astro.bodies import AU_KM, GM_SUN_KM3_S2, PLANETS, osculating_array
 from leverage.core.ephemeris import DAY_S, body_state, mean_elements_state, osculating_state
 from leverage.core.frames import equatorial_to_ecliptic
 from leverage.core.kepler import propagate

@@ -22,12 +22,12 @@ from datetime import datetime
 import numpy as np
 import pytest
 
-from leverage import oem
-from leverage.arcs import design_arcs, event_states
+from leverage.astro.ephemerides import ecliptic_to_equatorial
 from leverage.cli import main
-from leverage.export import csv_text, oem_text, tdb_seconds
-from leverage.precise_ephemeris import ecliptic_to_equatorial
-from leverage.result import read_json
+from leverage.fileio import read_json
+from leverage.record.arcs import design_arcs, event_states
+from leverage.reports import oem
+from leverage.reports.export import csv_text, oem_text, tdb_seconds
 
 # From CCSDS 502.0-B-2 section 5 (from memory): required keywords in required order.
 STANDARD_HEADER = ["CCSDS_OEM_VERS", "CREATION_DATE", "ORIGINATOR"]

@@ -11,9 +11,9 @@ Outside sources:
   the EME2000 equator, at RA = pole RA + 90 deg (IAU WGCCRE convention);
   RTN/RSW frame (Vallado, Fundamentals of Astrodynamics and Applications, sec. 3.3).
 """
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.coordinates import ICRS, BarycentricMeanEcliptic, CartesianRepresentation, SkyCoord
 from hypothesis import given, settings
 from hypothesis import strategies as st

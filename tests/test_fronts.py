@@ -16,11 +16,10 @@ import pytest
 
 from leverage.core import layout as L
 from leverage.errors import ProblemError
-from leverage.fronts import (feasible, hypervolume, knee, non_dominated,
-                             reference_point)
-from leverage.problem import load_problem
-from leverage.runner import Progress, run, settings_from
-from leverage.udp import LeveragingUDP
+from leverage.problem.load import load_problem
+from leverage.run.runner import Progress, run, settings_from
+from leverage.search.fronts import feasible, hypervolume, knee, non_dominated, reference_point
+from leverage.search.udp import LeveragingUDP
 
 
 def dominates(a, b) -> bool:
@@ -95,8 +94,8 @@ def test_front_run_writes_a_feasible_non_dominated_front(problems_dir, tmp_path,
         small.update(generations=150, population=32, islands=1)
     settings = settings_from(problem, small)
     out = tmp_path / "run"
-    code = run(problem, settings, out, Progress(1, enabled=False), echo=lambda *a: None)
-    assert code == 0
+    outcome = run(problem, settings, out, Progress(1, enabled=False), echo=lambda *a: None)
+    assert outcome.status == "complete" and outcome.feasible
     rows = list(csv.DictReader((out / "front.csv").open()))
     assert len(rows) >= 5
     f = np.array([[float(r["objective_total_dv_km_s"]), float(r["objective_minus_gain_km_s"])]

@@ -20,10 +20,10 @@ from pathlib import Path
 
 import pytest
 
-from leverage.islands import SerialIslands
-from leverage.problem import load_problem
-from leverage.runner import finish, make_search, settings_from
-from leverage.udp import LeveragingUDP
+from leverage.problem.load import load_problem
+from leverage.run.runner import finish, make_search, settings_from
+from leverage.search.islands import SerialIslands
+from leverage.search.udp import LeveragingUDP
 
 TIMEOUT_S = 240  # no test here may hang CI
 

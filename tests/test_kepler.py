@@ -20,9 +20,15 @@ from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from scipy.optimize import brentq
 
-from leverage.core.kepler import (eccentric_from_mean, elements_from_state, orbit_energy,
-                                  propagate, state_from_elements, true_from_eccentric,
-                                  wrap_pi)
+from leverage.core.kepler import (
+    eccentric_from_mean,
+    elements_from_state,
+    orbit_energy,
+    propagate,
+    state_from_elements,
+    true_from_eccentric,
+    wrap_pi,
+)
 
 MU_EARTH = 398600.4418  # IERS 2010, the value Vallado uses.
 MU_EARTH_CURTIS = 398600.0  # Curtis's value in his examples.

@@ -11,7 +11,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from leverage.bodies import AU_KM, GM_SUN_KM3_S2, osculating_array
+from leverage.astro.bodies import AU_KM, GM_SUN_KM3_S2, osculating_array
 from leverage.core.ephemeris import body_state
 from leverage.core.kepler import elements_from_state, propagate
 

@@ -13,9 +13,9 @@ import numpy as np
 import pytest
 
 from leverage.core import layout as L
-from leverage.problem import load_problem
-from leverage.runner import Progress, run, settings_from
-from leverage.udp import LeveragingUDP
+from leverage.problem.load import load_problem
+from leverage.run.runner import Progress, run, settings_from
+from leverage.search.udp import LeveragingUDP
 
 WINDOWS = {"two-year": ([680.0, 780.0], 0), "three-year": ([1040.0, 1140.0], 1)}
 
@@ -55,9 +55,9 @@ def test_each_loop_length_finds_its_own_optimum(demo_path, tmp_path, full_size, 
     problem = loop_problem(demo_path, tmp_path, window)
     settings = settings_from(problem, None if full_size else {"generations": 400})
     out = tmp_path / name
-    code = run(problem, settings, out, Progress(1, enabled=False), echo=lambda *a: None)
+    outcome = run(problem, settings, out, Progress(1, enabled=False), echo=lambda *a: None)
     record = json.loads((out / "best.json").read_text())
-    assert code == 0 and record["feasible"]
+    assert outcome.status == "complete" and outcome.feasible and record["feasible"]
     x = np.array(record["decision_vector"]["values"])
     assert window[0] <= x[L.X_LOOP_DAYS] <= window[1]
     assert record["derived"]["lambert_revolutions"]["value"] == revs

@@ -7,8 +7,8 @@ import pytest
 
 from leverage.cli import main
 from leverage.cli.new import TEMPLATES
-from leverage.problem import load_problem
-from leverage.schema import KEYS
+from leverage.problem.load import load_problem
+from leverage.problem.schema import KEYS
 
 
 @pytest.mark.parametrize("template", sorted(TEMPLATES))

@@ -17,7 +17,7 @@ from hypothesis import strategies as st
 from leverage.core import layout as L
 from leverage.core.penalties import MARGIN_SCALES, margin_penalty, total_penalty
 from leverage.core.trajectory import details
-from leverage.problem import load_problem
+from leverage.problem.load import load_problem
 
 MARGINS = st.floats(allow_nan=True, allow_infinity=True)
 SCALES = st.floats(min_value=1e-6, max_value=1e12)

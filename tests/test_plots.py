@@ -14,9 +14,10 @@ import struct
 import numpy as np
 import pytest
 
-from leverage import bodies, plots
-from leverage.arcs import design_arcs, event_states
-from leverage.result import read_json
+from leverage.astro import bodies
+from leverage.fileio import read_json
+from leverage.record.arcs import design_arcs, event_states
+from leverage.reports import plots
 
 AU = bodies.AU_KM
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"

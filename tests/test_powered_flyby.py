@@ -17,8 +17,13 @@ import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from leverage.core.flyby import (periapsis_burn, periapsis_for_turn, powered_periapsis,
-                                 powered_turn, turn_angle)
+from leverage.core.flyby import (
+    periapsis_burn,
+    periapsis_for_turn,
+    powered_periapsis,
+    powered_turn,
+    turn_angle,
+)
 
 MU_EARTH = 398_600.4418
 SPEED = st.floats(min_value=0.5, max_value=20.0)

@@ -20,7 +20,7 @@ import pytest
 from astropy.time import Time
 
 from leverage.cli import main
-from leverage.problem import load_problem
+from leverage.problem.load import load_problem
 
 ROOT = Path(__file__).resolve().parent.parent
 BAD = Path(__file__).resolve().parent / "bad_problems"

@@ -19,10 +19,10 @@ from pathlib import Path
 
 import pytest
 
-from leverage import afterrun
 from leverage.cli import main
-from leverage.problem import load_problem
-from leverage.runner import Progress, settings_from
+from leverage.problem.load import load_problem
+from leverage.run import afterrun
+from leverage.run.runner import Progress, settings_from
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "problems" / "demo.toml"

@@ -13,9 +13,9 @@ import json
 import numpy as np
 import pytest
 
-from leverage.problem import load_problem
-from leverage.runner import Progress, run, settings_from
-from leverage.screen import _Model, screen
+from leverage.problem.load import load_problem
+from leverage.problem.screen import _Model, screen
+from leverage.run.runner import Progress, run, settings_from
 
 
 def edited(demo_path, tmp_path, replacements, extra=""):
@@ -66,9 +66,9 @@ def test_reachable_goal_is_then_reached(demo_path, tmp_path):
     result = screen(problem)
     assert result.verdict == "reachable"
     settings = settings_from(problem)
-    code = run(problem, settings, tmp_path / "run", Progress(1, enabled=False),
+    outcome = run(problem, settings, tmp_path / "run", Progress(1, enabled=False),
                echo=lambda *a: None)
     record = json.loads((tmp_path / "run" / "best.json").read_text())
-    assert code == 0 and record["feasible"]
+    assert outcome.status == "complete" and outcome.feasible and record["feasible"]
     # The screen ignores phasing: its DSM estimate is optimistic, never above the search's.
     assert result.min_dsm_kms <= record["derived"]["dsm"]["value"]

@@ -9,10 +9,10 @@ import shutil
 
 import pytest
 
-from leverage import compare
 from leverage.cli import main
-from leverage.result import read_json
-from leverage.summary import render as summary_render
+from leverage.fileio import read_json
+from leverage.reports import compare
+from leverage.reports.summary import render as summary_render
 
 
 @pytest.fixture(scope="module")

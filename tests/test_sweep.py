@@ -13,12 +13,12 @@ from astropy.time import Time
 
 from leverage.cli import main as cli_main
 from leverage.errors import ProblemError
-from leverage.islands import SerialIslands
-from leverage.problem import load_problem
-from leverage.runner import finish, make_search, settings_from
-from leverage.slices import Slice, replace_key, window_slices, write_slice_problems
-from leverage.sweep_report import launch_periods
-from leverage.udp import LeveragingUDP
+from leverage.problem.load import load_problem
+from leverage.reports.sweep_table import launch_periods
+from leverage.run.runner import finish, make_search, settings_from
+from leverage.run.slices import Slice, replace_key, window_slices, write_slice_problems
+from leverage.search.islands import SerialIslands
+from leverage.search.udp import LeveragingUDP
 
 
 def test_slices_cover_the_window_edge_to_edge(demo_path):

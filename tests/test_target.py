@@ -14,14 +14,14 @@ import math
 import numpy as np
 import pytest
 
-from leverage import bodies, times
+from leverage.astro import bodies, times
 from leverage.core import layout as L
 from leverage.core.kepler import elements_from_state
 from leverage.errors import ProblemError
-from leverage.problem import load_problem
-from leverage.runner import Progress, run, settings_from
-from leverage.summary import render
-from leverage.udp import LeveragingUDP
+from leverage.problem.load import load_problem
+from leverage.reports.summary import render
+from leverage.run.runner import Progress, run, settings_from
+from leverage.search.udp import LeveragingUDP
 
 # A loop design of the demo problem (launch 2031-01-02, C3 24, DSM 0.81 km/s); an input.
 LOOP_X = np.array([11324.242769311377, 4.898979421815853, 0.5322180159120646,
@@ -148,9 +148,9 @@ def test_search_reaches_the_known_target(tmp_path, demo_path, full_size):
     problem = load_problem(path)
     settings = settings_from(problem, None if full_size else {"generations": 300})
     out = tmp_path / "run"
-    code = run(problem, settings, out, Progress(1, enabled=False), echo=lambda *a: None)
+    outcome = run(problem, settings, out, Progress(1, enabled=False), echo=lambda *a: None)
     record = json.loads((out / "best.json").read_text())
-    assert code == 0 and record["feasible"]
+    assert outcome.status == "complete" and outcome.feasible and record["feasible"]
     assert record["derived"]["arrival_vinf"]["value"] < 0.05  # km/s; the known answer is 0
     events = [e["event"] for e in record["events"]]
     assert events == ["launch", "dsm", "flyby", "arrival"]

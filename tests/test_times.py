@@ -15,7 +15,7 @@ from datetime import date, datetime
 import pytest
 from astropy.time import Time
 
-from leverage import times
+from leverage.astro import times
 
 TDB_TT_MAX_S = 0.002  # |TDB - TT| < 1.7 ms (common practice), rounded up
 

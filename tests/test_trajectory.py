@@ -28,12 +28,12 @@ from hypothesis import assume, example, given, settings
 from hypothesis import strategies as st
 from scipy.integrate import solve_ivp
 
-from leverage import bodies
+from leverage.astro import bodies
 from leverage.core import layout as L
 from leverage.core.ephemeris import EPHEMERIS_SIZE, body_state
 from leverage.core.kepler import propagate
 from leverage.core.trajectory import details
-from leverage.problem import load_problem
+from leverage.problem.load import load_problem
 
 DEMO = Path(__file__).resolve().parent.parent / "problems" / "demo.toml"
 MU_SUN = bodies.GM_SUN_KM3_S2

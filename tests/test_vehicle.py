@@ -21,10 +21,10 @@ from scipy.integrate import solve_ivp
 from leverage.core import layout as L
 from leverage.core.mass import G0_KM_S2, injected_mass, mass_ratio
 from leverage.errors import ProblemError
-from leverage.problem import load_problem
-from leverage.runner import Progress, run, settings_from
-from leverage.udp import LeveragingUDP
-from leverage.vehicle import LaunchVehicle, rocket_mass_ratio
+from leverage.problem.load import load_problem
+from leverage.problem.vehicle import LaunchVehicle, rocket_mass_ratio
+from leverage.run.runner import Progress, run, settings_from
+from leverage.search.udp import LeveragingUDP
 
 TABLE = LaunchVehicle("invented", (0.0, 10.0, 20.0, 30.0), (2000.0, 1700.0, 1400.0, 1100.0), 320.0)
 
@@ -141,10 +141,10 @@ def test_delivered_mass_template_runs(problems_dir, tmp_path, full_size):
     problem = _mass_problem(problems_dir)
     small = None if full_size else {"generations": 300, "population": 24}
     settings = settings_from(problem, small)
-    code = run(problem, settings, tmp_path / "out", Progress(1, enabled=False), echo=lambda *a: None)
+    outcome = run(problem, settings, tmp_path / "out", Progress(1, enabled=False), echo=lambda *a: None)
     import json
     record = json.loads((tmp_path / "out" / "best.json").read_text())
-    assert code == 0 and record["feasible"]
+    assert outcome.status == "complete" and outcome.feasible and record["feasible"]
     der = record["derived"]
     m0, dv = der["injected_mass"]["value"], der["total_dv"]["value"]
     assert der["delivered_mass"]["value"] == pytest.approx(

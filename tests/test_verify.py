@@ -24,18 +24,24 @@ import numpy as np
 import pytest
 from numpy.polynomial import chebyshev
 
-from leverage import afterrun, bodies
-from leverage.arcs import event_states
+from leverage.astro import bodies
+from leverage.astro.ephemerides import (
+    BuiltinEphemeris,
+    SpkEphemeris,
+    ecliptic_to_equatorial,
+    equatorial_to_ecliptic,
+    heliocentric_ecliptic,
+)
 from leverage.cli import main
 from leverage.core.kepler import propagate
-from leverage.ephemeris_check import check_with_ephemeris
 from leverage.errors import ProblemError
-from leverage.integrate import PointMassField, integrate_point_masses
-from leverage.nbody_check import departure_periapsis
-from leverage.precise_ephemeris import (BuiltinEphemeris, SpkEphemeris, ecliptic_to_equatorial,
-                                        equatorial_to_ecliptic, heliocentric_ecliptic)
-from leverage.result import read_json
-from leverage.verify import render, verify_record
+from leverage.fileio import read_json
+from leverage.record.arcs import event_states
+from leverage.run import afterrun
+from leverage.verify.ephemeris_check import check_with_ephemeris
+from leverage.verify.integrate import PointMassField, integrate_point_masses
+from leverage.verify.nbody_check import departure_periapsis
+from leverage.verify.report import render, verify_record
 
 DAY = 86400.0
 
@@ -337,7 +343,7 @@ def test_after_run_ctrl_c_is_one_line(record, tmp_path, monkeypatch):
 
 
 def test_a_point_mass_case_that_cannot_be_set_up_is_reported_not_fatal(record, monkeypatch):
-    from leverage import nbody_check
+    from leverage.verify import nbody_check
 
     def no_crossing(*args, **kwargs):
         raise ValueError("f(a) and f(b) must have different signs")

@@ -9,8 +9,15 @@ import importlib
 import pkgutil
 import sys
 
-from .. import __version__
-from ..errors import NO_VALUE, ProblemError
+from leverage import __version__
+from leverage.errors import NO_VALUE, ProblemError
+
+# Exit codes of every command (README "Exit codes").
+EXIT_OK = 0
+EXIT_FAILED = 1          # a sweep whose runs failed
+EXIT_BAD_INPUT = 2
+EXIT_INFEASIBLE = 3
+EXIT_INTERRUPTED = 130
 
 
 class _Parser(argparse.ArgumentParser):
@@ -50,7 +57,7 @@ def main(argv=None) -> int:
         return int(args.handler(args) or 0)
     except ProblemError as exc:
         print(f"leverage: {exc}", file=sys.stderr)
-        return 2
+        return EXIT_BAD_INPUT
     except KeyboardInterrupt:  # Ctrl-C before a run or sweep took over its signals
         print("leverage: interrupted", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED

@@ -2,10 +2,10 @@
 and screen whether the goal is reachable at all (``leverage.screen``)."""
 import numpy as np
 
-from ..core import layout as L
-from ..problem import load_problem
-from ..screen import screen
-from ..udp import LeveragingUDP
+from leverage.core import layout as L
+from leverage.problem.load import load_problem
+from leverage.problem.screen import screen
+from leverage.search.udp import LeveragingUDP
 
 
 def add_parser(sub):

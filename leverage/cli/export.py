@@ -2,10 +2,10 @@
 import math
 from pathlib import Path
 
-from ..arcs import check_record
-from ..errors import ProblemError
-from ..export import DEFAULT_STEP_HOURS, FRAMES, export
-from .show import load_record
+from leverage.errors import ProblemError
+from leverage.fileio import load_record
+from leverage.record.arcs import check_record
+from leverage.reports.export import DEFAULT_STEP_HOURS, FRAMES, export
 
 
 def add_parser(sub):

@@ -9,9 +9,9 @@ import json
 import textwrap
 from pathlib import Path
 
-from ..errors import ProblemError
-from ..result import write_atomic
-from ..schema import OPTIONAL_SECTIONS, REQUIRED, SECTIONS, keys_by_section
+from leverage.errors import ProblemError
+from leverage.fileio import write_atomic
+from leverage.problem.schema import OPTIONAL_SECTIONS, REQUIRED, SECTIONS, keys_by_section
 
 PLACEHOLDER_NOTE = ("Starting values are placeholders for a study of your own (a made-up "
                     "scenario), not data about any real mission, vehicle or body.")

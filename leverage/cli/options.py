@@ -1,6 +1,6 @@
 """Command-line values checked with the same rules as problem-file keys."""
-from ..schema import keys_by_section
-from ..problem import convert
+from leverage.problem.load import convert
+from leverage.problem.schema import keys_by_section
 
 
 def search_overrides(args) -> dict:

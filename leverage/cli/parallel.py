@@ -1,5 +1,5 @@
 """Command-line options saying where the work runs: --workers and --cluster."""
-from ..errors import ProblemError
+from leverage.errors import ProblemError
 
 
 def add_parallel_options(parser, workers_help: str):

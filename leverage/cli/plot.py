@@ -1,9 +1,9 @@
 """leverage plot RESULT_DIR: (re)draw the pictures of a result folder."""
 from pathlib import Path
 
-from ..arcs import check_record
-from ..plots import all_pictures
-from .show import load_record
+from leverage.fileio import load_record
+from leverage.record.arcs import check_record
+from leverage.reports.plots import all_pictures
 
 
 def add_parser(sub):

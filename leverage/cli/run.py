@@ -2,10 +2,12 @@
 import time
 from pathlib import Path
 
-from .. import checkpoint
-from ..errors import NO_VALUE, ProblemError
-from ..problem import load_problem
-from ..runner import Progress, evolver_for, resumed_settings, run, settings_from
+from leverage.errors import NO_VALUE, ProblemError
+from leverage.problem.load import load_problem
+from leverage.run.runner import Progress, evolver_for, resumed_settings, run, settings_from
+from leverage.search import checkpoint
+
+from . import EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_OK
 from .options import add_search_options, search_overrides
 from .parallel import add_parallel_options, workers_option
 
@@ -49,14 +51,22 @@ def resume_point(args, problem):
     return folder, settings, saved
 
 
+def exit_code(outcome) -> int:
+    """0 feasible, 3 complete but no design met every limit, 130 interrupted."""
+    if outcome.status != "complete":
+        return EXIT_INTERRUPTED
+    return EXIT_OK if outcome.feasible else EXIT_INFEASIBLE
+
+
 def main(args) -> int:
     problem = load_problem(args.problem)
     workers = workers_option(args)
     if args.resume:
         out, settings, saved = resume_point(args, problem)
         evolver = evolver_for(settings, workers, args.cluster)
-        return run(problem, settings, out, Progress(settings.evolutions, enabled=not args.quiet),
-                   evolver=evolver, resume=saved)
+        return exit_code(run(problem, settings, out,
+                             Progress(settings.evolutions, enabled=not args.quiet),
+                             evolver=evolver, resume=saved))
     settings = settings_from(problem, search_overrides(args))
     out = Path(args.out) if args.out else default_out(problem.name)
     if out.exists() and not out.is_dir():
@@ -65,5 +75,5 @@ def main(args) -> int:
         raise ProblemError("command line", "--out", str(out),
                            "folder exists and is not empty; pick another or add --force")
     evolver = evolver_for(settings, workers, args.cluster)
-    return run(problem, settings, out, Progress(settings.evolutions, enabled=not args.quiet),
-               evolver=evolver)
+    return exit_code(run(problem, settings, out,
+                         Progress(settings.evolutions, enabled=not args.quiet), evolver=evolver))

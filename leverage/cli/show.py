@@ -1,10 +1,10 @@
 """leverage show RESULT_DIR [RESULT_DIR ...]: the summary of a run, or several side by side."""
 from pathlib import Path
 
-from .. import compare
-from ..errors import NO_VALUE, ProblemError
-from ..result import read_json
-from ..summary import render
+from leverage.errors import NO_VALUE, ProblemError
+from leverage.fileio import load_record
+from leverage.reports import compare
+from leverage.reports.summary import render
 
 
 def add_parser(sub):
@@ -14,16 +14,6 @@ def add_parser(sub):
                                    "problem-file settings that differ).")
     p.add_argument("results", nargs="+", help="result folder(s)")
     return p
-
-
-def load_record(folder) -> dict:
-    path = Path(folder) / "best.json"
-    if not path.is_file():
-        raise ProblemError(str(folder), "", NO_VALUE, "no best.json here: not a result folder")
-    try:
-        return read_json(path)
-    except ValueError as exc:
-        raise ProblemError(str(path), "", NO_VALUE, f"unreadable JSON ({exc})") from None
 
 
 def main(args) -> int:

@@ -1,10 +1,12 @@
 """leverage sweep PROBLEM --slice-days N: optimise every slice of the launch window."""
 from pathlib import Path
 
-from ..errors import ProblemError
-from ..problem import load_problem
-from ..runner import settings_from
-from ..sweep import Sweep, SweepProgress, default_out
+from leverage.errors import ProblemError
+from leverage.problem.load import load_problem
+from leverage.run.runner import settings_from
+from leverage.run.sweep import Sweep, SweepProgress, default_out
+
+from . import EXIT_FAILED, EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_OK
 from .options import add_search_options, search_overrides
 from .parallel import add_parallel_options, workers_option
 
@@ -56,4 +58,6 @@ def main(args) -> int:
         sweep.check_resumable()
     sweep.prepare()
     progress = SweepProgress(len(sweep.tasks), len(sweep.slices), enabled=not args.quiet)
-    return sweep.run(workers, args.cluster, progress, redo=bool(args.force and not args.resume))
+    ended = sweep.run(workers, args.cluster, progress, redo=bool(args.force and not args.resume))
+    return {"interrupted": EXIT_INTERRUPTED, "incomplete": EXIT_FAILED, "feasible": EXIT_OK,
+            "infeasible": EXIT_INFEASIBLE}[ended]

@@ -2,9 +2,9 @@
 numerical integration; writes verification.txt and verification.json there."""
 from pathlib import Path
 
-from ..arcs import check_record
-from ..verify import render, verify_record, write
-from .show import load_record
+from leverage.fileio import load_record
+from leverage.record.arcs import check_record
+from leverage.verify.report import render, verify_record, write
 
 
 def add_parser(sub):

@@ -13,24 +13,25 @@ code. Set NUMBA_CACHE_DIR to choose the folder yourself.
 """
 import hashlib
 import os
+import sys
+from importlib.metadata import version
 from pathlib import Path
 
 
 def _cache_dir() -> str:
-    import numba
-    import poliastro
-
     here = Path(__file__).resolve().parent
     digest = hashlib.sha256()
     for path in sorted(here.glob("*.py")):
         digest.update(path.name.encode())
         digest.update(path.read_bytes())
-    digest.update(f"numba {numba.__version__} poliastro {poliastro.__version__}".encode())
+    # Versions from the package metadata: importing numba here would slow every command.
+    digest.update(f"numba {version('numba')} poliastro {version('poliastro')}".encode())
     root = Path(os.environ.get("XDG_CACHE_HOME", Path.home() / ".cache"))
     return str(root / "leverage" / "numba" / digest.hexdigest()[:16])
 
 
 if not os.environ.get("NUMBA_CACHE_DIR"):
-    import numba
-
-    numba.config.CACHE_DIR = _cache_dir()
+    # numba reads the variable when it is imported; set it on numba too if it already was.
+    os.environ["NUMBA_CACHE_DIR"] = _cache_dir()
+    if "numba" in sys.modules:
+        sys.modules["numba"].config.CACHE_DIR = os.environ["NUMBA_CACHE_DIR"]

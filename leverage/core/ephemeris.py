@@ -18,14 +18,13 @@ as TDB, which his stated accuracy allows.
 import numpy as np
 from numba import njit
 
+from .constants import DAY_S, JULIAN_CENTURY_S  # noqa: F401 (DAY_S re-exported)
 from .kepler import eccentric_from_mean, state_from_elements
 
 EPHEMERIS_SIZE = 14
 KIND_MEAN_ELEMENTS = 0.0
 KIND_OSCULATING = 1.0
 
-DAY_S = 86400.0
-JULIAN_CENTURY_S = 36525.0 * DAY_S
 _DEG = np.pi / 180.0
 
 

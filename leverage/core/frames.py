@@ -7,7 +7,7 @@ for its "ecliptic of J2000" frame; Standish's elements are referred to it).
 import numpy as np
 from numba import njit
 
-OBLIQUITY_J2000_RAD = 84381.448 / 3600.0 * np.pi / 180.0
+from .constants import OBLIQUITY_J2000_RAD
 
 
 @njit(cache=True)

@@ -10,7 +10,7 @@ gravity 9.80665 m/s^2 (3rd CGPM, 1901).
 import numpy as np
 from numba import njit
 
-G0_KM_S2 = 9.80665e-3  # standard gravity, km/s^2 (3rd CGPM 1901: 9.80665 m/s^2, exact)
+from .constants import G0_KM_S2
 
 
 @njit(cache=True)

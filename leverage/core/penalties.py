@@ -9,8 +9,8 @@ import numpy as np
 from numba import njit
 
 from . import layout as L
+from .constants import AU_KM
 
-AU_KM_FOR_SCALES = 1.495978707e8
 NAN_PENALTY = 1.0e3
 SMALLEST_PENALTY = 2.2250738585072014e-308  # smallest normal float64: "violated, barely"
 
@@ -23,7 +23,7 @@ MARGIN_SCALES = np.array([
     0.1,                        # DSM budget, km/s
     0.1,                        # required outgoing v-infinity, km/s
     np.radians(1.0),            # required inclination, rad
-    0.1 * AU_KM_FOR_SCALES,     # required aphelion, km
+    0.1 * AU_KM,     # required aphelion, km
     1.0,                        # Lambert solved (0 / -1)
     0.1,                        # v-infinity match of an unpowered flyby, km/s
     0.1,                        # arrival v-infinity, km/s

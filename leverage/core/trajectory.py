@@ -21,8 +21,15 @@ from numba import njit, prange
 
 from . import layout as L
 from .ephemeris import DAY_S, EPHEMERIS_SIZE, body_state
-from .flyby import (bplane_angle_of, max_turn, outgoing_vinf, periapsis_burn, powered_periapsis,
-                    powered_turn, turn_angle)
+from .flyby import (
+    bplane_angle_of,
+    max_turn,
+    outgoing_vinf,
+    periapsis_burn,
+    powered_periapsis,
+    powered_turn,
+    turn_angle,
+)
 from .frames import direction_from_angles, launch_asymptote, rtn_components, velocity_frame
 from .kepler import elements_from_state, propagate
 from .lambert import branch_range, branch_revs, lambert

@@ -1,0 +1,1 @@
+"""Astronomy above the kernels: bodies and constants, time scales, outside ephemerides."""

@@ -1,0 +1,1 @@
+"""Problem files: the key table, reading and validation, compiling to arrays, target, vehicle, screen."""

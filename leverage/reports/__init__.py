@@ -1,0 +1,1 @@
+"""What people read: summary, comparison, pictures, sweep table, CSV and CCSDS OEM export."""

@@ -1,0 +1,132 @@
+"""Several result folders side by side: what each change to a problem file did.
+
+``render(folders, records)`` makes a text table, one column per run (A, B, C, ...):
+problem and goal, status, the key numbers of the design, every limit margin any of
+the runs has, search effort and wall time; then the problem-file settings that
+differ between the runs (read from each folder's problem.toml copy). Everything
+comes from the folders alone.
+"""
+import math
+from pathlib import Path
+
+import tomli
+
+from leverage import CAUTION
+from leverage.reports.summary import fmt_number
+
+# label, derived quantity, digits
+KEY_NUMBERS = [
+    ("C3 (km^2/s^2)", "c3", 3),
+    ("launch v-inf (km/s)", "launch_vinf", 3),
+    ("DLA (deg)", "dla", 2),
+    ("DSM (km/s)", "dsm", 4),
+    ("total dv (km/s)", "total_dv", 4),
+    ("flyby v-inf in (km/s)", "flyby_vinf_in", 3),
+    ("v-inf gain (km/s)", "vinf_gain", 3),
+    ("flyby altitude (km)", "flyby_altitude", 0),
+    ("turn (deg)", "turn_angle", 2),
+    ("out inclination (deg)", "outgoing_inclination", 3),
+    ("out aphelion (au)", "outgoing_aphelion", 4),
+    ("arrival v-inf (km/s)", "arrival_vinf", 3),
+]
+COL = 14
+
+
+def _num(value, digits) -> str:
+    return fmt_number(value, digits, thousands=True)
+
+
+def _event(record, name):
+    return next((e for e in record["events"] if e["event"] == name), None)
+
+
+def _rows(records) -> list:
+    rows = [("problem", [r["problem"]["name"] for r in records]),
+            ("problem sha256", [r["problem"]["sha256"][:12] for r in records]),
+            ("goal", [r["problem"]["goal"] for r in records]),
+            ("flyby body", [r["problem"]["body"] for r in records]),
+            ("status", [r.get("status", "") for r in records]),
+            ("feasible", ["yes" if r.get("feasible") else "NO" for r in records]),
+            ("objective", [_num(r["objective"][0], 6) for r in records]),
+            ("launch (UTC)", [_event(r, "launch")["utc"][:10] for r in records]),
+            ("flyby (UTC)", [_event(r, "flyby")["utc"][:10] for r in records])]
+    if any(_event(r, "arrival") for r in records):
+        rows.append(("arrival (UTC)", [(_event(r, "arrival") or {"utc": "-"})["utc"][:10]
+                                       for r in records]))
+    for label, name, digits in KEY_NUMBERS:
+        if any(name in r["derived"] for r in records):
+            rows.append((label, [_num(r["derived"][name]["value"], digits)
+                                 if name in r["derived"] else "-" for r in records]))
+    names = []
+    for r in records:
+        names += [n for n in r["margins"] if n not in names]
+    if names:
+        rows.append(("", []))
+        rows.append(("limit margins (>= 0 holds)", []))
+    for name in names:
+        cells = []
+        for r in records:
+            m = r["margins"].get(name)
+            if m is None:
+                cells.append("not set")
+            else:
+                cells.append(_num(m["margin"], 4) + ("" if m["holds"] else " !"))
+        unit = next(r["margins"][name]["unit"] for r in records if name in r["margins"])
+        rows.append((f"  {name}" + (f" ({unit})" if unit else ""), cells))
+    rows.append(("", []))
+    rows.append(("search", [f"{r['search']['algorithm']} {r['search']['islands']}x"
+                            f"{r['search']['population']}" for r in records]))
+    rows.append(("generations / seed", [f"{r['search']['generations']} / {r['search']['seed']}"
+                                        for r in records]))
+    rows.append(("evaluations", [f"{r.get('run', {}).get('evaluations', 0):,}" for r in records]))
+    rows.append(("wall time (s)", [_num(r.get("run", {}).get("wall_time_s", math.nan), 1)
+                                   for r in records]))
+    return rows
+
+
+def _flatten(table, prefix=""):
+    out = {}
+    for key, value in table.items():
+        name = f"{prefix}{key}"
+        if isinstance(value, dict):
+            out.update(_flatten(value, f"{name}."))
+        else:
+            out[name] = value
+    return out
+
+
+def setting_differences(folders) -> list:
+    """(key, [value per folder]) of problem.toml settings that differ between folders."""
+    tables = []
+    for folder in folders:
+        path = Path(folder) / "problem.toml"
+        try:
+            tables.append(_flatten(tomli.loads(path.read_text(encoding="utf-8"))))
+        except (OSError, tomli.TOMLDecodeError):
+            tables.append(None)
+    if any(t is None for t in tables):
+        return []
+    keys = []
+    for t in tables:
+        keys += [k for k in t if k not in keys]
+    return [(k, [t.get(k, "(default)") for t in tables]) for k in keys
+            if len({repr(t.get(k, "(default)")) for t in tables}) > 1]
+
+
+def render(folders, records) -> str:
+    """The side-by-side text of several result folders."""
+    letters = [chr(ord("A") + k) if k < 26 else f"R{k}" for k in range(len(records))]
+    lines = [f"leverage comparison of {len(records)} runs", f"  CAUTION: {CAUTION}", ""]
+    lines += [f"  {letter} = {folder}" for letter, folder in zip(letters, folders)]
+    width = max(28, max(len(label) for label, _ in _rows(records)) + 2)
+    lines += ["", " " * width + "".join(f"{letter:>{COL}}" for letter in letters)]
+    for label, cells in _rows(records):
+        lines.append((f"{label:<{width}}" + "".join(f"{c:>{COL}}" for c in cells)).rstrip())
+    diffs = setting_differences(folders)
+    lines += ["", "problem-file settings that differ" if diffs else
+              "problem files: no setting differs (runs differ only by command-line options)"]
+    for key, values in diffs:
+        shown = "".join(f"{str(v)[:COL - 1]:>{COL}}" for v in values)
+        lines.append(f"  {key:<{width - 2}}{shown}")
+    lines += ["", "! marks a violated limit.", f"CAUTION: {CAUTION}", ""]
+    return "\n".join(lines)

@@ -1,0 +1,468 @@
+"""Pictures of a result folder (PNG, matplotlib's Agg renderer, no display needed).
+
+* ``trajectory.png``: top view of the ecliptic J2000 plane with the Sun, the flyby
+  body's orbit, the loop and what follows the flyby, the DSM and flyby marked with
+  their dates; beside it a side view along the outgoing orbit's line of nodes, where
+  the outgoing orbit's tilt out of the ecliptic shows as a slope.
+* ``convergence.png``: best objective against evaluations, one line per island, from
+  convergence.csv; a second panel of the hypervolume when the log has that column.
+* ``front.png`` (only if front.csv exists): DSM against v-infinity gain, coloured by
+  outgoing inclination, with the knee marked.
+* ``launch_window.png`` (only if a sweep table exists): best objective against
+  launch date.
+
+Every function returns a ``Picture``: the file written and ``artists``, the
+matplotlib objects that carry the plotted data (so tests can compare what was drawn
+with the record). Figures are made with ``matplotlib.figure.Figure`` (no pyplot
+state) under a small style of our own.
+"""
+import csv
+import math
+from dataclasses import dataclass, field
+from datetime import datetime
+from pathlib import Path
+
+import matplotlib
+import numpy as np
+from matplotlib import dates as mdates
+from matplotlib.figure import Figure
+
+from leverage.astro import times
+from leverage.core.constants import AU_KM, DAY_S
+from leverage.record.arcs import body_orbit, design_arcs, event_states, target_orbit
+from leverage.record.design import as_float
+
+DPI = 120
+FOOTER = "Preliminary patched-conic design: verify it before any flight use."
+
+STYLE = {
+    "font.size": 9.5,
+    "axes.titlesize": 10.5,
+    "axes.labelsize": 9.5,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "axes.grid": True,
+    "grid.color": "#e4e4e4",
+    "grid.linewidth": 0.6,
+    "legend.frameon": False,
+    "legend.fontsize": 8.5,
+    "savefig.facecolor": "white",
+}
+COLOURS = {
+    "launch_dsm": "#2b6cb0",
+    "dsm_flyby": "#c05621",
+    "outgoing": "#2f855a",
+    "flyby_arrival": "#6b46c1",
+    "body": "#9a9a9a",
+    "target": "#b7791f",
+    "sun": "#e0a800",
+    "text": "#333333",
+}
+# Islands: colour, line style and marker all differ, so lines that coincide stay visible.
+ISLAND_COLOURS = ["#2b6cb0", "#c05621", "#2f855a", "#6b46c1", "#b83280", "#4a5568"]
+ISLAND_LINES = ["-", "--", ":", "-."]
+ISLAND_MARKERS = ["o", "s", "^", "v", "D", "x"]
+EVENT_MARKERS = {"launch": "^", "dsm": "D", "flyby": "o", "arrival": "s"}
+EVENT_NAMES = {"launch": "launch", "dsm": "DSM", "flyby": "flyby", "arrival": "arrival"}
+
+
+@dataclass
+class Picture:
+    """A written picture and the artists holding its plotted data."""
+
+    path: Path
+    artists: dict = field(default_factory=dict)
+
+
+def _new_figure(width, height) -> Figure:
+    with matplotlib.rc_context(STYLE):
+        return Figure(figsize=(width, height), dpi=DPI)
+
+
+def _save(fig: Figure, path: Path) -> Path:
+    fig.text(0.01, 0.005, FOOTER, fontsize=7.5, color="#777777", ha="left", va="bottom")
+    fig.savefig(path, dpi=DPI)
+    return path
+
+
+def _utc_datetime(t_tdb_s: float) -> datetime:
+    return times.from_tdb_seconds(t_tdb_s).utc.to_datetime()
+
+
+# ------------------------------------------------------------------ trajectory
+
+def side_axes(record):
+    """Unit vectors (horizontal, vertical, looking) of the side view, ecliptic J2000.
+
+    The viewer looks along the ecliptic direction at right angles to the outgoing
+    orbit's line of nodes k x h, so the node line runs across the picture and the
+    outgoing orbit shows as an ellipse rising above and dipping below the ecliptic
+    by its full height. If the outgoing orbit lies in the ecliptic, the node line is
+    taken along x.
+    """
+    ev = event_states(record)
+    after = ev["flyby"]
+    h = np.cross(after["r"], after["v_out"])
+    node = np.cross([0.0, 0.0, 1.0], h)
+    norm = np.linalg.norm(node)
+    node = node / norm if norm > 1e-9 * np.linalg.norm(h) else np.array([1.0, 0.0, 0.0])
+    looking = np.cross([0.0, 0.0, 1.0], node)
+    return node, np.array([0.0, 0.0, 1.0]), looking
+
+
+def _event_label(name, ev, record) -> str:
+    date = ev["utc"][:10]
+    der = record["derived"]
+    extra = ""
+    if name == "dsm" and "dsm" in der:
+        extra = f"\n{as_float(der['dsm']['value']):.3f} km/s"
+    elif name == "flyby" and "flyby_altitude" in der:
+        extra = f"\naltitude {as_float(der['flyby_altitude']['value']):,.0f} km"
+    return f"{EVENT_NAMES[name]} {date}{extra}"
+
+
+def _label_place(r_au, inward: bool) -> dict:
+    """Text offset (points) and alignment that push a label toward or away from the Sun."""
+    u = np.asarray(r_au[:2], float)
+    u = u / (np.linalg.norm(u) or 1.0)
+    if inward:
+        u = -u
+    ha = "left" if u[0] > 0.35 else "right" if u[0] < -0.35 else "center"
+    va = "bottom" if u[1] > 0.35 else "top" if u[1] < -0.35 else "center"
+    return {"xytext": (14 * u[0], 14 * u[1]), "ha": ha, "va": va}
+
+
+def trajectory(record, folder) -> Picture:
+    """trajectory.png: top view and side view of the design (see module docstring)."""
+    folder = Path(folder)
+    arcs = design_arcs(record)
+    ev = event_states(record)
+    body = record["problem"]["body"]
+    orbit = body_orbit(body, ev["launch"]["t"])
+    fig = _new_figure(12.0, 6.4)
+    grid = fig.add_gridspec(1, 2, width_ratios=[1.25, 1.0], left=0.06, right=0.98,
+                            bottom=0.17, top=0.87, wspace=0.22)
+    top = fig.add_subplot(grid[0, 0])
+    side = fig.add_subplot(grid[0, 1])
+    artists = {}
+    with matplotlib.rc_context(STYLE):
+        (artists["body orbit"],) = top.plot(orbit.r_km[:, 0] / AU_KM, orbit.r_km[:, 1] / AU_KM,
+                                            ls="--", lw=1.0, color=COLOURS["body"],
+                                            label=f"{orbit.label} (mean elements)")
+        target = target_orbit(record)
+        if target is not None:
+            (artists["target orbit"],) = top.plot(target.r_km[:, 0] / AU_KM,
+                                                  target.r_km[:, 1] / AU_KM, ls=":", lw=1.2,
+                                                  color=COLOURS["target"], label=target.label)
+        artists["sun"] = top.scatter([0.0], [0.0], s=110, color=COLOURS["sun"], zorder=3,
+                                     edgecolor="#a07800", label="Sun")
+        horizontal, vertical, _ = side_axes(record)
+        for arc in arcs:
+            colour = COLOURS.get(arc.key, "#444444")
+            x, y = arc.r_km[:, 0] / AU_KM, arc.r_km[:, 1] / AU_KM
+            (artists[arc.key],) = top.plot(x, y, lw=1.8, color=colour, label=arc.label)
+            (artists[f"side {arc.key}"],) = side.plot(arc.r_km @ horizontal / AU_KM,
+                                                      arc.r_km @ vertical / AU_KM, lw=1.8,
+                                                      color=colour, label=arc.label)
+        (artists["side body orbit"],) = side.plot(orbit.r_km @ horizontal / AU_KM,
+                                                  orbit.r_km @ vertical / AU_KM, ls="--",
+                                                  lw=1.0, color=COLOURS["body"])
+        side.scatter([0.0], [0.0], s=60, color=COLOURS["sun"], zorder=3, edgecolor="#a07800")
+        for name in ("launch", "dsm", "flyby", "arrival"):
+            if name not in ev:
+                continue
+            r = ev[name]["r"] / AU_KM
+            artists[f"event {name}"] = top.scatter([r[0]], [r[1]], marker=EVENT_MARKERS[name],
+                                                   s=55, color="black", zorder=4,
+                                                   label=EVENT_NAMES[name])
+            top.annotate(_event_label(name, ev[name], record), (r[0], r[1]),
+                         **_label_place(r, inward=name == "flyby"), fontsize=8.5,
+                         color=COLOURS["text"], textcoords="offset points",
+                         bbox=dict(boxstyle="round,pad=0.2", fc="white", ec="none", alpha=0.85))
+            side.scatter([r @ horizontal], [r @ vertical], marker=EVENT_MARKERS[name], s=40,
+                         color="black", zorder=4)
+        after = next(a for a in arcs if a.key in ("outgoing", "flyby_arrival"))
+        height = after.r_km @ vertical / AU_KM
+        k = int(np.argmax(np.abs(height)))
+        side.annotate(f"{abs(height[k]):.2f} au {'above' if height[k] >= 0 else 'below'} "
+                      f"the ecliptic\n{_utc_datetime(after.t_tdb_s[k]):%Y-%m-%d}",
+                      (after.r_km[k] @ horizontal / AU_KM, height[k]),
+                      xytext=(6, 5 if height[k] >= 0 else -5), textcoords="offset points",
+                      ha="left", va="bottom" if height[k] >= 0 else "top", fontsize=8.5,
+                      color=COLOURS["text"])
+        side.scatter([after.r_km[k] @ horizontal / AU_KM], [height[k]], s=18,
+                     color=COLOURS[after.key], zorder=4)
+        top.margins(0.1)
+        side.margins(0.08, 0.15)
+        top.set_aspect("equal", adjustable="datalim")
+        top.set_xlabel("x, toward the J2000 equinox (au)")
+        top.set_ylabel("y (au)")
+        top.set_title("top view of the ecliptic J2000 plane")
+        side.axhline(0.0, color="#bbbbbb", lw=0.8)
+        side.set_xlabel("along the outgoing orbit's line of nodes (au)")
+        side.set_ylabel("height above the ecliptic (au)")
+        side.set_title("side view, across the outgoing line of nodes\n"
+                       "(vertical scale enlarged)")
+        inc = record["derived"].get("outgoing_inclination")
+        if inc is not None:
+            side.text(0.02, 0.97, f"outgoing inclination {as_float(inc['value']):.2f} deg",
+                      transform=side.transAxes, va="top", fontsize=8.5, color=COLOURS["text"])
+        handles, labels = top.get_legend_handles_labels()
+        fig.legend(handles, labels, loc="lower center", ncol=(len(labels) + 1) // 2,
+                   bbox_to_anchor=(0.5, 0.02))
+        fig.suptitle(f"{record['problem']['name']}: designed trajectory about the Sun "
+                     f"({record['problem']['body']} loop)", fontsize=12)
+    return Picture(_save(fig, folder / "trajectory.png"), artists)
+
+
+# ------------------------------------------------------------------ convergence
+
+def read_table(path) -> list[dict]:
+    """Rows of a CSV file as dicts of strings."""
+    with open(path, newline="", encoding="utf-8") as fh:
+        return list(csv.DictReader(fh))
+
+
+def _float(text) -> float:
+    try:
+        return float(text)
+    except (TypeError, ValueError):
+        return math.nan
+
+
+def convergence(record, folder) -> Picture | None:
+    """convergence.png from convergence.csv (None when the log is missing or empty)."""
+    folder = Path(folder)
+    path = folder / "convergence.csv"
+    if not path.is_file():
+        return None
+    rows = read_table(path)
+    if not rows:
+        return None
+    islands = sorted({r["island"] for r in rows}, key=lambda s: (len(s), s))
+    has_hv = "hypervolume" in rows[0] and any(math.isfinite(_float(r["hypervolume"]))
+                                             for r in rows)
+    fig = _new_figure(8.0, 6.4 if has_hv else 4.6)
+    artists = {}
+    with matplotlib.rc_context(STYLE):
+        axes = fig.subplots(2 if has_hv else 1, 1, sharex=True, squeeze=False)[:, 0]
+        for n, island in enumerate(islands):
+            look = dict(color=ISLAND_COLOURS[n % len(ISLAND_COLOURS)],
+                        ls=ISLAND_LINES[n % len(ISLAND_LINES)],
+                        marker=ISLAND_MARKERS[n % len(ISLAND_MARKERS)], ms=4, lw=1.4)
+            mine = [r for r in rows if r["island"] == island]
+            x = np.array([_float(r["evaluations"]) for r in mine])
+            y = np.array([_float(r["best_objective"]) for r in mine])
+            label = f"island {island}" if island.isdigit() else island
+            (artists[f"island {island}"],) = axes[0].plot(x, y, label=label, **look)
+            if has_hv:
+                hv = np.array([_float(r["hypervolume"]) for r in mine])
+                (artists[f"hypervolume {island}"],) = axes[1].plot(x, hv, **look)
+        several = len(record.get("objective") or []) > 1
+        final = as_float(record["objective"][0]) if record.get("objective") else math.nan
+        if math.isfinite(final) and not several:
+            axes[0].axhline(final, color="#555555", lw=0.9, ls=":",
+                            label=f"after polish: {final:.6g}")
+        axes[-1].set_xlim(left=0)
+        per_island = min(sum(r["island"] == i for r in rows) for i in islands)
+        if per_island < 3:
+            axes[0].text(0.02, 0.5, f"{per_island} log row(s) per island: the log gets one "
+                         "row per island after each migration interval of "
+                         f"{rows[0].get('generations', '?')} generations",
+                         transform=axes[0].transAxes, fontsize=8, color="#777777")
+        axes[0].set_ylabel("lowest first objective" if several
+                           else "best objective (lower is better)")
+        axes[0].set_title(f"{record['problem']['name']}: search progress "
+                          f"(goal {record['problem']['goal']}, {record['search']['algorithm']})")
+        axes[0].legend()
+        if has_hv:
+            axes[1].set_ylabel("hypervolume of the front")
+        axes[-1].set_xlabel("objective evaluations")
+        fig.subplots_adjust(left=0.12, right=0.97, bottom=0.12 if not has_hv else 0.09,
+                            top=0.92, hspace=0.12)
+    return Picture(_save(fig, folder / "convergence.png"), artists)
+
+
+# ------------------------------------------------------------------ trade front
+
+def _column(names, *wanted, exclude=()):
+    """Column named exactly like one of ``wanted`` (spaces as underscores), else the
+    first whose name contains every word of one of them (tried in order)."""
+    for words in wanted:
+        if words.replace(" ", "_") in names:
+            return words.replace(" ", "_")
+    for words in wanted:
+        for name in names:
+            low = name.lower()
+            if all(w in low for w in words.split()) and not any(e in low for e in exclude):
+                return name
+    return None
+
+
+def knee_index(dsm, gain) -> int:
+    """Index of the front point farthest from the line joining its two ends.
+
+    Both axes scaled to [0, 1] first; a common knee definition for a two-objective
+    front (common practice).
+    """
+    x = np.asarray(dsm, float)
+    y = np.asarray(gain, float)
+    xs = (x - x.min()) / (np.ptp(x) or 1.0)
+    ys = (y - y.min()) / (np.ptp(y) or 1.0)
+    a, b = np.argmin(xs), np.argmax(xs)
+    p, q = np.array([xs[a], ys[a]]), np.array([xs[b], ys[b]])
+    d = q - p
+    length = np.hypot(*d) or 1.0
+    dist = np.abs(d[0] * (ys - p[1]) - d[1] * (xs - p[0])) / length
+    return int(np.argmax(dist))
+
+
+def front(record, folder) -> Picture | None:
+    """front.png from front.csv: DSM vs gain coloured by outgoing inclination."""
+    folder = Path(folder)
+    path = folder / "front.csv"
+    if not path.is_file():
+        return None
+    rows = read_table(path)
+    if not rows:
+        return None
+    names = list(rows[0])
+    # front.csv as written by the front search: one row per member, every derived
+    # quantity in a column named <quantity>_<unit>, and a 0/1 "knee" column.
+    c_dsm = _column(names, "dsm km s", "dsm km", "total dv km s")
+    c_gain = _column(names, "vinf gain km s", "gain km")
+    c_inc = _column(names, "outgoing inclination deg", "inclination deg")
+    if c_dsm is None or c_gain is None:
+        return None
+    dsm = np.array([_float(r[c_dsm]) for r in rows])
+    gain = np.array([_float(r[c_gain]) for r in rows])
+    ok = np.isfinite(dsm) & np.isfinite(gain)
+    if not ok.any():
+        return None
+    c_knee = _column(names, "knee")
+    if c_knee is not None:
+        flags = [str(r[c_knee]).strip().lower() in ("1", "true", "yes") for r in rows]
+        knee = flags.index(True) if any(flags) else knee_index(dsm[ok], gain[ok])
+    else:
+        knee = int(np.flatnonzero(ok)[knee_index(dsm[ok], gain[ok])])
+    fig = _new_figure(7.6, 5.4)
+    artists = {}
+    with matplotlib.rc_context(STYLE):
+        ax = fig.add_subplot(1, 1, 1)
+        order = np.argsort(dsm[ok])
+        ax.plot(dsm[ok][order], gain[ok][order], color="#cccccc", lw=1.0, zorder=1)
+        if c_inc is not None:
+            inc = np.array([_float(r[c_inc]) for r in rows])
+            artists["front"] = ax.scatter(dsm[ok], gain[ok], c=inc[ok], cmap="viridis", s=28,
+                                          zorder=2)
+            bar = fig.colorbar(artists["front"], ax=ax)
+            bar.set_label("outgoing inclination (deg)")
+        else:
+            artists["front"] = ax.scatter(dsm[ok], gain[ok], color="#2b6cb0", s=28, zorder=2)
+        artists["knee"] = ax.scatter([dsm[knee]], [gain[knee]], s=170, facecolor="none",
+                                     edgecolor="#c53030", lw=1.8, zorder=3)
+        # Lower right is empty on any front of a minimised DSM against a maximised gain.
+        ax.annotate(f"knee: DSM {dsm[knee]:.3f} km/s, gain {gain[knee]:.3f} km/s",
+                    (dsm[knee], gain[knee]), xytext=(0.97, 0.06), textcoords="axes fraction",
+                    ha="right", fontsize=8.5, color="#c53030",
+                    arrowprops=dict(arrowstyle="-", color="#c53030", lw=0.8,
+                                    shrinkA=2, shrinkB=7))
+        ax.set_xlabel("DSM (km/s)" if "dsm" in c_dsm.lower() else f"{c_dsm} (km/s)")
+        ax.set_ylabel("v-infinity gain (km/s)")
+        ax.set_title(f"{record['problem']['name']}: trade front ({int(ok.sum())} designs)")
+        fig.subplots_adjust(left=0.12, right=0.97, bottom=0.13, top=0.92)
+    return Picture(_save(fig, folder / "front.png"), artists)
+
+
+# ------------------------------------------------------------------ launch window
+
+def sweep_table(folder) -> Path | None:
+    """The launch-window sweep table of a folder: sweep.csv, else one sweep*.csv."""
+    folder = Path(folder)
+    if (folder / "sweep.csv").is_file():
+        return folder / "sweep.csv"
+    found = sorted(folder.glob("sweep*.csv")) + sorted(folder.glob("*window*.csv"))
+    return found[0] if found else None
+
+
+def _launch_dates(rows, names):
+    """Launch datetimes (UTC) of sweep rows, from a date column or TDB days past J2000."""
+    c_date = _column(names, "launch utc", "launch date", "window open utc", "open utc", "utc",
+                     "date")
+    if c_date is not None:
+        out = []
+        for r in rows:
+            try:
+                out.append(datetime.fromisoformat(str(r[c_date]).strip().replace("Z", "")
+                                                  .replace(" ", "T")))
+            except ValueError:
+                out.append(None)
+        return out, c_date
+    c_day = _column(names, "launch day", "launch tdb")
+    if c_day is not None:
+        out = []
+        for r in rows:
+            day = _float(r[c_day])
+            out.append(_utc_datetime(day * DAY_S) if math.isfinite(day) else None)
+        return out, c_day
+    return None, None
+
+
+def launch_window(record, folder) -> Picture | None:
+    """launch_window.png: best objective against launch date from the sweep table."""
+    folder = Path(folder)
+    path = sweep_table(folder)
+    if path is None:
+        return None
+    rows = read_table(path)
+    if not rows:
+        return None
+    names = list(rows[0])
+    dates, c_date = _launch_dates(rows, names)
+    c_obj = _column(names, "best objective", "objective")
+    if dates is None or c_obj is None:
+        return None
+    c_feas = _column(names, "feasible")
+    keep = [i for i, d in enumerate(dates) if d is not None
+            and math.isfinite(_float(rows[i][c_obj]))]
+    if not keep:
+        return None
+    x = [dates[i] for i in keep]
+    y = np.array([_float(rows[i][c_obj]) for i in keep])
+    feasible = np.array([str(rows[i][c_feas]).strip().lower() in ("1", "true", "yes")
+                         if c_feas else True for i in keep])
+    fig = _new_figure(8.4, 4.6)
+    artists = {}
+    with matplotlib.rc_context(STYLE):
+        ax = fig.add_subplot(1, 1, 1)
+        (artists["scan"],) = ax.plot(x, y, color="#2b6cb0", lw=1.4, marker="o", ms=4,
+                                     label="best design launching then")
+        if c_feas and (~feasible).any():
+            bad = [xi for xi, f in zip(x, feasible) if not f]
+            artists["infeasible"] = ax.scatter(bad, y[~feasible], s=50, facecolor="white",
+                                               edgecolor="#c53030", zorder=3,
+                                               label="no design met every limit")
+        best = int(np.argmin(np.where(feasible, y, np.inf))) if feasible.any() else int(
+            np.argmin(y))
+        artists["best"] = ax.scatter([x[best]], [y[best]], s=140, facecolor="none",
+                                     edgecolor="black", lw=1.4, zorder=4,
+                                     label=f"best: {x[best]:%Y-%m-%d}")
+        locator = mdates.AutoDateLocator()
+        ax.xaxis.set_major_locator(locator)
+        ax.xaxis.set_major_formatter(mdates.ConciseDateFormatter(locator))
+        ax.set_xlabel("launch date (UTC)")
+        ax.set_ylabel("best objective (lower is better)")
+        ax.set_title(f"{record['problem']['name']}: launch-window scan ({path.name})")
+        ax.legend()
+        fig.subplots_adjust(left=0.11, right=0.97, bottom=0.15, top=0.91)
+    return Picture(_save(fig, folder / "launch_window.png"), artists)
+
+
+def all_pictures(record, folder) -> list[Picture]:
+    """Every picture this folder has data for."""
+    out = [trajectory(record, folder)]
+    for make in (convergence, front, launch_window):
+        pic = make(record, folder)
+        if pic is not None:
+            out.append(pic)
+    return out

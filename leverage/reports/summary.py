@@ -1,0 +1,127 @@
+"""The plain-text best-solution summary, made from a result record (best.json).
+
+Everything printed comes from the record, so the summary and the JSON cannot
+disagree (a test re-derives the summary's numbers from the JSON).
+"""
+import math
+
+from leverage import CAUTION
+from leverage.core.constants import DAY_S
+from leverage.record.design import as_float
+
+
+def fmt_number(value, digits=3, thousands=False):
+    """A record value as text: 'n/a' for missing, 'unbounded' for +inf."""
+    v = as_float(value) if not isinstance(value, str) else float(value)
+    if math.isnan(v):
+        return "n/a"
+    if math.isinf(v):
+        return "unbounded" if v > 0 else "-inf"
+    return f"{v:,.{digits}f}" if thousands else f"{v:.{digits}f}"
+
+
+_fmt = fmt_number
+
+
+def _d(record, name, digits=3):
+    item = record["derived"][name]
+    unit = f" {item['unit']}" if item["unit"] else ""
+    return f"{_fmt(item['value'], digits)}{unit}"
+
+
+def timeline(record) -> list[str]:
+    ev = {e["event"]: e for e in record["events"]}
+    der = record["derived"]
+    t0 = as_float(ev["launch"]["epoch_tdb_s"])
+
+    def day(e):
+        return (as_float(e["epoch_tdb_s"]) - t0) / DAY_S
+
+    rows = [("launch", ev["launch"], f"C3 {_d(record, 'c3')}, v-inf {_d(record, 'launch_vinf')}"),
+            ("DSM", ev["dsm"], f"{_d(record, 'dsm', 4)}"),
+            ("return flyby", ev["flyby"],
+             f"v-inf {_d(record, 'flyby_vinf_in')}, altitude {_d(record, 'flyby_altitude', 0)}")]
+    if "arrival" in ev:
+        rows.append(("arrival", ev["arrival"],
+                     f"v-inf {_d(record, 'arrival_vinf')}" if "arrival_vinf" in der else ""))
+    lines = [f"  {'event':<14}{'date (UTC)':<22}{'day':>8}  key numbers"]
+    for label, e, text in rows:
+        lines.append(f"  {label:<14}{e['utc'][:19]:<22}{day(e):>8.1f}  {text}")
+    return lines
+
+
+def render(record) -> str:
+    """The summary text of a result record."""
+    p = record["problem"]
+    s = record["search"]
+    lines = [
+        f"leverage summary: {p['name']} ({record['status']})",
+        f"  CAUTION: {CAUTION}",
+        "",
+        f"problem   {p['file']}  (sha256 {p['sha256'][:12]})",
+    ]
+    if p.get("description"):
+        lines.append(f"          {p['description']}")
+    lines += [
+        f"goal      {p['goal']}, flyby body {p['body']}"
+        + (f", target {p['target']}" if p.get("target") else "")
+        + (f", launch vehicle {p['vehicle']}" if p.get("vehicle") else ""),
+        f"search    {s['algorithm']}, {s['islands']} islands x {s['population']}, "
+        f"{s['generations']} generations, seed {s['seed']}, polish {s['polish']}",
+    ]
+    run = record.get("run", {})
+    if run:
+        lines.append(f"effort    {run.get('evaluations', 0):,} evaluations in "
+                     f"{_fmt(run.get('wall_time_s', 0.0), 1)} s")
+    front = record.get("front")
+    if front:
+        lines.append(f"front     {front['members']} feasible non-dominated designs trading "
+                     f"{', '.join(front['objectives'])}; hypervolume {_fmt(front['hypervolume'], 6)}"
+                     f" (reference {', '.join(_fmt(v, 3) for v in front['reference_point'])});"
+                     f" below: its knee point; all members in {front['file']}")
+        if as_float(front.get("knee_distance")) < 0.02:
+            lines.append("          no member stands out as a knee (knee distance "
+                         f"{_fmt(front['knee_distance'], 4)} of the front's scaled span: it "
+                         "does not bulge toward the ideal point); choose from front.csv")
+    feasible = "yes" if record["feasible"] else "NO (see margins)"
+    objective = ", ".join(_fmt(v, 6) for v in record["objective"])
+    lines += [f"objective {objective}    feasible: {feasible}", "",
+              "timeline"] + timeline(record)
+    lines += [
+        "",
+        "launch    " + ", ".join([f"C3 {_d(record, 'c3')}", f"DLA {_d(record, 'dla', 2)}",
+                                  f"RLA {_d(record, 'rla', 2)}"]),
+        "DSM       " + f"{_d(record, 'dsm', 4)}  (radial {_d(record, 'dsm_radial', 4)}, "
+        f"along-track {_d(record, 'dsm_along_track', 4)}, normal {_d(record, 'dsm_normal', 4)})",
+        "          " + f"Lambert arc: {int(as_float(record['derived']['lambert_revolutions']['value']))}"
+        f" revolutions, "
+        + ("low-path" if as_float(record['derived']['lambert_low_path']['value']) else "high-path")
+        + " root",
+        "flyby     " + f"altitude {_d(record, 'flyby_altitude', 1)}, turn {_d(record, 'turn_angle', 2)}"
+        f" (largest allowed {_d(record, 'max_turn_angle', 2)}), B-plane angle "
+        f"{_d(record, 'bplane_angle', 2)}",
+        "v-inf     " + f"launch {_d(record, 'launch_vinf')}, flyby in {_d(record, 'flyby_vinf_in')},"
+        f" out {_d(record, 'flyby_vinf_out')}, gain {_d(record, 'vinf_gain')}",
+        "leverage  " + f"{_d(record, 'leverage_ratio', 2)}",
+        "outgoing  " + f"a {_d(record, 'outgoing_sma', 4)}, e {_d(record, 'outgoing_eccentricity', 4)}, "
+        f"i {_d(record, 'outgoing_inclination', 3)}, perihelion {_d(record, 'outgoing_perihelion', 4)}, "
+        f"aphelion {_d(record, 'outgoing_aphelion', 4)}",
+    ]
+    if p.get("target"):
+        lines.append("target    " + f"{p['target']}: arrival v-inf {_d(record, 'arrival_vinf')}, "
+                     f"flyby burn {_d(record, 'flyby_burn', 4)}, arrival burn "
+                     f"{_d(record, 'arrival_burn', 4)}, total dv {_d(record, 'total_dv', 4)}")
+    if p.get("vehicle"):
+        lines.append("mass      " + f"injected {_d(record, 'injected_mass', 1)} at C3 "
+                     f"{_d(record, 'c3')}, delivered {_d(record, 'delivered_mass', 1)} after "
+                     f"{_d(record, 'total_dv', 4)}")
+    lines += [
+        "",
+        "limit margins (>= 0 holds)",
+    ]
+    for name, m in record["margins"].items():
+        unit = f" {m['unit']}" if m["unit"] else ""
+        state = "ok" if m["holds"] else "VIOLATED"
+        lines.append(f"  {name:<26}{_fmt(m['margin'], 4):>14}{unit:<12} {state}")
+    lines += ["", f"CAUTION: {CAUTION}", ""]
+    return "\n".join(lines)

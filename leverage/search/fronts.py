@@ -1,0 +1,306 @@
+"""Trade fronts: multi-objective search with pygmo nsga2, moead (moead_gen) or nspso.
+
+``FrontSearch`` has the interface of ``search.Search`` (``udp``, ``settings``,
+``state``, ``start_time``; ``done``, ``step()``, ``champion()``, ``polish(x)``) so the
+runner drives either. Each island is one population evolved in this process with
+pygmo's batch fitness evaluator (``pygmo.bfe`` calling the UDP's numba-parallel
+``batch_fitness``), which spreads the evaluations over the cores; islands are
+independent (no migration) and differ by seed.
+
+After every evolution the feasible members (every limit margin >= 0) of all islands
+are merged into an archive holding only mutually non-dominated designs (pygmo's
+fast non-dominated sorting, Deb et al. 2002). Its hypervolume against a fixed
+reference point (pygmo.hypervolume; the reference is the DSM budget, the arrival
+v-infinity limit, or zero gain / inclination / mass) measures how the front
+converges. The design written up in full is the front's knee: the member farthest
+from the hyperplane through the front's extreme members, in objectives scaled to
+[0, 1] over the front (Das 1999, "On characterizing the 'knee' of the Pareto curve
+based on normal-boundary intersection", Structural Optimization 18; from memory).
+"""
+import csv
+import io
+import math
+import time
+from dataclasses import dataclass, field, fields
+
+import numpy as np
+import pygmo as pg
+
+from leverage.core import layout as L
+from leverage.fileio import write_atomic
+from leverage.problem.load import check_algorithm
+from leverage.record.design import DERIVED, clean
+from leverage.search.single import IslandRecord, SearchState, island_seed, min_violation
+
+FRONT_ALGORITHM_NOTES = {
+    "nsga2": "non-dominated sorting genetic algorithm II (pygmo nsga2, batch evaluation)",
+    "moead": "decomposition-based evolutionary algorithm, DE variant (pygmo moead_gen, "
+             "batch evaluation)",
+    "nspso": "non-dominated sorting particle swarm (pygmo nspso, batch evaluation)",
+}
+MAX_ARCHIVE = 300  # front members kept; beyond this the most crowded are dropped
+
+# objective code -> (column name of the minimised quantity, unit)
+OBJECTIVES = {
+    L.OBJ_TOTAL_DV: ("total_dv", "km/s"),
+    L.OBJ_GAIN: ("minus_gain", "km/s"),
+    L.OBJ_INCLINATION: ("minus_inclination", "deg"),
+    L.OBJ_ARRIVAL_VINF: ("arrival_vinf", "km/s"),
+    L.OBJ_MASS: ("minus_delivered_mass", "t"),
+}
+
+
+def unit_slug(unit: str) -> str:
+    """A unit as a column-name suffix: 'km^2/s^2' -> 'km2_s2', 'days TDB' -> 'days_tdb'."""
+    return (unit.replace("^", "").replace("/", "_").replace(" ", "_").lower())
+
+
+def column(name: str, unit: str) -> str:
+    slug = unit_slug(unit)
+    return f"{name}_{slug}" if slug else name
+
+
+def search_class(compiled, settings):
+    """Search for a single objective, FrontSearch for several; refuses a mismatched
+    --algorithm in one line."""
+    from leverage.search.single import Search
+
+    front = compiled.n_obj > 1
+    check_algorithm("search settings", "algorithm", settings.algorithm, front,
+                    settings.population)
+    return FrontSearch if front else Search
+
+
+def make_front_algorithm(name: str, generations: int, seed: int, n_obj: int,
+                         population: int) -> pg.algorithm:
+    """A pygmo multi-objective algorithm with batch fitness evaluation."""
+    if name == "nsga2":
+        uda = pg.nsga2(gen=generations, seed=seed)
+    elif name == "moead":
+        # "grid" weights need special sizes beyond two objectives; low discrepancy does not.
+        weights = "grid" if n_obj == 2 else "low discrepancy"
+        uda = pg.moead_gen(gen=generations, weight_generation=weights,
+                           neighbours=max(2, min(20, population - 1)), seed=seed)
+    elif name == "nspso":
+        uda = pg.nspso(gen=generations, seed=seed)
+    else:
+        raise ValueError(f"unknown algorithm {name!r}; known: {', '.join(FRONT_ALGORITHM_NOTES)}")
+    uda.set_bfe(pg.bfe())
+    return pg.algorithm(uda)
+
+
+def feasible(q: np.ndarray) -> bool:
+    """Every leg solved and every limit margin >= 0 (the same test as best.json)."""
+    margins = q[L.Q_MARGIN_ALT_KM:L.Q_MARGIN_ALT_KM + L.N_MARGINS]
+    return bool(q[L.Q_OK] == 1.0 and np.all(margins >= 0.0))
+
+
+def non_dominated(f: np.ndarray) -> np.ndarray:
+    """Indices of the rows of f (minimised) that no other row dominates, duplicates
+    dropped (pygmo fast non-dominated sorting)."""
+    if len(f) == 0:
+        return np.zeros(0, dtype=int)
+    _, first = np.unique(np.round(f, 12), axis=0, return_index=True)
+    first = np.sort(first)
+    if len(first) == 1:
+        return first
+    fronts = pg.fast_non_dominated_sorting(f[first])[0]
+    return first[np.sort(np.asarray(fronts[0], dtype=int))]
+
+
+def reference_point(params: np.ndarray) -> np.ndarray:
+    """Fixed hypervolume reference of a front problem, in objective units."""
+    ref = []
+    for k in range(int(params[L.P_N_OBJ])):
+        code = int(params[L.P_OBJ_CODES + k])
+        if code == L.OBJ_TOTAL_DV:
+            ref.append(params[L.P_DSM_BUDGET_KMS])
+        elif code == L.OBJ_ARRIVAL_VINF:
+            ref.append(params[L.P_ARRIVAL_VINF_MAX_KMS])
+        else:
+            ref.append(0.0)  # zero gain, inclination or delivered mass
+    return np.array(ref, dtype=float)
+
+
+def hypervolume(f: np.ndarray, ref: np.ndarray) -> float:
+    """Hypervolume (objective units multiplied) dominated by the rows of f that are
+    strictly better than ref in every objective; 0 if none is."""
+    if len(f) == 0:
+        return 0.0
+    inside = f[np.all(f < ref, axis=1)]
+    if len(inside) == 0:
+        return 0.0
+    return float(pg.hypervolume(inside).compute(ref))
+
+
+def knee(f: np.ndarray) -> tuple[int, float]:
+    """(row, distance) of the member of a non-dominated set f farthest below the
+    hyperplane through its extreme rows, objectives scaled to [0, 1] over the set
+    (Das 1999; see module docstring). A distance near 0 means a nearly flat front,
+    on which no member stands out as the knee."""
+    if len(f) <= 2:
+        return 0, 0.0
+    lo, hi = f.min(axis=0), f.max(axis=0)
+    span = np.where(hi > lo, hi - lo, 1.0)
+    g = (f - lo) / span
+    extremes = g[np.argmin(f, axis=0)]  # one extreme member per objective
+    try:
+        normal = np.linalg.solve(extremes, np.ones(f.shape[1]))  # plane: normal . g = 1
+    except np.linalg.LinAlgError:
+        normal = np.ones(f.shape[1])
+    if not np.all(np.isfinite(normal)) or not np.any(normal):
+        normal = np.ones(f.shape[1])
+    distance = (1.0 - g @ normal) / np.linalg.norm(normal)
+    k = int(np.argmax(distance))
+    return k, float(distance[k])
+
+
+@dataclass
+class FrontRecord(IslandRecord):
+    """One convergence-log row of a front search: an island's row plus hypervolume.
+
+    Island "front" rows carry the archive (all islands' feasible non-dominated set)."""
+
+    hypervolume: float
+
+
+@dataclass
+class FrontState(SearchState):
+    """SearchState plus the archive of feasible, mutually non-dominated designs."""
+
+    archive_x: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+    archive_f: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+
+
+class FrontSearch:
+    """Islands of a pygmo multi-objective algorithm and the front archive."""
+
+    log_columns = [f.name for f in fields(FrontRecord)]
+
+    def __init__(self, udp, settings):
+        self.udp = udp
+        self.settings = settings
+        self.problem = pg.problem(udp)
+        s = settings
+        n_obj = udp.get_nobj()
+        bfe = pg.bfe()
+        pops = [pg.population(self.problem, s.population, b=bfe, seed=island_seed(s.seed, i))
+                for i in range(s.islands)]
+        algos = [make_front_algorithm(s.algorithm, s.generations_per_migration,
+                                      island_seed(s.seed, i), n_obj, s.population)
+                 for i in range(s.islands)]
+        self.state = FrontState(populations=pops, algorithms=algos,
+                                evaluations=sum(p.problem.get_fevals() for p in pops),
+                                archive_x=np.zeros((0, len(udp.lower))),
+                                archive_f=np.zeros((0, n_obj)))
+        self.reference = reference_point(udp.params)
+        self.start_time = time.monotonic()
+        self._update_archive()
+
+    @property
+    def done(self) -> bool:
+        return self.state.evolution >= self.settings.evolutions
+
+    def _feasible_members(self, pop):
+        xs, fs = pop.get_x(), pop.get_f()
+        keep = [i for i, x in enumerate(xs) if feasible(self.udp.details(x))]
+        return xs[keep], fs[keep]
+
+    def _update_archive(self):
+        st = self.state
+        xs, fs = [st.archive_x], [st.archive_f]
+        for pop in st.populations:
+            x, f = self._feasible_members(pop)
+            xs.append(x)
+            fs.append(f)
+        x, f = np.vstack(xs), np.vstack(fs)
+        keep = non_dominated(f)
+        x, f = x[keep], f[keep]
+        if len(f) > MAX_ARCHIVE:
+            best = np.sort(np.asarray(pg.select_best_N_mo(f, MAX_ARCHIVE), dtype=int))
+            x, f = x[best], f[best]
+        st.archive_x, st.archive_f = x, f
+
+    def step(self) -> list:
+        """One evolution of every island, then the archive; returns log rows."""
+        st, s = self.state, self.settings
+        for i in range(s.islands):
+            st.populations[i] = st.algorithms[i].evolve(st.populations[i])
+        st.evolution += 1
+        self._update_archive()
+        elapsed = time.monotonic() - self.start_time
+        rows, evals = [], 0
+        common = dict(evolution=st.evolution, generations=st.evolution * s.generations_per_migration,
+                      wall_time_s=elapsed)
+        for i, pop in enumerate(st.populations):
+            f = pop.get_f()[:, 0]
+            evals += pop.problem.get_fevals()
+            _, ff = self._feasible_members(pop)
+            rows.append(FrontRecord(
+                island=str(i), evaluations=pop.problem.get_fevals(),
+                best_objective=float(f.min()), median_objective=float(np.median(f)),
+                best_violation=min_violation(self.udp, pop.get_x()),
+                hypervolume=hypervolume(ff[non_dominated(ff)], self.reference), **common))
+        st.evaluations = evals
+        af = st.archive_f
+        rows.append(FrontRecord(
+            island="front", evaluations=evals,
+            best_objective=float(af[:, 0].min()) if len(af) else math.nan,
+            median_objective=float(np.median(af[:, 0])) if len(af) else math.nan,
+            best_violation=0.0 if len(af) else min(r.best_violation for r in rows),
+            hypervolume=self.hypervolume(), **common))
+        st.history.extend(rows)
+        return rows
+
+    def hypervolume(self) -> float:
+        return hypervolume(self.state.archive_f, self.reference)
+
+    def champion(self) -> tuple[np.ndarray, np.ndarray]:
+        """The knee of the archive; without feasible designs, the least-violating member."""
+        st = self.state
+        if len(st.archive_f):
+            k, _ = knee(st.archive_f)
+            return st.archive_x[k].copy(), st.archive_f[k].copy()
+        best = None
+        for pop in st.populations:
+            for x, f in zip(pop.get_x(), pop.get_f()):
+                pen = self.udp.details(x)[L.Q_PENALTY]
+                if best is None or pen < best[0]:
+                    best = (pen, x.copy(), f.copy())
+        return best[1], best[2]
+
+    def polish(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, int]:
+        """No local polish for a front member: returns x unchanged, 0 evaluations."""
+        return x, np.asarray(self.problem.fitness(x)), 0
+
+    def write_front(self, path, compiled) -> dict:
+        """Write the archive as CSV (atomically); return its description for best.json.
+
+        One row per member, sorted by the first objective: member number, knee flag,
+        the minimised objectives, the decision vector and every derived quantity of
+        ``result.DERIVED``, each column named with its unit.
+        """
+        st = self.state
+        codes = [int(self.udp.params[L.P_OBJ_CODES + k]) for k in range(self.udp.get_nobj())]
+        order = np.argsort(st.archive_f[:, 0], kind="stable") if len(st.archive_f) else []
+        knee_row, knee_distance = knee(st.archive_f) if len(st.archive_f) else (-1, math.nan)
+        header = (["member", "knee"]
+                  + [column("objective_" + OBJECTIVES[c][0], OBJECTIVES[c][1]) for c in codes]
+                  + [column(n, u) for n, u in zip(compiled.names, compiled.units)]
+                  + [column(name, unit) for name, _, unit, _, _ in DERIVED])
+        buf = io.StringIO()
+        out = csv.writer(buf, lineterminator="\n")
+        out.writerow(header)
+        for member, i in enumerate(order):
+            q = self.udp.details(st.archive_x[i])
+            out.writerow([member, int(i == knee_row)]
+                         + [repr(float(v)) for v in st.archive_f[i]]
+                         + [repr(float(v)) for v in st.archive_x[i]]
+                         + [repr(float(q[slot] * factor)) for _, slot, _, factor, _ in DERIVED])
+        write_atomic(path, buf.getvalue())
+        return {"file": str(getattr(path, "name", path)), "members": int(len(order)),
+                "objectives": [column(OBJECTIVES[c][0], OBJECTIVES[c][1]) for c in codes],
+                "reference_point": [float(v) for v in self.reference],
+                "hypervolume": self.hypervolume(),
+                "knee_member": int(list(order).index(knee_row)) if knee_row >= 0 else None,
+                "knee_distance": clean(knee_distance)}

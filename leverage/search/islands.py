@@ -1,0 +1,127 @@
+"""Where the islands of a search evolve: in this process, in worker processes, or on a cluster.
+
+An evolver takes the islands' pygmo algorithms and populations, evolves each pair
+once (``algorithm.evolve(population)``) and returns the new algorithms (their
+random-engine state has moved on) and populations, in island order. The islands
+never talk to each other inside an evolution (the search migrates between
+evolutions, in a fixed order), so every evolver gives the same answer for the same
+seed and island count; only the wall time differs.
+
+- ``SerialIslands``: one after the other in this process (no extra processes).
+- ``ProcessIslands``: a ``workers.WorkerPool`` on this machine's cores.
+- ``ClusterIslands``: ipyparallel engines through pygmo's ``ipyparallel_island``
+  (see ``leverage.cluster`` for connecting).
+
+``close()`` releases processes or connections; ``abort()`` does so without waiting
+for work in progress (used when a run is interrupted).
+"""
+import copy
+import os
+import time
+
+import pygmo as pg
+
+from leverage.search.workers import WorkerPool
+
+
+def _evolve_pair(pair):
+    """Evolve one island once (runs in a worker process)."""
+    algorithm, population = pair
+    population = algorithm.evolve(population)
+    return algorithm, population
+
+
+class SerialIslands:
+    """Evolve the islands in turn, in this process."""
+
+    name = "serial"
+
+    def evolve(self, algorithms, populations):
+        # Copies, so an interruption halfway leaves the caller's state untouched.
+        pairs = [_evolve_pair((copy.deepcopy(a), p)) for a, p in zip(algorithms, populations)]
+        return [a for a, _ in pairs], [p for _, p in pairs]
+
+    def close(self):
+        pass
+
+    def abort(self):
+        pass
+
+
+class ProcessIslands:
+    """Evolve the islands in worker processes on this machine (started on first use)."""
+
+    name = "processes"
+
+    def __init__(self, workers: int):
+        self.workers = int(workers)
+        self._pool = None
+
+    def evolve(self, algorithms, populations):
+        if self._pool is None:
+            self._pool = WorkerPool(self.workers)
+        pairs = self._pool.map(_evolve_pair, list(zip(algorithms, populations)))
+        return [a for a, _ in pairs], [p for _, p in pairs]
+
+    def close(self):
+        if self._pool is not None:
+            self._pool.close()
+            self._pool = None
+
+    def abort(self):
+        if self._pool is not None:
+            self._pool.abort()
+            self._pool = None
+
+
+class ClusterIslands:
+    """Evolve the islands on ipyparallel engines through pygmo's ``ipyparallel_island``.
+
+    ``client_kwargs`` are ``ipyparallel.Client`` arguments (``leverage.cluster``
+    builds them from a profile name or connection file and checks the engines first).
+    """
+
+    name = "cluster"
+
+    def __init__(self, client_kwargs: dict):
+        pg.ipyparallel_island.shutdown_view()
+        pg.ipyparallel_island.init_view(client_kwargs=dict(client_kwargs))
+
+    def evolve(self, algorithms, populations):
+        archi = pg.archipelago(t=pg.topology(pg.unconnected()))
+        for algorithm, population in zip(algorithms, populations):
+            archi.push_back(udi=pg.ipyparallel_island(), algo=algorithm, pop=population)
+        archi.evolve()
+        try:
+            # Short sleeps instead of one blocking wait, so SIGINT/SIGTERM are seen at once.
+            while archi.status in (pg.evolve_status.busy, pg.evolve_status.busy_error):
+                time.sleep(0.05)
+        except KeyboardInterrupt:
+            # Evolutions already on the engines cannot be recalled; wait for them so the
+            # archipelago's threads end before it is destroyed, then stop.
+            archi.wait()
+            raise
+        archi.wait_check()
+        return [isl.get_algorithm() for isl in archi], [isl.get_population() for isl in archi]
+
+    def close(self):
+        pg.ipyparallel_island.shutdown_view()
+
+    def abort(self):
+        self.close()
+
+
+def cpu_count() -> int:
+    """Cores this process may run on."""
+    if hasattr(os, "sched_getaffinity"):
+        return len(os.sched_getaffinity(0))
+    return os.cpu_count() or 1
+
+
+def local_evolver(islands: int, workers: int | None = None):
+    """Serial for one island or one worker, else worker processes (default: one per core,
+    at most one per island)."""
+    if workers is None:
+        workers = min(islands, cpu_count())
+    workers = min(int(workers), islands)
+    return SerialIslands() if workers <= 1 else ProcessIslands(workers)

@@ -1,0 +1,64 @@
+"""The pygmo user-defined problem: a thin, picklable shell around the compiled fitness.
+
+pygmo's pattern (inherit nothing; ``fitness``, ``get_bounds``, ``get_nobj``,
+``batch_fitness``). Worker processes unpickle it by importing this module, so it
+holds only numpy arrays and module-level jitted functions.
+"""
+import os
+
+# numba's threading layer here is GNU OpenMP, whose idle threads spin for about 300,000
+# turns before sleeping. On a busy machine a spinning thread takes the core from the one
+# with work: a batch of 24-64 points on 2 threads ran 2-45x slower than on one. Never
+# spinning (OMP_WAIT_POLICY=PASSIVE) loses the 2-thread gain on small batches of a quiet
+# machine; 1,000 turns kept most of it and never fell behind one thread
+# (benchmarks/README.md). Read when the first numba-parallel call loads OpenMP; a user's
+# own setting is kept.
+if "OMP_WAIT_POLICY" not in os.environ:
+    os.environ.setdefault("GOMP_SPINCOUNT", "1000")
+
+import numpy as np  # noqa: E402
+import pygmo as pg  # noqa: E402
+
+from leverage.core import trajectory  # noqa: E402
+
+
+class LeveragingUDP:
+    """pygmo problem over the decision vector described in ``core.layout``."""
+
+    def __init__(self, params, lower, upper, n_obj=1, name="leverage"):
+        self.params = np.ascontiguousarray(params, dtype=float)
+        self.lower = np.asarray(lower, dtype=float)
+        self.upper = np.asarray(upper, dtype=float)
+        self.n_obj = int(n_obj)
+        self.name = name
+
+    @classmethod
+    def from_compiled(cls, compiled, name="leverage"):
+        return cls(compiled.params, compiled.lower, compiled.upper, compiled.n_obj, name)
+
+    def fitness(self, x):
+        return trajectory.fitness(np.asarray(x, dtype=float), self.params)
+
+    def batch_fitness(self, dvs):
+        xs = np.asarray(dvs, dtype=float).reshape(-1, self.lower.shape[0])
+        return trajectory.batch_fitness(xs, self.params).ravel()
+
+    def has_batch_fitness(self):
+        return True
+
+    def get_bounds(self):
+        return (self.lower, self.upper)
+
+    def get_nobj(self):
+        return self.n_obj
+
+    def gradient(self, x):
+        # Finite differences (pygmo's estimate_gradient_h) for the SLSQP polish.
+        return pg.estimate_gradient_h(lambda v: self.fitness(v), x)
+
+    def get_name(self):
+        return f"leverage: {self.name}"
+
+    def details(self, x):
+        """All derived quantities of one point (slots in core.layout)."""
+        return trajectory.details(np.asarray(x, dtype=float), self.params)

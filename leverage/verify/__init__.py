@@ -1,0 +1,1 @@
+"""Checks of a design outside the search model: precise ephemeris, integration, point masses."""

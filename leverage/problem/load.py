@@ -71,11 +71,15 @@ def read_toml(path) -> tuple[str, dict]:
         raise ProblemError(source, "", NO_VALUE, "is a directory, not a problem file") from None
     except (OSError, UnicodeDecodeError) as exc:
         raise ProblemError(source, "", NO_VALUE, f"cannot read ({exc})") from None
+    return text, parse_toml(source, text)
+
+
+def parse_toml(source: str, text: str) -> dict:
+    """The table of TOML text; ProblemError naming ``source`` when it is not TOML."""
     try:
-        table = tomli.loads(text)
+        return tomli.loads(text)
     except tomli.TOMLDecodeError as exc:
         raise ProblemError(source, "", NO_VALUE, f"not valid TOML: {exc}") from None
-    return text, table
 
 
 def _number(source, key, value):
@@ -266,6 +270,16 @@ def load_problem(path) -> Problem:
     """Read and validate a problem file; ProblemError (one line) if anything is off."""
     source = str(path)
     text, table = read_toml(path)
+    return _problem(source, text, table, Path(path).stem)
+
+
+def load_problem_text(text: str, source: str = "<text>", name: str = "problem") -> Problem:
+    """A problem from TOML text (``source`` names it in messages; ``name`` is the study
+    name when the text gives none)."""
+    return _problem(source, text, parse_toml(source, text), name)
+
+
+def _problem(source: str, text: str, table: dict, stem: str) -> Problem:
     values = validate(source, table)
     body = bodies.planet(values["body"]["name"])
     _check_relations(source, values, body)
@@ -274,7 +288,7 @@ def load_problem(path) -> Problem:
     vehicle = (vehicle_from_values(source, values["vehicle"])
                if values.get("vehicle") is not None else None)
     _check_trade_relations(source, values, target, vehicle)
-    name = values["study"]["name"] or Path(path).stem
+    name = values["study"]["name"] or stem
     return Problem(source=source, text=text, values=values, name=name, body=body,
                    target=target, vehicle=vehicle)
 

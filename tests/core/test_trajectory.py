@@ -35,7 +35,7 @@ from leverage.core.kepler import propagate
 from leverage.core.trajectory import details
 from leverage.problem.load import load_problem
 
-DEMO = Path(__file__).resolve().parent.parent / "problems" / "demo.toml"
+DEMO = Path(__file__).resolve().parents[2] / "problems" / "demo.toml"
 MU_SUN = bodies.GM_SUN_KM3_S2
 DAY = 86400.0
 OBLIQUITY_IAU1976 = math.radians(84381.448 / 3600.0)

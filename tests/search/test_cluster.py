@@ -24,7 +24,7 @@ from leverage.run.runner import finish, make_search, settings_from
 from leverage.search.islands import SerialIslands
 from leverage.search.udp import LeveragingUDP
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 START_TIMEOUT_S = 120
 RUN_TIMEOUT_S = 300
 PROFILE = "leverage-test"

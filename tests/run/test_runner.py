@@ -24,7 +24,7 @@ from leverage.problem.load import load_problem
 from leverage.run import afterrun
 from leverage.run.runner import Progress, settings_from
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "problems" / "demo.toml"
 SMALL = ["--generations", "100", "--population", "16"]
 

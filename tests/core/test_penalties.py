@@ -67,7 +67,7 @@ _DEMO = {}
 
 def _demo():
     if not _DEMO:
-        demo = Path(__file__).resolve().parent.parent / "problems" / "demo.toml"
+        demo = Path(__file__).resolve().parents[2] / "problems" / "demo.toml"
         compiled = load_problem(demo).compile()
         _DEMO["c"] = compiled
     return _DEMO["c"]

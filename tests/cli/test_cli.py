@@ -25,7 +25,7 @@ from leverage import CAUTION
 from leverage.cli import main
 from leverage.run import afterrun
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 PROBLEMS = ROOT / "problems"
 TEMPLATES = ["outer-departure", "inclination-raise"]
 SMALL = ["--generations", "100", "--population", "16"]

@@ -9,7 +9,7 @@ Outside sources:
 Everything else checks the project's own promises (README, "Exit codes" and
 "Problem files"): a bad file or command line exits 2 with one line on stderr naming
 the file, the key and the value, and never a traceback. The corpus of bad files is
-in tests/bad_problems/; each states the fragments its message must contain on
+in tests/problem/bad_problems/; each states the fragments its message must contain on
 ``# expect:`` lines.
 """
 import math
@@ -22,7 +22,7 @@ from astropy.time import Time
 from leverage.cli import main
 from leverage.problem.load import load_problem
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 BAD = Path(__file__).resolve().parent / "bad_problems"
 BAD_FILES = sorted(BAD.glob("*.toml"))
 SHIPPED = sorted((ROOT / "problems").glob("*.toml"))

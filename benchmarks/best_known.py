@@ -40,9 +40,9 @@ REFERENCES = {
     "earth-3yr": BENCH_PROBLEMS / "earth-3yr.toml",
     "earth-gain": BENCH_PROBLEMS / "earth-gain.toml",
 }
-GRID_VARS = (L.X_LAUNCH_DAY, L.X_LOOP_DAYS)
-FREE_VARS = (L.X_VINF_KMS, L.X_AZIMUTH_DEG, L.X_ELEVATION_DEG, L.X_DSM_FRACTION,
-             L.X_FLYBY_ALT_KM, L.X_BPLANE_DEG)
+GRID_VARS = (L.X_LAUNCH_EPOCH_DAYS, L.X_LOOP_DURATION_DAYS)
+FREE_VARS = (L.X_LAUNCH_VINF_KM_S, L.X_LAUNCH_IN_PLANE_ANGLE_DEG, L.X_LAUNCH_OUT_OF_PLANE_ANGLE_DEG, L.X_DSM_FRACTION,
+             L.X_FLYBY_ALTITUDE_KM, L.X_BPLANE_ANGLE_DEG)
 
 
 class FixedGridPoint:
@@ -92,8 +92,8 @@ def grid_axis(low, high, step):
 def search_grid(compiled, launch_step, loop_step, samples, starts, rng, log):
     """Best (objective, free-variable vector) at every grid point; returns arrays."""
     p, lo, hi = compiled.params, compiled.lower, compiled.upper
-    days = grid_axis(lo[L.X_LAUNCH_DAY], hi[L.X_LAUNCH_DAY], launch_step)
-    loops = grid_axis(lo[L.X_LOOP_DAYS], hi[L.X_LOOP_DAYS], loop_step)
+    days = grid_axis(lo[L.X_LAUNCH_EPOCH_DAYS], hi[L.X_LAUNCH_EPOCH_DAYS], launch_step)
+    loops = grid_axis(lo[L.X_LOOP_DURATION_DAYS], hi[L.X_LOOP_DURATION_DAYS], loop_step)
     best_f = np.full((days.size, loops.size), np.inf)
     best_y = np.zeros((days.size, loops.size, len(FREE_VARS)))
     algo = bobyqa()
@@ -103,7 +103,7 @@ def search_grid(compiled, launch_step, loop_step, samples, starts, rng, log):
     for i, day in enumerate(days):
         for j, loop in enumerate(loops):
             fixed = lo.copy()
-            fixed[L.X_LAUNCH_DAY], fixed[L.X_LOOP_DAYS] = day, loop
+            fixed[L.X_LAUNCH_EPOCH_DAYS], fixed[L.X_LOOP_DURATION_DAYS] = day, loop
             sub = FixedGridPoint(p, lo, hi, fixed)
             xs = np.tile(fixed, (samples, 1))
             xs[:, free] = sub.lower + rng.random((samples, len(free))) * (sub.upper - sub.lower)
@@ -120,7 +120,7 @@ def search_grid(compiled, launch_step, loop_step, samples, starts, rng, log):
     for i in range(days.size):
         for j in range(loops.size):
             fixed = lo.copy()
-            fixed[L.X_LAUNCH_DAY], fixed[L.X_LOOP_DAYS] = days[i], loops[j]
+            fixed[L.X_LAUNCH_EPOCH_DAYS], fixed[L.X_LOOP_DURATION_DAYS] = days[i], loops[j]
             sub = FixedGridPoint(p, lo, hi, fixed)
             for di, dj in ((-1, 0), (1, 0), (0, -1), (0, 1)):
                 a, b = i + di, j + dj
@@ -196,7 +196,7 @@ def full_polish(compiled, days, loops, best_f, best_y, final):
     for flat in sorted(chosen):
         i, j = np.unravel_index(flat, best_f.shape)
         x = compiled.lower.copy()
-        x[L.X_LAUNCH_DAY], x[L.X_LOOP_DAYS] = days[i], loops[j]
+        x[L.X_LAUNCH_EPOCH_DAYS], x[L.X_LOOP_DURATION_DAYS] = days[i], loops[j]
         x[list(FREE_VARS)] = best_y[i, j]
         f = np.inf
         for step in steps:

@@ -115,8 +115,8 @@ def _penalty(margins: dict, weight: float) -> float:
 
 def evaluate(x, s: Setting) -> dict:
     """DSM (km/s) and objective of decision vector x (leverage's layout), or None if unsolved."""
-    t0 = J2000 + x[L.X_LAUNCH_DAY] * u.day
-    loop = x[L.X_LOOP_DAYS] * u.day
+    t0 = J2000 + x[L.X_LAUNCH_EPOCH_DAYS] * u.day
+    loop = x[L.X_LOOP_DURATION_DAYS] * u.day
     t1 = t0 + x[L.X_DSM_FRACTION] * loop
     t2 = t0 + loop
     planet0 = planet_orbit(s.row, t0)
@@ -124,8 +124,8 @@ def evaluate(x, s: Setting) -> dict:
     along = _unit(vb0)
     normal = _unit(np.cross(r0, vb0))
     out = np.cross(along, normal)
-    az, el = x[L.X_AZIMUTH_DEG] * u.deg, x[L.X_ELEVATION_DEG] * u.deg
-    vinf0 = x[L.X_VINF_KMS] * u.km / u.s * (np.cos(el) * np.cos(az) * along
+    az, el = x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG] * u.deg, x[L.X_LAUNCH_OUT_OF_PLANE_ANGLE_DEG] * u.deg
+    vinf0 = x[L.X_LAUNCH_VINF_KM_S] * u.km / u.s * (np.cos(el) * np.cos(az) * along
                                             + np.cos(el) * np.sin(az) * out
                                             + np.sin(el) * normal)
     c3 = vinf0 @ vinf0
@@ -149,15 +149,15 @@ def evaluate(x, s: Setting) -> dict:
             dsm = np.linalg.norm(v1_after - v1_before).to(u.km / u.s)
             vinf_in = v2 - vb2
             speed = np.linalg.norm(vinf_in)
-            alt = x[L.X_FLYBY_ALT_KM] * u.km
+            alt = x[L.X_FLYBY_ALTITUDE_KM] * u.km
             rp = s.radius + alt
             turn = 2 * np.arcsin(1 / (1 + rp * speed**2 / s.k_body)).to(u.rad)
             rp_min = s.radius + s.min_alt
             turn_max = 2 * np.arcsin(1 / (1 + rp_min * speed**2 / s.k_body)).to(u.rad)
-            v_out, _ = compute_flyby(v2, vb2, s.k_body, rp, x[L.X_BPLANE_DEG] * u.deg)
+            v_out, _ = compute_flyby(v2, vb2, s.k_body, rp, x[L.X_BPLANE_ANGLE_DEG] * u.deg)
             outgoing = Orbit.from_vectors(Sun, r2, v_out, epoch=t2, plane=Planes.EARTH_ECLIPTIC)
             vinf_out = np.linalg.norm(v_out - vb2)
-            gain = speed - x[L.X_VINF_KMS] * u.km / u.s
+            gain = speed - x[L.X_LAUNCH_VINF_KM_S] * u.km / u.s
             margins = {"alt": alt - s.min_alt, "turn": turn_max - turn, "c3": s.c3_max - c3,
                        "dla": min(dla - s.dla_min, s.dla_max - dla)}
             if np.isfinite(s.dsm_budget):

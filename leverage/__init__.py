@@ -7,13 +7,7 @@ The Python interface (``leverage.api``) is here too: ``load_problem``, ``solve``
 ``open_result``, ``Design`` and ``ProblemError``. They load on first use, so that
 ``import leverage`` and the commands that do not search stay quick.
 """
-__version__ = "0.1.0"
-
-CAUTION = (
-    "Preliminary patched-conic design. Before any flight use, verify it with "
-    "high-fidelity tools, flyby-safety and planetary-protection analysis, and "
-    "licensed practice."
-)
+from leverage.about import CAUTION, __version__
 
 _API = ("load_problem", "solve", "open_result", "Design")
 __all__ = ["CAUTION", "ProblemError", "__version__", *_API]

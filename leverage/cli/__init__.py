@@ -9,7 +9,7 @@ import importlib
 import pkgutil
 import sys
 
-from leverage import __version__
+from leverage.about import __version__
 from leverage.errors import NO_VALUE, ProblemError
 
 # Exit codes of every command (README "Exit codes").

@@ -3,22 +3,36 @@
 The compiled fitness takes plain float64 arrays (picklable, no Python objects in
 the hot path). Module-level integers are frozen as constants by numba.
 
-Decision vector ``x`` (units in the name):
+- ``x``, the decision vector: ``X_*`` slots, named like the problem-file keys that bound
+  them and like ``best.json``'s ``decision_vector.names`` (slot name lower-cased without
+  ``X_``), units in the name.
+- ``p``, the parameter array: ``P_*`` slots (limits, weights, body data).
+- ``q``, the derived quantities of one evaluation: ``Q_*`` slots, units in the comments
+  (``leverage.record.design`` names each one, with its unit, for people).
 """
 from .ephemeris import EPHEMERIS_SIZE
 
 # --- decision vector -------------------------------------------------------
-X_LAUNCH_DAY = 0       # launch epoch, days TDB past J2000
-X_VINF_KMS = 1         # launch v-infinity magnitude, km/s
-X_AZIMUTH_DEG = 2      # launch direction in the orbit plane, from the body's velocity toward "out", deg
-X_ELEVATION_DEG = 3    # launch direction out of the orbit plane, toward the orbit normal, deg
-X_LOOP_DAYS = 4        # launch to return flyby, days
-X_DSM_FRACTION = 5     # DSM epoch as a fraction of the loop, 0..1
-X_FLYBY_ALT_KM = 6     # return flyby periapsis altitude, km
-X_BPLANE_DEG = 7       # return flyby B-plane angle, deg
-N_X_LOOP = 8           # decision vector length without a target leg
-N_X_TARGET = 7         # with a target leg the flyby geometry follows from the leg, so
-X_TARGET_LEG_DAYS = 6  # x[6] is the flyby-to-arrival duration (days) and there is no x[7]
+X_LAUNCH_EPOCH_DAYS = 0              # launch epoch, days TDB past J2000
+X_LAUNCH_VINF_KM_S = 1               # launch v-infinity magnitude, km/s
+X_LAUNCH_IN_PLANE_ANGLE_DEG = 2      # launch direction in the orbit plane, from the body's
+                                     # velocity toward "out", deg ([launch] in_plane_angle_deg)
+X_LAUNCH_OUT_OF_PLANE_ANGLE_DEG = 3  # launch direction out of the orbit plane, toward the
+                                     # orbit normal, deg ([launch] out_of_plane_angle_deg)
+X_LOOP_DURATION_DAYS = 4             # launch to return flyby, days
+X_DSM_FRACTION = 5                   # DSM epoch as a fraction of the loop, 0..1
+X_FLYBY_ALTITUDE_KM = 6              # return flyby periapsis altitude, km (loop problems)
+X_BPLANE_ANGLE_DEG = 7               # return flyby B-plane angle, deg (loop problems)
+N_X_LOOP = 8                         # decision vector length without a target leg
+# With a target leg the flyby geometry follows from the leg: the vector is 7 long and its
+# last slot is the flyby-to-arrival duration instead (slot 6 is the first slot that
+# depends on the problem kind; compiled.names says which it is).
+X_TARGET_LEG_DAYS = 6
+N_X_TARGET = 7
+X_NAMES_LOOP = ("launch_epoch_days", "launch_vinf_km_s", "launch_in_plane_angle_deg",
+                "launch_out_of_plane_angle_deg", "loop_duration_days", "dsm_fraction",
+                "flyby_altitude_km", "bplane_angle_deg")
+X_NAMES_TARGET = X_NAMES_LOOP[:X_TARGET_LEG_DAYS] + ("target_leg_days",)
 
 # --- parameters --------------------------------------------------------------
 P_MU_SUN = 0

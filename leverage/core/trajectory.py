@@ -99,14 +99,14 @@ def objectives(q, p, f):
 def _launch(x, p, q):
     """Launch state and the legs up to the DSM point; fills q, returns states."""
     eph = p[L.P_BODY_EPH:L.P_BODY_EPH + EPHEMERIS_SIZE]
-    t0 = x[L.X_LAUNCH_DAY] * DAY_S
-    t_loop = x[L.X_LOOP_DAYS] * DAY_S
+    t0 = x[L.X_LAUNCH_EPOCH_DAYS] * DAY_S
+    t_loop = x[L.X_LOOP_DURATION_DAYS] * DAY_S
     t1 = t0 + x[L.X_DSM_FRACTION] * t_loop
     r0, vb0 = body_state(eph, t0)
     along, out, normal = velocity_frame(r0, vb0)
-    u = direction_from_angles(along, out, normal, x[L.X_AZIMUTH_DEG] * _DEG,
-                              x[L.X_ELEVATION_DEG] * _DEG)
-    vinf0 = x[L.X_VINF_KMS] * u
+    u = direction_from_angles(along, out, normal, x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG] * _DEG,
+                              x[L.X_LAUNCH_OUT_OF_PLANE_ANGLE_DEG] * _DEG)
+    vinf0 = x[L.X_LAUNCH_VINF_KM_S] * u
     v0 = vb0 + vinf0
     c3, dla, rla = launch_asymptote(vinf0, p[L.P_POLE_RA], p[L.P_POLE_DEC])
     q[L.Q_T_LAUNCH] = t0
@@ -115,7 +115,7 @@ def _launch(x, p, q):
     q[L.Q_C3] = c3
     q[L.Q_DLA] = dla
     q[L.Q_RLA] = rla
-    q[L.Q_VINF_LAUNCH] = x[L.X_VINF_KMS]
+    q[L.Q_VINF_LAUNCH] = x[L.X_LAUNCH_VINF_KM_S]
     q[L.Q_MARGIN_C3] = p[L.P_C3_MAX] - c3
     q[L.Q_MARGIN_DLA_RAD] = min(dla - p[L.P_DLA_MIN], p[L.P_DLA_MAX] - dla)
     _put(q, L.Q_R_LAUNCH, r0)
@@ -216,10 +216,10 @@ def _free_flyby(x, p, q, vinf_in):
     """Unpowered flyby turned by the periapsis altitude and B-plane angle in x."""
     speed_in = q[L.Q_VINF_IN]
     rp_min = p[L.P_BODY_RADIUS_KM] + p[L.P_MIN_ALT_KM]
-    alt = x[L.X_FLYBY_ALT_KM]
+    alt = x[L.X_FLYBY_ALTITUDE_KM]
     rp = p[L.P_BODY_RADIUS_KM] + alt
     turn = turn_angle(p[L.P_BODY_MU], speed_in, rp)
-    theta = x[L.X_BPLANE_DEG] * _DEG
+    theta = x[L.X_BPLANE_ANGLE_DEG] * _DEG
     q[L.Q_VINF_OUT] = speed_in
     q[L.Q_TURN] = turn
     q[L.Q_TURN_MAX] = max_turn(p[L.P_BODY_MU], speed_in, rp_min)

@@ -344,8 +344,7 @@ def check_algorithm(source: str, key: str, algorithm: str, front: bool, populati
 
 # ---------------------------------------------------------------- compiling
 
-X_NAMES = ["launch_epoch", "launch_vinf", "launch_in_plane_angle", "launch_out_of_plane_angle",
-           "loop_duration", "dsm_fraction", "flyby_altitude", "bplane_angle"]
+X_NAMES = list(L.X_NAMES_LOOP)
 X_UNITS = ["days TDB past J2000", "km/s", "deg", "deg", "days", "fraction of loop", "km", "deg"]
 
 
@@ -431,7 +430,7 @@ def _compile_trade(problem: Problem, compiled: CompiledProblem) -> None:
         n = L.N_X_TARGET
         compiled.lower = np.append(compiled.lower[:n - 1], t["leg_duration_days"][0])
         compiled.upper = np.append(compiled.upper[:n - 1], t["leg_duration_days"][1])
-        compiled.names = compiled.names[:n - 1] + ["target_leg_duration"]
+        compiled.names = list(L.X_NAMES_TARGET)
         compiled.units = compiled.units[:n - 1] + ["days"]
     p[L.P_W_ARRIVAL] = goal["arrival_vinf_weight"]
     if problem.vehicle is not None:

@@ -9,7 +9,7 @@ import platform
 
 import numpy as np
 
-from leverage import CAUTION, __version__
+from leverage.about import CAUTION, __version__
 from leverage.astro import times
 from leverage.core import layout as L
 from leverage.core.constants import AU_KM
@@ -75,6 +75,14 @@ MARGINS = [
 ]
 
 
+def feasible(q) -> bool:
+    """The feasibility rule, the one place it is written: every leg solved and every limit
+    margin >= 0 (from the margins, not the penalty: a zero penalty_weight must not hide a
+    violation). ``q`` is the kernel's derived-quantity array."""
+    margins = q[L.Q_MARGIN_ALT_KM:L.Q_MARGIN_ALT_KM + L.N_MARGINS]
+    return bool(q[L.Q_OK] == 1.0 and np.all(margins >= 0.0))
+
+
 def clean(value):
     """A JSON-safe float: NaN -> None, +-inf -> 'inf'/'-inf' strings."""
     value = float(value)
@@ -135,9 +143,7 @@ def design_record(compiled, udp, x) -> dict:
                             "lower": [float(v) for v in compiled.lower],
                             "upper": [float(v) for v in compiled.upper]},
         "objective": [clean(v) for v in f],
-        # From the margins, not the penalty: a zero penalty_weight must not hide a violation.
-        "feasible": bool(q[L.Q_OK] == 1.0
-                         and all(q[slot] >= 0.0 for _, slot, _, _, _ in MARGINS)),
+        "feasible": feasible(q),
         "derived": derived,
         "margins": margins,
         "events": events,

@@ -11,7 +11,7 @@ from pathlib import Path
 
 import tomli
 
-from leverage import CAUTION
+from leverage.about import CAUTION
 from leverage.reports.summary import fmt_number
 
 # label, derived quantity, digits

@@ -22,7 +22,7 @@ from datetime import datetime, timezone
 import numpy as np
 from astropy.time import Time
 
-from leverage import CAUTION, __version__
+from leverage.about import CAUTION, __version__
 from leverage.astro.ephemerides import ecliptic_to_equatorial
 from leverage.astro.times import J2000_JD
 from leverage.core.constants import DAY_S

@@ -5,7 +5,7 @@ disagree (a test re-derives the summary's numbers from the JSON).
 """
 import math
 
-from leverage import CAUTION
+from leverage.about import CAUTION
 from leverage.core.constants import DAY_S
 from leverage.record.design import as_float
 

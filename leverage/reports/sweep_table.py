@@ -11,7 +11,7 @@ import csv
 import io
 import math
 
-from leverage import CAUTION
+from leverage.about import CAUTION
 from leverage.astro.times import parse_utc
 from leverage.core.constants import DAY_S
 from leverage.fileio import read_json

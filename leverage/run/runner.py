@@ -168,6 +168,22 @@ def make_search(compiled, udp, settings: SearchSettings, evolver=None):
     return cls(udp, settings)
 
 
+def prepare(problem, settings: SearchSettings, evolver):
+    """(compiled problem, pygmo problem, search) for a run; ``where`` the islands evolve
+    goes in the record as ``run.islands_evolved``."""
+    compiled = problem.compile()
+    udp = LeveragingUDP.from_compiled(compiled, problem.name)
+    search = make_search(compiled, udp, settings, evolver)
+    return compiled, udp, search
+
+
+def islands_evolved(search, evolver) -> str:
+    """Where the islands evolved, for the record (fronts evolve here in one batch)."""
+    if getattr(search, "evolver", None) is evolver:
+        return evolver.name
+    return "this process (batch evaluation)"
+
+
 def finish(problem, settings: SearchSettings, compiled, udp, search, status: str,
            front_path: Path | None = None, run_info: dict | None = None) -> dict:
     """Polish the champion (only when the search completed) and build the result record."""
@@ -252,15 +268,12 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
     evolver = evolver or local_evolver(settings.islands)
     status = "complete"
     search = None
-    run_info = {"islands_evolved": evolver.name}
+    run_info = {}
     with StopSignals() as stop:
         try:
             try:
-                compiled = problem.compile()
-                udp = LeveragingUDP.from_compiled(compiled, problem.name)
-                search = make_search(compiled, udp, settings, evolver)
-                if getattr(search, "evolver", None) is not evolver:
-                    run_info["islands_evolved"] = "this process (batch evaluation)"
+                compiled, udp, search = prepare(problem, settings, evolver)
+                run_info["islands_evolved"] = islands_evolved(search, evolver)
                 if resume is not None:
                     checkpoint.restore(search, resume)
                     run_info["resumed_from_evolution"] = search.state.evolution

@@ -24,13 +24,13 @@ import time
 from dataclasses import asdict, dataclass, replace
 from pathlib import Path
 
-from leverage import CAUTION
+from leverage.about import CAUTION
 from leverage.errors import NO_VALUE, ProblemError
 from leverage.fileio import read_json, write_atomic, write_json
 from leverage.problem.schema import MAX_SEED
 from leverage.reports import summary
 from leverage.reports import sweep_table as sweep_report
-from leverage.run.runner import LOG_COLUMNS, StopSignals, finish, make_search
+from leverage.run.runner import LOG_COLUMNS, StopSignals, finish, islands_evolved, prepare
 from leverage.run.slices import window_slices, write_slice_problems
 from leverage.search import cluster
 from leverage.search.fronts import search_class
@@ -67,14 +67,11 @@ def solve(task: Task) -> dict:
             import numba
             numba.set_num_threads(max(1, min(task.threads, numba.config.NUMBA_NUM_THREADS)))
         problem, settings = task.problem, task.settings
-        compiled = problem.compile()
-        udp = LeveragingUDP.from_compiled(compiled, problem.name)
         evolver = SerialIslands()
-        search = make_search(compiled, udp, settings, evolver)
+        compiled, udp, search = prepare(problem, settings, evolver)
         while not search.done:
             search.step()
-        where = ("serial" if getattr(search, "evolver", None) is evolver
-                 else "this process (batch evaluation)")
+        where = islands_evolved(search, evolver)
         with tempfile.TemporaryDirectory() as tmp:
             front_path = Path(tmp) / "front.csv"
             record = finish(problem, settings, compiled, udp, search, "complete", front_path,

@@ -33,10 +33,10 @@ def _probe():
     """Runs on an engine: the package version and numba cache folder it sees."""
     import numba
 
-    import leverage
     import leverage.search.udp  # noqa: F401  (what unpickling a problem imports)
+    from leverage.about import __version__
 
-    return leverage.__version__, str(numba.config.CACHE_DIR)
+    return __version__, str(numba.config.CACHE_DIR)
 
 
 def connect(spec: str, timeout_s: float = CONNECT_TIMEOUT_S, engine_wait_s: float = ENGINE_WAIT_S):

@@ -29,7 +29,7 @@ import pygmo as pg
 from leverage.core import layout as L
 from leverage.fileio import write_atomic
 from leverage.problem.load import check_algorithm
-from leverage.record.design import DERIVED, clean
+from leverage.record.design import DERIVED, clean, feasible
 from leverage.search.single import IslandRecord, SearchState, island_seed, min_violation
 
 FRONT_ALGORITHM_NOTES = {
@@ -87,12 +87,6 @@ def make_front_algorithm(name: str, generations: int, seed: int, n_obj: int,
         raise ValueError(f"unknown algorithm {name!r}; known: {', '.join(FRONT_ALGORITHM_NOTES)}")
     uda.set_bfe(pg.bfe())
     return pg.algorithm(uda)
-
-
-def feasible(q: np.ndarray) -> bool:
-    """Every leg solved and every limit margin >= 0 (the same test as best.json)."""
-    margins = q[L.Q_MARGIN_ALT_KM:L.Q_MARGIN_ALT_KM + L.N_MARGINS]
-    return bool(q[L.Q_OK] == 1.0 and np.all(margins >= 0.0))
 
 
 def non_dominated(f: np.ndarray) -> np.ndarray:

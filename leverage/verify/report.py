@@ -16,7 +16,7 @@
 import math
 from pathlib import Path
 
-from leverage import CAUTION
+from leverage.about import CAUTION
 from leverage.astro import bodies
 from leverage.astro.ephemerides import BuiltinEphemeris, SpkEphemeris
 from leverage.core.constants import DAY_S

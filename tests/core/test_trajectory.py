@@ -141,7 +141,7 @@ def test_identities_of_one_evaluation(u, revs):
     # Turn: 2 asin(1/e), e = 1 + r_p v^2 / mu (Curtis sec. 8.9), and the angle between
     # the incoming and outgoing v_inf is that turn.
     mu_b, radius = p[L.P_BODY_MU], p[L.P_BODY_RADIUS_KM]
-    rp = radius + x[L.X_FLYBY_ALT_KM]
+    rp = radius + x[L.X_FLYBY_ALTITUDE_KM]
     ecc = 1.0 + rp * q[L.Q_VINF_IN] ** 2 / mu_b
     assert q[L.Q_RP] == pytest.approx(rp, rel=1e-12)
     assert q[L.Q_TURN] == pytest.approx(2.0 * math.asin(1.0 / ecc), rel=1e-10)
@@ -223,7 +223,7 @@ def test_resonant_loop_has_zero_dsm(periods, revolutions, expected_revs):
     assert q[L.Q_OK] == 1.0
     assert q[L.Q_DSM] < 1e-6  # km/s: 1 mm/s
     assert q[L.Q_REVS] == expected_revs
-    assert q[L.Q_VINF_IN] == pytest.approx(x[L.X_VINF_KMS], abs=1e-6)
+    assert q[L.Q_VINF_IN] == pytest.approx(x[L.X_LAUNCH_VINF_KM_S], abs=1e-6)
     assert abs(q[L.Q_GAIN]) < 1e-6
     # the spacecraft orbit is the circle of the body's radius, tilted: heliocentric
     # speed at launch equals the body's circular speed.
@@ -235,7 +235,7 @@ def test_off_resonance_loop_needs_a_dsm():
     """The same launch with a loop 20 days too long cannot return without a burn."""
     x, p, q = _circular_body_case(1, (0, 0))
     x = x.copy()
-    x[L.X_LOOP_DAYS] += 20.0
+    x[L.X_LOOP_DURATION_DAYS] += 20.0
     q = details(x, p)
     assert q[L.Q_OK] == 1.0
     assert q[L.Q_DSM] > 0.05

@@ -105,7 +105,7 @@ def test_known_target_needs_no_extra_burn(tmp_path, demo_path, flyby):
     path, q_loop = known_target_file(tmp_path, demo_path, flyby)
     problem = load_problem(path)
     compiled = problem.compile()
-    assert compiled.names[-1] == "target_leg_duration" and len(compiled.names) == L.N_X_TARGET
+    assert compiled.names[-1] == "target_leg_days" and len(compiled.names) == L.N_X_TARGET
     udp = LeveragingUDP.from_compiled(compiled)
     x = np.append(LOOP_X[:6], LEG_DAYS)
     q = udp.details(x)

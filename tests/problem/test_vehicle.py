@@ -105,7 +105,7 @@ def test_c3_outside_the_table_is_infeasible(problems_dir):
     problem = _mass_problem(problems_dir)
     udp = LeveragingUDP.from_compiled(problem.compile())
     x = np.array([11685.0, 5.0, 0.0, 0.0, 694.0, 0.5, 5000.0, 0.0])
-    x[L.X_VINF_KMS] = math.sqrt(45.0)  # table ends at C3 = 40
+    x[L.X_LAUNCH_VINF_KM_S] = math.sqrt(45.0)  # table ends at C3 = 40
     q = udp.details(x)
     assert q[L.Q_MARGIN_LV_C3] == pytest.approx(-5.0)
     assert q[L.Q_PENALTY] > 0.0

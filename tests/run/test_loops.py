@@ -59,7 +59,7 @@ def test_each_loop_length_finds_its_own_optimum(demo_path, tmp_path, full_size, 
     record = json.loads((out / "best.json").read_text())
     assert outcome.status == "complete" and outcome.feasible and record["feasible"]
     x = np.array(record["decision_vector"]["values"])
-    assert window[0] <= x[L.X_LOOP_DAYS] <= window[1]
+    assert window[0] <= x[L.X_LOOP_DURATION_DAYS] <= window[1]
     assert record["derived"]["lambert_revolutions"]["value"] == revs
     # No other revolution count does better at the optimum found.
     f_found = record["objective"][0]

@@ -17,8 +17,9 @@ import pytest
 from leverage.core import layout as L
 from leverage.errors import ProblemError
 from leverage.problem.load import load_problem
+from leverage.record.design import feasible
 from leverage.run.runner import Progress, run, settings_from
-from leverage.search.fronts import feasible, hypervolume, knee, non_dominated, reference_point
+from leverage.search.fronts import hypervolume, knee, non_dominated, reference_point
 from leverage.search.udp import LeveragingUDP
 
 

@@ -1,0 +1,1 @@
+"""Astronomy above the kernels: bodies, times, ephemerides."""

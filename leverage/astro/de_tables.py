@@ -38,9 +38,9 @@ polynomial of degree < n (n the largest coefficient count) and the sum, rotated,
 is re-expressed exactly (to rounding) as one Chebyshev series by interpolation at
 the n Chebyshev-Gauss nodes (discrete orthogonality; Press et al., Numerical Recipes
 sec. 5.8). Measured with ``benchmarks/de_design.py`` (DE421 Earth, 2-core EPYC): 123
-ns per state from the one combined series against 357 ns for EMB, Moon and Sun
-summed per evaluation, the two agreeing to 3e-5 km. Granules that do not nest are
-refused.
+ns per state from the one combined series against 357-374 ns for EMB, Moon and Sun
+summed per evaluation (two runs), the two agreeing to 5e-7 km. Granules that do not
+nest are refused.
 
 Memory (measured, ``table_bytes``): ten years of the Earth from DE421 or DE423 is
 914 granules x 3 components x 13 coefficients = 0.285 MB; of Venus, Mars, Jupiter or
@@ -94,11 +94,17 @@ class _Series:
     def end_s(self):
         return self.start_s + self.c.shape[0] * self.granule_s
 
-    def position(self, t_s):
-        """(len(t), 3) km at interior epochs t_s (s TDB past J2000); Clenshaw's recurrence."""
-        u = (np.asarray(t_s, dtype=float) - self.start_s) / self.granule_s
-        k = np.minimum(np.floor(u).astype(int), self.c.shape[0] - 1)
-        s = (2.0 * (u - k) - 1.0)[:, None]
+    def position(self, t_whole_s, dt_s):
+        """(len(t), 3) km at interior epochs t_whole_s + dt_s (s TDB past J2000).
+
+        t_whole_s on a granule boundary of a nested grid (whole seconds) and dt_s the
+        small rest: the offset into this series' granule is then exact and s keeps
+        full precision (one sum t - start of ~4e9 s would lose ~5e-7 s, 2e-5 km at
+        30 km/s). Clenshaw's recurrence.
+        """
+        whole = np.asarray(t_whole_s, dtype=float) - self.start_s  # exact: whole seconds
+        k = np.minimum(np.floor(whole / self.granule_s).astype(int), self.c.shape[0] - 1)
+        s = (2.0 * ((whole - k * self.granule_s) + dt_s) / self.granule_s - 1.0)[:, None]
         coef = self.c[k]  # (len(t), 3, n)
         b1 = np.zeros(coef.shape[:2])
         b2 = np.zeros_like(b1)
@@ -228,8 +234,9 @@ def _combine(terms, t_start_s, t_end_s, source: str):
     n = max(s.c.shape[2] for _, s in terms)
     theta = np.pi * (np.arange(n) + 0.5) / n
     nodes = np.cos(theta)  # Chebyshev-Gauss nodes on [-1, 1]
-    t = (start + (np.arange(n_gran)[:, None] + 0.5 * (nodes[None, :] + 1.0)) * g).ravel()
-    pos = sum(w * s.position(t) for w, s in terms) @ ICRF_TO_ECLIPTIC.T  # (n_gran*n, 3)
+    t_whole = np.repeat(start + np.arange(n_gran) * g, n)
+    dt = np.tile(0.5 * (nodes + 1.0) * g, n_gran)
+    pos = sum(w * s.position(t_whole, dt) for w, s in terms) @ ICRF_TO_ECLIPTIC.T
     values = pos.reshape(n_gran, n, 3)
     # c_m = (2/n) sum_j f(x_j) cos(m theta_j); c_0 halved. Exact for degree < n.
     cos_mt = np.cos(np.outer(np.arange(n), theta))  # (m, j)

@@ -125,12 +125,13 @@ def chebyshev_state(p, slot, t):
 
     Why this form and not a dense table of states with cubic Hermite interpolation
     (measured with ``benchmarks/de_design.py``, Earth from DE421 over 2029-2037, 2-core
-    EPYC): the copied coefficients are the ephemeris itself (3e-5 km, 0.006 mm/s from
-    jplephem's own evaluation) at 0.23 MB; a Hermite table of the same size (a state
-    every 0.5 day) is off by up to 6 m and 0.44 mm/s, and needs 0.25 day (0.56 MB)
-    to get under 0.1 mm/s. Hermite is cheaper per state (49 ns against 123 ns), but
-    both are below the mean-element kernel (233 ns) and a few tenths of a
-    microsecond per evaluation do not show in a fitness of several microseconds.
+    EPYC): the copied coefficients are the ephemeris itself (1.2e-5 km, 1.8e-4 mm/s
+    from jplephem's own evaluation, tests/test_de_tables.py) at 0.23 MB; a Hermite
+    table of the same size (a state every 0.5 day) is off by up to 6 m and 0.44
+    mm/s, and needs 0.25 day (0.56 MB) to get under 0.1 mm/s. Hermite is cheaper per
+    state (50-80 ns against 123 ns, two runs), but both are below the mean-element
+    kernel (235 ns) and a few tenths of a microsecond per evaluation do not show in
+    a fitness of several microseconds.
     """
     r = np.empty(3)
     v = np.empty(3)

@@ -231,6 +231,10 @@ def _combine(terms, t_start_s, t_end_s, source: str):
     k1 = int(np.ceil((t_end_s - fine.start_s) / g))
     n_gran = k1 - k0
     start = fine.start_s + k0 * g
+    if start < cover_start or start + n_gran * g > cover_end:  # ends off the granule grid
+        raise ProblemError(source, "", NO_VALUE,
+                           f"{_span_text(t_start_s, t_end_s)} rounded out to whole granules "
+                           f"leaves the ephemeris span {_span_text(cover_start, cover_end)}")
     n = max(s.c.shape[2] for _, s in terms)
     theta = np.pi * (np.arange(n) + 0.5) / n
     nodes = np.cos(theta)  # Chebyshev-Gauss nodes on [-1, 1]

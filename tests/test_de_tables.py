@@ -278,6 +278,11 @@ def test_planet_target_switched_small_body_kept(problems_dir):
     t = 0.5 * (start + end)
     r_ref, _ = jplephem_heliocentric("mars", np.array([t]))
     np.testing.assert_allclose(E.body_state_in(p1, L.P_TARGET_EPH, t)[0], r_ref[0], atol=1e-3)
+    # An arrival after the target's table ends: a failed evaluation.
+    x = 0.5 * (compiled.lower + compiled.upper)
+    x[L.X_TARGET_LEG_DAYS] = (end - start) / DAY_S + 10.0
+    assert trajectory.fitness(x, p1)[0] == trajectory.FAIL_OBJECTIVE
+    assert trajectory.details(x, p1)[L.Q_OK] == 0.0
 
 
 # --------------------------------------------------------------- SPK kernel files

@@ -11,12 +11,13 @@ Sources (never downloaded):
 
 * ``"de421"``: the ``de421`` package (JPL DE421, Folkner, Williams and Boggs 2008,
   "The Planetary and Lunar Ephemeris DE 421", JPL IOM 343R-08-003 / IPN Progress
-  Report 42-178), read with ``jplephem.Ephemeris`` (the packaged, "DEPRECATED"
-  jplephem format: sets 'earthmoon' (Earth-Moon barycentre, solar-system
-  barycentric), 'moon' (geocentric), 'sun', 'mercury' ... 'neptune' (system
-  barycentres), km, TDB Julian dates, ICRF axes; EMRAT among its constants);
-* ``"de423"``: the ``de423`` package (JPL DE423, Folkner 2010, JPL IOM 343R-10-001),
-  same format;
+  Report 42-178; citations quoted from memory), read with ``jplephem.Ephemeris``
+  (the packaged, "DEPRECATED" jplephem format: sets 'earthmoon' (Earth-Moon
+  barycentre, solar-system barycentric), 'moon' (geocentric), 'sun', 'mercury' ...
+  'neptune' (system barycentres), km, TDB Julian dates, ICRF axes; EMRAT among its
+  constants);
+* ``"de423"``: the ``de423`` package (JPL DE423, Folkner 2010, JPL IOM 343R-10-001,
+  quoted from memory), same format;
 * a path to an SPK kernel (``.bsp``, segment types 2 and 3) read with
   ``jplephem.spk.SPK``: chains 0->3->399 for the Earth, 0->N(->N99 when the file has
   the planet's centre) for the others, 0->10 for the Sun.

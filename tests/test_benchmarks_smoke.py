@@ -30,6 +30,12 @@ def test_eval_cost_smoke():
 
 
 @pytest.mark.slow
+def test_de_design_smoke():
+    out = smoke("de_design")
+    assert "one table, combined at build time" in out and "cubic Hermite" in out
+
+
+@pytest.mark.slow
 def test_best_known_smoke_does_not_write(tmp_path):
     known = ROOT / "benchmarks" / "best_known.json"
     before = known.read_bytes() if known.exists() else None

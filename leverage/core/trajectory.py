@@ -20,7 +20,7 @@ import numpy as np
 from numba import njit, prange
 
 from . import layout as L
-from .ephemeris import DAY_S, EPHEMERIS_SIZE, body_state
+from .ephemeris import DAY_S, body_state_in
 from .flyby import (
     bplane_angle_of,
     max_turn,
@@ -98,11 +98,10 @@ def objectives(q, p, f):
 @njit(cache=True)
 def _launch(x, p, q):
     """Launch state and the legs up to the DSM point; fills q, returns states."""
-    eph = p[L.P_BODY_EPH:L.P_BODY_EPH + EPHEMERIS_SIZE]
     t0 = x[L.X_LAUNCH_EPOCH_DAYS] * DAY_S
     t_loop = x[L.X_LOOP_DURATION_DAYS] * DAY_S
     t1 = t0 + x[L.X_DSM_FRACTION] * t_loop
-    r0, vb0 = body_state(eph, t0)
+    r0, vb0 = body_state_in(p, L.P_BODY_EPH, t0)  # NaN off a table: propagate fails
     along, out, normal = velocity_frame(r0, vb0)
     u = direction_from_angles(along, out, normal, x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG] * _DEG,
                               x[L.X_LAUNCH_OUT_OF_PLANE_ANGLE_DEG] * _DEG)
@@ -143,10 +142,11 @@ def _target_leg(x, p, q, r2):
 
     Fills the arrival quantities of q; returns (departure velocity km/s, ok).
     """
-    teph = p[L.P_TARGET_EPH:L.P_TARGET_EPH + EPHEMERIS_SIZE]
     t2 = q[L.Q_T_FLYBY]
     t3 = t2 + x[L.X_TARGET_LEG_DAYS] * DAY_S
-    r3, v3_body = body_state(teph, t3)
+    r3, v3_body = body_state_in(p, L.P_TARGET_EPH, t3)
+    if not np.isfinite(r3[0]):  # outside the target's ephemeris table
+        return v3_body, False
     v_dep, v_arr, ok = lambert(p[L.P_MU_SUN], r2, r3, t3 - t2, 0, True, True)
     if not ok:
         return v_dep, False
@@ -304,7 +304,8 @@ def evaluate(x, p, q, f):
         q[k] = 0.0
     r1, v1m, ok = _launch(x, p, q)
     # The body at the flyby is the same for every branch: one ephemeris call.
-    r2, vb2 = body_state(p[L.P_BODY_EPH:L.P_BODY_EPH + EPHEMERIS_SIZE], q[L.Q_T_FLYBY])
+    r2, vb2 = body_state_in(p, L.P_BODY_EPH, q[L.Q_T_FLYBY])
+    ok = ok and np.isfinite(r2[0])  # NaN: flyby outside the body's ephemeris table
     has_target = p[L.P_HAS_TARGET] == 1.0
     v_dep = vb2  # placeholder of the right type; used only with a target
     if ok and has_target:

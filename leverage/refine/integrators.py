@@ -41,7 +41,11 @@ IAS15_EPSILON = 1e-9  # REBOUND's default; IAS15 then keeps errors at round-off 
 
 
 class Ias15:
-    """REBOUND IAS15 with the bodies integrated from DE421 (see module docstring)."""
+    """REBOUND IAS15 with the bodies integrated from DE421 (see module docstring).
+
+    ``de``: anything with ``gm`` (m,) and ``states(t) -> (r, v)`` (m, 3, 1) like
+    ``forces.De421`` (tests use a single planet).
+    """
 
     name = "REBOUND 5.2.2 IAS15, bodies integrated from DE421 at each segment start"
 
@@ -57,10 +61,11 @@ class Ias15:
         sim.integrator.epsilon = IAS15_EPSILON
         sim.exit_max_distance = 0  # never stop on distance
         r, v = self.de.states(t0)
-        for k in range(len(BODY_NAMES)):
+        n = len(self.de.gm)
+        for k in range(n):
             sim.add(m=float(self.de.gm[k]), x=r[k, 0, 0], y=r[k, 1, 0], z=r[k, 2, 0],
                     vx=v[k, 0, 0], vy=v[k, 1, 0], vz=v[k, 2, 0])
-        sim.N_active = len(BODY_NAMES)
+        sim.N_active = n
         sim.testparticle_type = 0
         if with_craft is not None:
             r0, v0 = with_craft
@@ -76,7 +81,8 @@ class Ias15:
         """
         sim = self._simulation(t0, (np.asarray(r0, float), np.asarray(v0, float)))
         sim.dt = 60.0 if t1 >= t0 else -60.0
-        craft = sim.particles[len(BODY_NAMES)]
+        n = len(self.de.gm)
+        craft = sim.particles[n]
         if samples is None:
             sim.integrate(t1 - t0, exact_finish_time=1)
             return np.array(craft.xyz), np.array(craft.vxyz)
@@ -85,7 +91,7 @@ class Ias15:
             sim.integrate(t - t0, exact_finish_time=1)
             rs.append(craft.xyz)
             vs.append(craft.vxyz)
-            bs.append([sim.particles[k].xyz for k in range(len(BODY_NAMES))])
+            bs.append([sim.particles[k].xyz for k in range(n)])
         sim.integrate(t1 - t0, exact_finish_time=1)
         return (np.array(craft.xyz), np.array(craft.vxyz), np.array(rs), np.array(vs),
                 np.array(bs))
@@ -101,7 +107,7 @@ class Ias15:
         sim.integrate(t1 - t0, exact_finish_time=1)
         r, _ = self.de.states(t1)
         return {name: float(np.linalg.norm(np.array(sim.particles[k].xyz) - r[k, :, 0]))
-                for k, name in enumerate(BODY_NAMES)}
+                for k, name in enumerate(BODY_NAMES[:len(self.de.gm)])}
 
 
 class Dop853:

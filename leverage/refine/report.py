@@ -178,6 +178,7 @@ def refined_record(refiner, best, missed, wall_s, cross_check, record) -> dict:
                            "limit_margin": shooting.LIMIT_TOL},
         },
         "iterations": refiner.iterations,
+        "optimisation_stopped": refiner.stop_reason,
         "evaluations": refiner.evaluations,
         "wall_time": {"value": wall_s, "unit": "s"},
         "largest_constraint_error": {k: {"value": clean(val), "unit": u}
@@ -218,7 +219,8 @@ def render_summary(rec) -> str:
               f"left out     {meth['left_out']}",
               f"solver       {meth['solver']}",
               f"effort       {rec['iterations']} iterations, {rec['evaluations']} evaluations, "
-              f"{rec['wall_time']['value']:.0f} s", ""]
+              f"{rec['wall_time']['value']:.0f} s",
+              f"stopped      {rec['optimisation_stopped']}", ""]
     lines.append("largest constraint errors")
     for k, e in rec["largest_constraint_error"].items():
         lines.append(f"  {k.replace('_', ' '):28s} {e['value']:.3g} {e['unit']}")

@@ -127,6 +127,7 @@ class Refiner:
         self._segments = {}
         self.evaluations = 0
         self.iterations = 0
+        self.stop_reason = "not optimised: the joins or limits were not met first"
         self.t_start = time.monotonic()
         flyby = ev["flyby"]
         self.vinf_out_conic = float(np.linalg.norm(flyby["v_out"] - flyby["v_body"]))
@@ -440,6 +441,7 @@ class Refiner:
         scale = np.array([TR_SCALE[u] for u in self.units])
         best = self.evaluate(z)
         delta = 1.0
+        self.stop_reason = f"step limit ({max_outer} trust-region steps): optimum not proven"
         for _ in range(max_outer):
             bounds = list(zip(best.z - delta * scale, best.z + delta * scale))
             trial = self._slsqp(best.z, bounds, inner_iter)
@@ -449,10 +451,12 @@ class Refiner:
                 best = trial
                 delta = min(delta * 1.5, 4.0)
                 if gain < OBJECTIVE_TOL_KM_S:
+                    self.stop_reason = "a step saved less than 1 cm/s"
                     break
             else:
                 delta *= 0.3
                 if delta < 1e-3:
+                    self.stop_reason = "trust region shrank below 1e-3 of its start"
                     break
         return best.z
 

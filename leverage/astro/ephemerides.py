@@ -116,6 +116,48 @@ class SpkEphemeris:
         return r, v
 
 
+class PackagedEphemeris:
+    """A JPL DE ephemeris from its registry package (``de421``, ``de423``), evaluated by
+    jplephem's own ``Ephemeris`` reader: a path apart from the search's compiled tables
+    (``leverage.astro.de_tables``), so a bug there cannot hide from a check made here.
+
+    The Earth is the geocentre: EMB - Moon_geocentric * earth_share, jplephem's
+    ``earth_share`` = 1/(1 + EMRAT) (EMRAT the ephemeris's Earth/Moon mass ratio,
+    81.30056 for DE421, Folkner et al. 2008, quoted from memory); the other planets are
+    their system barycentres.
+    """
+
+    def __init__(self, package: str):
+        import importlib
+
+        from jplephem import Ephemeris
+
+        self.package = package
+        self.ephemeris = Ephemeris(importlib.import_module(package))
+        self.name = f"JPL {package.upper()} ({package} package, jplephem Ephemeris)"
+
+    def close(self):
+        pass
+
+    def barycentric(self, body: str, t_tdb_s):
+        t = _as_times(t_tdb_s)
+        jd = J2000_JD + t / DAY_S
+        eph = self.ephemeris
+        body = body.lower()
+        try:
+            if body == "earth":
+                r_emb, v_emb = eph.position_and_velocity("earthmoon", jd)
+                r_moon, v_moon = eph.position_and_velocity("moon", jd)
+                r, v = r_emb - r_moon * eph.earth_share, v_emb - v_moon * eph.earth_share
+            else:
+                r, v = eph.position_and_velocity(body, jd)
+        except Exception as exc:  # jplephem: DateError outside the span, KeyError for names
+            raise ProblemError(self.name, "", body, f"cannot evaluate ({exc})") from None
+        # jplephem's packaged reader gives km and km/day, rows x, y, z.
+        return (np.asarray(r).T.reshape(-1, 3),
+                np.asarray(v).T.reshape(-1, 3) / DAY_S)
+
+
 def heliocentric_ecliptic(source, body: str, t_tdb_s):
     """(r km, v km/s), (n, 3): ``body`` relative to the Sun, ecliptic J2000 axes."""
     rb, vb = source.barycentric(body, t_tdb_s)

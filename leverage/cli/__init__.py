@@ -17,6 +17,8 @@ EXIT_OK = 0
 EXIT_FAILED = 1          # a sweep whose runs failed
 EXIT_BAD_INPUT = 2
 EXIT_INFEASIBLE = 3
+EXIT_NOT_VERIFIED = 4    # holds in the search model, breaks a stated limit in the verification
+EXIT_NOT_CONVERGED = 5   # leverage refine: the n-body design misses a condition
 EXIT_INTERRUPTED = 130
 
 

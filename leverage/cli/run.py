@@ -1,4 +1,5 @@
 """leverage run PROBLEM: optimise and write a result folder."""
+import sys
 import time
 from pathlib import Path
 
@@ -7,7 +8,7 @@ from leverage.problem.load import load_problem
 from leverage.run.runner import Progress, evolver_for, resumed_settings, run, settings_from
 from leverage.search import checkpoint
 
-from . import EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_OK
+from . import EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_NOT_VERIFIED, EXIT_OK
 from .options import add_search_options, search_overrides
 from .parallel import add_parallel_options, workers_option
 
@@ -52,10 +53,18 @@ def resume_point(args, problem):
 
 
 def exit_code(outcome) -> int:
-    """0 feasible, 3 complete but no design met every limit, 130 interrupted."""
+    """0 holds in the search model and the verification; 3 complete but no design met
+    every limit; 4 the design holds in the search model but breaks a stated limit in the
+    verification (named on stderr); 130 interrupted."""
     if outcome.status != "complete":
         return EXIT_INTERRUPTED
-    return EXIT_OK if outcome.feasible else EXIT_INFEASIBLE
+    if not outcome.feasible:
+        return EXIT_INFEASIBLE
+    if outcome.verified is False:
+        print(f"leverage: {outcome.folder / 'best.json'}: the design breaks "
+              f"{outcome.broken_in_verification()} in the verification", file=sys.stderr)
+        return EXIT_NOT_VERIFIED
+    return EXIT_OK
 
 
 def main(args) -> int:

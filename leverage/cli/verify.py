@@ -1,20 +1,29 @@
-"""leverage verify RESULT_DIR: check the best design against an outside ephemeris and
-numerical integration; writes verification.txt and verification.json there."""
+"""leverage verify RESULT_DIR: re-fly the best design apart from the search's kernels,
+re-check every stated limit, integrate its arcs; writes verification.txt and
+verification.json there and records the verdict in best.json and summary.txt."""
+import sys
 from pathlib import Path
 
 from leverage.fileio import load_record
 from leverage.record.arcs import check_record
-from leverage.verify.report import render, verify_record, write
+from leverage.run.runner import write_record
+from leverage.verify.report import attach, render, verify_record, write
+
+from . import EXIT_NOT_VERIFIED, EXIT_OK
 
 
 def add_parser(sub):
-    p = sub.add_parser("verify", help="check a result's design with outside ephemerides and "
-                                      "numerical integration",
-                       description="Re-evaluate the best design of RESULT_DIR with astropy's "
-                                   "built-in planetary ephemeris (and a JPL SPK kernel file if "
-                                   "given), integrate its arcs numerically, fly it with the Sun "
+    p = sub.add_parser("verify", help="re-fly a result's design independently and re-check "
+                                      "its limits",
+                       description="Re-fly the best design of RESULT_DIR on a code path apart "
+                                   "from the search's kernels (planets read by jplephem from "
+                                   "the search's JPL ephemeris, or DE421 for a mean-element "
+                                   "search, and from a JPL SPK kernel file if given; poliastro "
+                                   "propagation, Lambert and flyby), re-check every stated "
+                                   "limit, integrate its arcs numerically, fly it with the Sun "
                                    "and planets as point masses, and write verification.txt and "
-                                   "verification.json into RESULT_DIR.")
+                                   "verification.json into RESULT_DIR. Exit 4 when a stated "
+                                   "limit breaks there.")
     p.add_argument("results", help="result folder (with best.json)")
     p.add_argument("--spk", help="JPL SPK kernel file on disk (.bsp); nothing is downloaded")
     return p
@@ -25,6 +34,12 @@ def main(args) -> int:
     check_record(record, str(Path(args.results) / "best.json"))
     report = verify_record(record, spk_path=args.spk)
     txt, _ = write(args.results, report)
+    write_record(Path(args.results), attach(record, report))
     print(render(report))
-    print(f"written to {txt} and verification.json")
-    return 0
+    print(f"written to {txt} and verification.json; verdict recorded in best.json")
+    if not report["verdict"]["holds"]:
+        broken = ", ".join(b["limit"] for b in report["verdict"]["broken"])
+        print(f"leverage: {Path(args.results) / 'best.json'}: the design breaks {broken} in "
+              "the verification", file=sys.stderr)
+        return EXIT_NOT_VERIFIED
+    return EXIT_OK

@@ -56,6 +56,11 @@ class CompiledProblem:
     names: list
     units: list
     n_obj: int
+    # Each limit as stated in the file, before its design margin tightened it in params:
+    # {margin name: {"limit": value or [low, high] or None, "unit", "required_margin"}}.
+    limits: dict = field(default_factory=dict)
+    ephemeris: str = ""  # the planet positions in params, for people
+    ephemeris_file: str | None = None  # the SPK file they came from, if any
 
 
 # ---------------------------------------------------------------- reading
@@ -216,8 +221,98 @@ def validate(source: str, table: dict, schema: dict | None = None) -> dict:
     return values
 
 
-# Standish's Table 1 elements are fitted for 1800 AD - 2050 AD.
-MEAN_ELEMENTS_SPAN_UTC = ("1800-01-01", "2050-12-31")
+# The spans each ephemeris source is used within (UTC dates, inclusive): Standish's Table 1
+# elements are fitted for 1800-2050; DE421 is used for 1900-2050 and DE423 for 1800-2200
+# (the spans their JPL releases state; the packaged files reach a little further).
+EPHEMERIS_SPANS_UTC = {"mean_elements": ("1800-01-01", "2050-12-31"),
+                       "de421": ("1900-01-01", "2050-12-31"),
+                       "de423": ("1800-01-01", "2200-01-01")}
+EPHEMERIS_NAMES = {"mean_elements": "Standish mean elements (JPL, Table 1)",
+                   "de421": "JPL DE421 (de421 package, read with jplephem)",
+                   "de423": "JPL DE423 (de423 package, read with jplephem)"}
+
+
+def _span_days(values: dict) -> tuple:
+    """(first, last) TDB days past J2000 any leg of the problem can reach."""
+    launch, loop, target = values["launch"], values["loop"], values.get("target")
+    first = times.tdb_days(launch["window_open_utc"])
+    last = times.tdb_days(launch["window_close_utc"]) + loop["duration_days"][1]
+    if target is not None:
+        last += target["leg_duration_days"][1]
+    return first, last
+
+
+def _check_margins(source: str, values: dict) -> None:
+    """A design margin needs the limit it keeps away from."""
+    m, goal, target = values["margins"], values["goal"], values.get("target")
+    needs = {
+        "dsm_km_s": ("[goal] dsm_budget_km_s", goal["dsm_budget_km_s"] is not None),
+        "outgoing_vinf_km_s": ("[goal] min_outgoing_vinf_km_s",
+                               goal["min_outgoing_vinf_km_s"] > 0.0),
+        "outgoing_inclination_deg": ("[goal] min_outgoing_inclination_deg",
+                                     goal["min_outgoing_inclination_deg"] > 0.0),
+        "outgoing_aphelion_au": ("[goal] min_outgoing_aphelion_au",
+                                 goal["min_outgoing_aphelion_au"] > 0.0),
+        "arrival_vinf_km_s": ("[target] max_arrival_vinf_km_s",
+                              target is not None and target["max_arrival_vinf_km_s"] is not None),
+    }
+    for name, (limit, is_set) in needs.items():
+        if m[name] > 0.0 and not is_set:
+            raise ProblemError(source, f"[margins] {name}", m[name],
+                               f"no {limit} to keep a margin from")
+    launch = values["launch"]
+    if launch["min_dla_deg"] + m["dla_deg"] > launch["max_dla_deg"] - m["dla_deg"]:
+        raise ProblemError(source, "[margins] dla_deg", m["dla_deg"],
+                           f"leaves no DLA band inside {launch['min_dla_deg']:g}.."
+                           f"{launch['max_dla_deg']:g} deg")
+    if m["c3_km2_s2"] >= launch["max_c3_km2_s2"]:
+        raise ProblemError(source, "[margins] c3_km2_s2", m["c3_km2_s2"],
+                           f"is not below [launch] max_c3_km2_s2 ({launch['max_c3_km2_s2']:g})")
+
+
+def _resolve_ephemeris(source: str, values: dict) -> None:
+    """Fill ``values["ephemeris"]["used"]`` (a key of EPHEMERIS_SPANS_UTC, or "spk") and
+    refuse dates outside the chosen ephemeris in one line naming the key and the span."""
+    eph = values["ephemeris"]
+    asked = eph["source"]
+    first, last = _span_days(values)
+    dates = f"{times.utc_date(first * times.DAY_S)} .. {times.utc_date(last * times.DAY_S)}"
+
+    def fits(name):
+        lo, hi = (times.tdb_days(d) for d in EPHEMERIS_SPANS_UTC[name])
+        return lo <= first and last <= hi + 1.0
+
+    if asked == "spk":
+        if not eph["spk_file"]:
+            raise ProblemError(source, "[ephemeris] spk_file", NO_VALUE,
+                               "missing: source = \"spk\" needs the path of a .bsp file")
+        path = Path(eph["spk_file"]).expanduser()
+        if not path.is_absolute() and source not in ("<text>", ""):
+            path = Path(source).resolve().parent / path
+        if not path.is_file():
+            raise ProblemError(source, "[ephemeris] spk_file", eph["spk_file"],
+                               f"no such file ({path})")
+        eph["spk_file"] = str(path)
+        eph["used"] = "spk"
+        return
+    if eph["spk_file"]:
+        raise ProblemError(source, "[ephemeris] spk_file", eph["spk_file"],
+                           f"only used with source = \"spk\" (source is {asked!r})")
+    if asked == "auto":
+        choice = next((n for n in ("de421", "de423") if fits(n)), None)
+        if choice is None:
+            raise ProblemError(source, "[ephemeris] source", asked,
+                               f"the problem's dates ({dates}, launch window plus the longest "
+                               "loop and leg) leave every bundled DE span (DE421 1900-2050, "
+                               "DE423 1800-2200); name an SPK file or ask for mean_elements")
+        eph["used"] = choice
+        return
+    if not fits(asked):
+        span = " .. ".join(EPHEMERIS_SPANS_UTC[asked])
+        raise ProblemError(source, "[ephemeris] source", asked,
+                           f"the problem's dates ({dates}, launch window plus the longest "
+                           f"loop and leg) leave its span ({span})")
+    eph["used"] = asked
 
 
 def _check_relations(source: str, values: dict, body: bodies.Body) -> None:
@@ -227,16 +322,6 @@ def _check_relations(source: str, values: dict, body: bodies.Body) -> None:
     if t_close < t_open:
         raise ProblemError(source, "[launch] window_close_utc", launch["window_close_utc"],
                            f"is before window_open_utc ({launch['window_open_utc']})")
-    first, last = (times.tdb_seconds(d) for d in MEAN_ELEMENTS_SPAN_UTC)
-    if t_open < first:
-        raise ProblemError(source, "[launch] window_open_utc", launch["window_open_utc"],
-                           f"is before {MEAN_ELEMENTS_SPAN_UTC[0]}, outside the span of the "
-                           "planets' mean elements (Standish Table 1, 1800-2050)")
-    if t_close + loop["duration_days"][1] * times.DAY_S > last:
-        raise ProblemError(source, "[launch] window_close_utc", launch["window_close_utc"],
-                           f"plus the longest loop ({loop['duration_days'][1]:g} days) ends after "
-                           f"{MEAN_ELEMENTS_SPAN_UTC[1]}, outside the span of the planets' mean "
-                           "elements (Standish Table 1, 1800-2050)")
     if launch["min_c3_km2_s2"] > launch["max_c3_km2_s2"]:
         raise ProblemError(source, "[launch] min_c3_km2_s2", launch["min_c3_km2_s2"],
                            f"is above max_c3_km2_s2 ({launch['max_c3_km2_s2']:g})")
@@ -288,6 +373,8 @@ def _problem(source: str, text: str, table: dict, stem: str) -> Problem:
     vehicle = (vehicle_from_values(source, values["vehicle"])
                if values.get("vehicle") is not None else None)
     _check_trade_relations(source, values, target, vehicle)
+    _resolve_ephemeris(source, values)
+    _check_margins(source, values)
     name = values["study"]["name"] or stem
     return Problem(source=source, text=text, values=values, name=name, body=body,
                    target=target, vehicle=vehicle)
@@ -402,7 +489,92 @@ def compile_problem(problem: Problem) -> CompiledProblem:
     compiled = CompiledProblem(params=p, lower=lower, upper=upper, names=list(X_NAMES),
                                units=list(X_UNITS), n_obj=1)
     _compile_trade(problem, compiled)
+    compiled.limits = stated_limits(problem)
+    _tighten_by_margins(problem, compiled.params)
+    _use_ephemeris(problem, compiled)
     return compiled
+
+
+def stated_limits(problem: Problem) -> dict:
+    """Every limit the problem sets, in its file unit, with the design margin asked for
+    (named like the margins of ``leverage.record.design.MARGINS``)."""
+    v = problem.values
+    launch, flyby, goal, m = v["launch"], v["flyby"], v["goal"], v["margins"]
+    limits = {
+        "min_flyby_altitude": (flyby["min_altitude_km"], "km", m["flyby_altitude_km"]),
+        "max_turn": (None, "deg", 0.0),  # the largest turn at the minimum altitude
+        "max_c3": (launch["max_c3_km2_s2"], "km^2/s^2", m["c3_km2_s2"]),
+        "dla_band": ([launch["min_dla_deg"], launch["max_dla_deg"]], "deg", m["dla_deg"]),
+        "lambert_solved": (None, "", 0.0),
+    }
+    if goal["dsm_budget_km_s"] is not None:
+        limits["dsm_budget"] = (goal["dsm_budget_km_s"], "km/s", m["dsm_km_s"])
+    for name, key, unit, margin in (
+            ("min_outgoing_vinf", "min_outgoing_vinf_km_s", "km/s", "outgoing_vinf_km_s"),
+            ("min_outgoing_inclination", "min_outgoing_inclination_deg", "deg",
+             "outgoing_inclination_deg"),
+            ("min_outgoing_aphelion", "min_outgoing_aphelion_au", "au",
+             "outgoing_aphelion_au")):
+        if goal[key] > 0.0:
+            limits[name] = (goal[key], unit, m[margin])
+    t = v.get("target")
+    if t is not None:
+        if t["max_arrival_vinf_km_s"] is not None:
+            limits["max_arrival_vinf"] = (t["max_arrival_vinf_km_s"], "km/s",
+                                          m["arrival_vinf_km_s"])
+        if t["flyby"] != "powered":
+            limits["vinf_match"] = (t["vinf_match_tolerance_km_s"], "km/s", 0.0)
+        if t["arrival_open_utc"] is not None or t["arrival_close_utc"] is not None:
+            limits["arrival_window"] = ([t["arrival_open_utc"], t["arrival_close_utc"]],
+                                        "UTC", 0.0)
+    if problem.vehicle is not None:
+        c3 = v["vehicle"]["c3_km2_s2"]
+        limits["vehicle_c3_table"] = ([min(c3), max(c3)], "km^2/s^2", 0.0)
+    return {name: {"limit": limit, "unit": unit, "required_margin": float(margin)}
+            for name, (limit, unit, margin) in limits.items()}
+
+
+def _tighten_by_margins(problem: Problem, p: np.ndarray) -> None:
+    """Move each limit in ``p`` inward by its design margin, so the penalties and the
+    kernel's margins measure against the tightened limit."""
+    m = problem.values["margins"]
+    p[L.P_C3_MAX] -= m["c3_km2_s2"]
+    p[L.P_MIN_ALT_KM] += m["flyby_altitude_km"]
+    p[L.P_DLA_MIN] += math.radians(m["dla_deg"])
+    p[L.P_DLA_MAX] -= math.radians(m["dla_deg"])
+    p[L.P_DSM_BUDGET_KMS] -= m["dsm_km_s"]  # inf stays inf
+    p[L.P_ARRIVAL_VINF_MAX_KMS] -= m["arrival_vinf_km_s"]
+    if p[L.P_REQ_VINF_OUT_KMS] > 0.0:
+        p[L.P_REQ_VINF_OUT_KMS] += m["outgoing_vinf_km_s"]
+    if p[L.P_REQ_INC_RAD] > 0.0:
+        p[L.P_REQ_INC_RAD] += math.radians(m["outgoing_inclination_deg"])
+    if p[L.P_REQ_APHELION_KM] > 0.0:
+        p[L.P_REQ_APHELION_KM] += m["outgoing_aphelion_au"] * bodies.AU_KM
+
+
+def _use_ephemeris(problem: Problem, compiled: CompiledProblem) -> None:
+    """Put the chosen ephemeris's tables for the problem's dates into ``params``."""
+    eph = problem.values["ephemeris"]
+    used = eph["used"]
+    if used == "mean_elements":
+        compiled.ephemeris = EPHEMERIS_NAMES[used]
+        return
+    from leverage.astro.de_tables import problem_span_s, with_de_ephemeris
+
+    source = eph["spk_file"] if used == "spk" else used
+    start, end = problem_span_s(compiled)
+    target = problem.target.name.lower() if problem.target is not None else None
+    try:
+        compiled.params = with_de_ephemeris(
+            compiled.params, source, start, end, body=problem.body.name.lower(),
+            target=target if target in bodies.PLANETS else None)
+    except ProblemError as exc:
+        key = "[ephemeris] spk_file" if used == "spk" else "[ephemeris] source"
+        raise ProblemError(problem.source, key, eph["spk_file"] if used == "spk" else used,
+                           exc.reason) from None
+    compiled.ephemeris = (EPHEMERIS_NAMES.get(used) or
+                          f"JPL SPK file {eph['spk_file']} (read with jplephem)")
+    compiled.ephemeris_file = eph["spk_file"] if used == "spk" else None
 
 
 OBJECTIVE_CODES = {"total_dv": L.OBJ_TOTAL_DV, "gain": L.OBJ_GAIN,

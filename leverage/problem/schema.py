@@ -42,6 +42,8 @@ SECTIONS = {
     "goal": "What to optimise and which outgoing conditions are required.",
     "target": "Optional: a final leg from the return flyby to a target body.",
     "vehicle": "Optional: launch-vehicle performance and the spacecraft engine, for delivered mass.",
+    "ephemeris": "Where the search takes planet positions from.",
+    "margins": "How far inside each limit the design must lie (0: on the limit is enough).",
     "search": "The global search (pygmo archipelago) and the final local polish.",
 }
 # Sections a problem may leave out entirely; then their keys are not used at all.
@@ -50,6 +52,9 @@ OPTIONAL_SECTIONS = ("target", "vehicle")
 ALGORITHMS = ("sade", "de", "de1220", "pso", "cmaes")
 FRONT_ALGORITHMS = ("nsga2", "moead", "nspso")   # multi-objective, for goal kind "front"
 POLISHERS = ("bobyqa", "slsqp", "mbh", "none")
+# "auto": JPL DE421 when every date fits 1900-2050, else DE423 (1800-2200); mean elements
+# only when asked for (fast screening, dates outside every DE span).
+EPHEMERIS_SOURCES = ("auto", "de421", "de423", "spk", "mean_elements")
 GOALS = ("min_dsm", "max_gain", "weighted", "front", "max_delivered_mass")
 # Island i of a run with seed s starts from seed 1000 s + i (leverage.search.single.
 # island_seed); pygmo seeds are 32-bit unsigned, so every allowed pair must fit.
@@ -180,6 +185,35 @@ KEYS = [
     Key("vehicle", "specific_impulse_s", "number", REQUIRED,
         "Specific impulse of the spacecraft engine for every burn after launch (s).",
         minimum=1.0, example=320.0),
+    Key("ephemeris", "source", "choice", "auto",
+        "Planet positions in the search: auto (JPL DE421 if every date of the problem fits "
+        "1900-2050, else DE423, 1800-2200), de421, de423, spk (the JPL SPK file spk_file), "
+        "or mean_elements (Standish's mean elements, 1800-2050: fast screening, only when "
+        "asked for). The verification re-flies the design with the same ephemeris through "
+        "jplephem (DE421 when the search used mean elements).",
+        choices=EPHEMERIS_SOURCES),
+    Key("ephemeris", "spk_file", "text", None,
+        "Path of a JPL SPK kernel (.bsp) on disk, for source = \"spk\" (relative paths "
+        "are taken from the problem file's folder). Nothing is downloaded.",
+        example="ephemerides/de440s.bsp"),
+    Key("margins", "c3_km2_s2", "number", 0.0,
+        "Design margin below [launch] max_c3_km2_s2 (km^2/s^2).", minimum=0.0),
+    Key("margins", "dla_deg", "number", 0.0,
+        "Design margin inside the [launch] DLA band, each side (deg).", minimum=0.0,
+        maximum=90.0),
+    Key("margins", "flyby_altitude_km", "number", 0.0,
+        "Design margin above [flyby] min_altitude_km (km); the turn limit follows it.",
+        minimum=0.0),
+    Key("margins", "dsm_km_s", "number", 0.0,
+        "Design margin below [goal] dsm_budget_km_s (km/s).", minimum=0.0),
+    Key("margins", "outgoing_vinf_km_s", "number", 0.0,
+        "Design margin above [goal] min_outgoing_vinf_km_s (km/s).", minimum=0.0),
+    Key("margins", "outgoing_inclination_deg", "number", 0.0,
+        "Design margin above [goal] min_outgoing_inclination_deg (deg).", minimum=0.0),
+    Key("margins", "outgoing_aphelion_au", "number", 0.0,
+        "Design margin above [goal] min_outgoing_aphelion_au (au).", minimum=0.0),
+    Key("margins", "arrival_vinf_km_s", "number", 0.0,
+        "Design margin below [target] max_arrival_vinf_km_s (km/s).", minimum=0.0),
     Key("search", "algorithm", "choice", None,
         "Global algorithm on every island (default sade; nsga2 for a front goal). Single "
         "objective: sade, de, de1220, pso, cmaes; front: nsga2 (population a multiple of 4), "

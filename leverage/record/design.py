@@ -112,12 +112,18 @@ def design_record(compiled, udp, x) -> dict:
     derived = {name: {"value": clean(q[slot] * factor), "unit": unit, "meaning": meaning}
                for name, slot, unit, factor, meaning in DERIVED}
     margins = {}
+    limits = getattr(compiled, "limits", {})
     for name, slot, unit, factor, meaning in MARGINS:
         value = q[slot]
         if math.isinf(value) and value > 0:
             continue  # limit not set by this problem
-        margins[name] = {"margin": clean(value * factor), "unit": unit, "meaning": meaning,
-                         "holds": bool(value >= 0)}
+        stated = limits.get(name, {"limit": None, "required_margin": 0.0})
+        required = stated["required_margin"]
+        # The kernel measures against the limit tightened by the design margin; people
+        # read the margin from the stated limit, next to the margin asked for.
+        margins[name] = {"margin": clean(value * factor + required), "unit": unit,
+                         "meaning": meaning, "limit": stated["limit"],
+                         "required_margin": required, "holds": bool(value >= 0)}
     events = [
         {"event": "launch", "epoch_tdb_s": clean(q[L.Q_T_LAUNCH]),
          "utc": times.utc_iso(q[L.Q_T_LAUNCH]),
@@ -144,6 +150,9 @@ def design_record(compiled, udp, x) -> dict:
                             "upper": [float(v) for v in compiled.upper]},
         "objective": [clean(v) for v in f],
         "feasible": feasible(q),
+        "ephemeris": {"search": getattr(compiled, "ephemeris", ""),
+                      "spk_file": getattr(compiled, "ephemeris_file", None)},
+        "verification": {"holds": None, "status": "not run yet"},
         "derived": derived,
         "margins": margins,
         "events": events,

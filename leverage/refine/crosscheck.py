@@ -8,7 +8,7 @@ IAS15 bodies' drift from DE421 together. Units km and m/s.
 """
 import numpy as np
 
-from .integrators import Dop853
+from leverage.refine.integrators import Dop853
 
 
 def cross_check(refiner, best) -> dict:

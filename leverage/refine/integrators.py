@@ -36,7 +36,7 @@ import numpy as np
 from scipy.integrate import solve_ivp
 from scipy.interpolate import CubicHermiteSpline
 
-from .forces import BODY_NAMES, acceleration
+from leverage.refine.forces import BODY_NAMES, acceleration
 
 DOP853_RTOL = 1e-12
 DOP853_ATOL_KM = 1e-6

@@ -18,15 +18,15 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import CAUTION, __version__
-from .. import oem
-from .. import times
-from ..arcs import design_arcs
-from ..export import iso_epochs
-from ..precise_ephemeris import EQUATORIAL_TO_ECLIPTIC
-from ..result import clean
-from . import shooting
-from .forces import BODY_NAMES, FORCE_MODEL, LEFT_OUT
+from leverage.about import CAUTION, __version__
+from leverage.astro import times
+from leverage.astro.ephemerides import EQUATORIAL_TO_ECLIPTIC
+from leverage.record.arcs import design_arcs
+from leverage.record.design import clean
+from leverage.refine import shooting
+from leverage.refine.forces import BODY_NAMES, FORCE_MODEL, LEFT_OUT
+from leverage.reports import oem
+from leverage.reports.export import iso_epochs
 
 DAY_S = 86400.0
 OUTGOING_PLOT_DAYS = 365.0
@@ -278,8 +278,8 @@ def oem_text(rec, arcs) -> str:
 
 def plot_png(rec, record, arcs) -> bytes:
     """trajectory.png: both designs seen from ecliptic north, and the flyby close up."""
-    from matplotlib.figure import Figure
     from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
 
     au = 149_597_870.7
     fig = Figure(figsize=(12, 6), dpi=110)

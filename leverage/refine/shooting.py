@@ -43,13 +43,14 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.optimize import least_squares, minimize
 
-from .. import bodies
-from ..arcs import event_states
-from ..core.ephemeris import body_state
-from ..core.frames import launch_asymptote
-from ..core.kepler import elements_from_state, propagate as conic_propagate
-from ..nbody_check import departure_periapsis, soi_radius_km
-from ..precise_ephemeris import EQUATORIAL_TO_ECLIPTIC
+from leverage.astro import bodies
+from leverage.astro.ephemerides import EQUATORIAL_TO_ECLIPTIC
+from leverage.core.ephemeris import body_state
+from leverage.core.frames import launch_asymptote
+from leverage.core.kepler import elements_from_state
+from leverage.core.kepler import propagate as conic_propagate
+from leverage.record.arcs import event_states
+from leverage.verify.nbody_check import departure_periapsis, soi_radius_km
 
 DAY_S = 86400.0
 AU_KM = bodies.AU_KM

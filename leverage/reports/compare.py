@@ -40,13 +40,34 @@ def _event(record, name):
     return next((e for e in record["events"] if e["event"] == name), None)
 
 
+def _short_ephemeris(record) -> str:
+    """DE421, DE423, spk:<file>, mean-elements (one word, for a table cell)."""
+    eph = record.get("ephemeris", {})
+    name = eph.get("search", "")
+    if eph.get("spk_file"):
+        return "spk:" + Path(eph["spk_file"]).name
+    for short in ("DE421", "DE423"):
+        if short in name:
+            return short
+    return "mean-elements" if "mean elements" in name else "-"
+
+
+def _verified(record) -> str:
+    v = record.get("verification") or {}
+    if v.get("holds") is None:
+        return "not run"
+    return "yes" if v["holds"] else "NO"
+
+
 def _rows(records) -> list:
     rows = [("problem", [r["problem"]["name"] for r in records]),
             ("problem sha256", [r["problem"]["sha256"][:12] for r in records]),
             ("goal", [r["problem"]["goal"] for r in records]),
             ("flyby body", [r["problem"]["body"] for r in records]),
             ("status", [r.get("status", "") for r in records]),
-            ("feasible", ["yes" if r.get("feasible") else "NO" for r in records]),
+            ("ephemeris", [_short_ephemeris(r) for r in records]),
+            ("holds: search model", ["yes" if r.get("feasible") else "NO" for r in records]),
+            ("holds: verification", [_verified(r) for r in records]),
             ("objective", [_num(r["objective"][0], 6) for r in records]),
             ("launch (UTC)", [_event(r, "launch")["utc"][:10] for r in records]),
             ("flyby (UTC)", [_event(r, "flyby")["utc"][:10] for r in records])]

@@ -50,6 +50,60 @@ def timeline(record) -> list[str]:
     return lines
 
 
+def verification_state(record) -> str:
+    """'yes', 'NO: ...' or 'not run' for the record's verification verdict."""
+    v = record.get("verification") or {}
+    if v.get("holds") is None:
+        return v.get("status") or "not run yet"
+    if v["holds"]:
+        return "yes"
+    broken = ", ".join(b["limit"] for b in v.get("broken", []))
+    return f"NO ({broken})"
+
+
+def model_lines(record) -> list[str]:
+    """Whether the design holds in each model it was checked in, said separately."""
+    search = record.get("ephemeris", {}).get("search", "")
+    search_state = "yes" if record["feasible"] else "NO (see the limits below)"
+    v = record.get("verification") or {}
+    lines = [f"holds in the search model:  {search_state}  (patched conics, {search})"]
+    line = f"holds in the verification: {verification_state(record)}"
+    if v.get("model"):
+        line += f"  ({v['model']})"
+    return lines + [line]
+
+
+def _limit_text(m) -> str:
+    limit = m.get("limit")
+    if limit is None:
+        return "-"
+    if isinstance(limit, list):
+        return " .. ".join("open" if x is None else (x if isinstance(x, str) else f"{x:g}")
+                           for x in limit)
+    return f"{limit:g}"
+
+
+def limit_lines(record) -> list[str]:
+    """Each limit: stated value, margin asked for, margin in the search model and in the
+    verification (>= the margin asked: holds)."""
+    checked = {b["limit"]: b for b in (record.get("verification") or {}).get("margins", [])}
+    lines = ["limits (margin from the stated limit; the search must keep the margin asked)",
+             f"  {'limit':<26}{'stated':>16} {'asked':>8} {'search model':>14} "
+             f"{'verification':>14}  unit"]
+    for name, m in record["margins"].items():
+        state = "ok" if m["holds"] else "VIOLATED"
+        check = checked.get(name)
+        if check is None:
+            verified = "-"
+        else:
+            verified = _fmt(check["check"], 4) + ("" if check["holds"] else "!")
+        lines.append(f"  {name:<26}{_limit_text(m):>16} {m.get('required_margin', 0.0):>8g} "
+                     f"{_fmt(m['margin'], 4):>14} {verified:>14}  {m['unit']:<10} {state}")
+    if any(not c["holds"] for c in checked.values()):
+        lines.append("  (! : the stated limit is broken in the verification)")
+    return lines
+
+
 def render(record) -> str:
     """The summary text of a result record."""
     p = record["problem"]
@@ -83,10 +137,8 @@ def render(record) -> str:
             lines.append("          no member stands out as a knee (knee distance "
                          f"{_fmt(front['knee_distance'], 4)} of the front's scaled span: it "
                          "does not bulge toward the ideal point); choose from front.csv")
-    feasible = "yes" if record["feasible"] else "NO (see margins)"
     objective = ", ".join(_fmt(v, 6) for v in record["objective"])
-    lines += [f"objective {objective}    feasible: {feasible}", "",
-              "timeline"] + timeline(record)
+    lines += [f"objective {objective}"] + model_lines(record) + ["", "timeline"] + timeline(record)
     lines += [
         "",
         "launch    " + ", ".join([f"C3 {_d(record, 'c3')}", f"DLA {_d(record, 'dla', 2)}",
@@ -115,13 +167,6 @@ def render(record) -> str:
         lines.append("mass      " + f"injected {_d(record, 'injected_mass', 1)} at C3 "
                      f"{_d(record, 'c3')}, delivered {_d(record, 'delivered_mass', 1)} after "
                      f"{_d(record, 'total_dv', 4)}")
-    lines += [
-        "",
-        "limit margins (>= 0 holds)",
-    ]
-    for name, m in record["margins"].items():
-        unit = f" {m['unit']}" if m["unit"] else ""
-        state = "ok" if m["holds"] else "VIOLATED"
-        lines.append(f"  {name:<26}{_fmt(m['margin'], 4):>14}{unit:<12} {state}")
+    lines += [""] + limit_lines(record)
     lines += ["", f"CAUTION: {CAUTION}", ""]
     return "\n".join(lines)

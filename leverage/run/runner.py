@@ -32,6 +32,7 @@ from leverage.search.islands import ClusterIslands, local_evolver
 from leverage.search.single import IslandRecord, SearchSettings
 from leverage.search.udp import LeveragingUDP
 from leverage.search.workers import WorkerLost
+from leverage.verify import report as verify
 
 LOG_COLUMNS = [f.name for f in fields(IslandRecord)]
 
@@ -168,6 +169,14 @@ def make_search(compiled, udp, settings: SearchSettings, evolver=None):
     return cls(udp, settings)
 
 
+def write_record(out_dir: Path, record: dict) -> str:
+    """best.json and summary.txt of a record (atomically); returns the summary text."""
+    write_json(out_dir / "best.json", record)
+    text = summary.render(record)
+    write_atomic(out_dir / "summary.txt", text)
+    return text
+
+
 def prepare(problem, settings: SearchSettings, evolver):
     """(compiled problem, pygmo problem, search) for a run; ``where`` the islands evolve
     goes in the record as ``run.islands_evolved``."""
@@ -247,7 +256,19 @@ class RunOutcome:
 
     @property
     def feasible(self) -> bool:
+        """Every limit holds, with its margin, in the search model."""
         return bool(self.record and self.record["feasible"])
+
+    @property
+    def verified(self) -> bool | None:
+        """Every stated limit holds in the verification (None: not verified)."""
+        return (self.record or {}).get("verification", {}).get("holds")
+
+    def broken_in_verification(self) -> str:
+        """The limits the verification breaks, as one line."""
+        broken = (self.record or {}).get("verification", {}).get("broken", [])
+        return ", ".join(f"{b['limit']} (margin {b['check']:.6g} {b['unit']})".replace(" )", ")")
+                         if isinstance(b.get("check"), float) else b["limit"] for b in broken)
 
 
 def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | None = None,
@@ -322,11 +343,11 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
             record = finish(problem, settings, compiled, udp, search, status,
                             out_dir / "front.csv", run_info)
         stop.hold()
-        write_json(out_dir / "best.json", record)
-        text = summary.render(record)
-        write_atomic(out_dir / "summary.txt", text)
-    echo(text)
+        text = write_record(out_dir, record)
     if status == "complete" and after:  # pictures and verification; a failure is one line
-        afterrun.pictures_and_verification(out_dir, record, echo)
+        report = afterrun.pictures_and_verification(out_dir, record, echo)
+        if report is not None:  # the verdict goes into the record and its summary
+            text = write_record(out_dir, verify.attach(record, report))
+    echo(text)
     echo(f"results in {out_dir}")
     return RunOutcome(out_dir, status, record)

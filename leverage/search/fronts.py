@@ -280,7 +280,7 @@ class FrontSearch:
         knee_row, knee_distance = knee(st.archive_f) if len(st.archive_f) else (-1, math.nan)
         header = (["member", "knee"]
                   + [column("objective_" + OBJECTIVES[c][0], OBJECTIVES[c][1]) for c in codes]
-                  + [column(n, u) for n, u in zip(compiled.names, compiled.units)]
+                  + list(compiled.names)  # decision names carry their units
                   + [column(name, unit) for name, _, unit, _, _ in DERIVED])
         buf = io.StringIO()
         out = csv.writer(buf, lineterminator="\n")

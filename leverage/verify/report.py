@@ -1,14 +1,18 @@
-"""Verification of a finished design: outside ephemeris, integrated arcs, point masses.
+"""Verification of a finished design: independent re-fly, integrated arcs, point masses.
 
 ``verify_record(record, spk_path=None)`` builds a plain report dict from best.json:
 
-1. ``ephemeris``: the return flyby re-evaluated with astropy's built-in planetary
-   ephemeris, and with a JPL SPK kernel when one is given (``leverage.ephemeris_check``),
-   plus the limits re-checked with the changed numbers;
-2. ``two_body``: each conic arc integrated numerically, Sun only (``leverage.integrate``,
+1. ``ephemeris``: the design re-flown on a code path apart from the search's kernels
+   (``leverage.verify.refly``: jplephem's own reading of the search's ephemeris, or of
+   DE421 when the search used mean elements, plus the SPK kernel given; poliastro's
+   unit-aware propagation, Lambert and flyby), every stated limit re-checked. This is
+   the verdict: ``report["verdict"]`` says whether every limit holds there and which
+   do not;
+2. ``two_body``: each conic arc integrated numerically, Sun only (``verify.integrate``,
    scipy DOP853, rtol 1e-12), and the position/velocity mismatch at each event;
 3. ``point_masses``: the loop flown with the Sun and the planets as point masses
-   (``leverage.nbody_check``; the SPK kernel's positions when given, else astropy's).
+   (``verify.nbody_check``; reported, not part of the verdict: ``leverage refine``
+   converges a design in that model).
 
 ``render`` turns the report into text that says what was and was not checked;
 ``write`` puts verification.txt and verification.json in the result folder.
@@ -18,20 +22,21 @@ from pathlib import Path
 
 from leverage.about import CAUTION
 from leverage.astro import bodies
-from leverage.astro.ephemerides import BuiltinEphemeris, SpkEphemeris
+from leverage.astro.ephemerides import PackagedEphemeris, SpkEphemeris
 from leverage.core.constants import DAY_S
 from leverage.fileio import write_atomic, write_json
 from leverage.record.arcs import design_arcs, event_states
 from leverage.record.design import as_float, clean
-from leverage.verify.ephemeris_check import check_with_ephemeris
 from leverage.verify.integrate import METHOD, RTOL, two_body
 from leverage.verify.nbody_check import check_point_masses
+from leverage.verify.refly import refly
 
 COVERS = [
-    "the flyby body's position and velocity from an outside ephemeris instead of the "
-    "search's mean elements, at launch and at the return flyby, with the DSM-to-flyby "
-    "Lambert arc re-solved to the precise position and the flyby re-flown at the same "
-    "altitude and B-plane angle",
+    "the design re-flown apart from the search's compiled kernels: planet states read by "
+    "jplephem from the ephemeris files, the launch asymptote (C3, DLA, RLA) kept, the coast "
+    "to the DSM propagated and the DSM-to-flyby (and target) arcs re-solved by poliastro's "
+    "unit-aware propagation and Lambert solver, the flyby turned by poliastro's flyby "
+    "routine; every stated limit re-checked with those numbers (the verdict)",
     "the numerical accuracy of each conic arc: two-body integration (scipy solve_ivp "
     f"{METHOD}, rtol {RTOL:g}) against the Kepler propagation and Lambert solutions",
     "the pull of the Sun's true motion and of the eight planets as point masses on the "
@@ -76,63 +81,89 @@ def _two_body_checks(record) -> list:
     return rows
 
 
-def _change(item, key):
-    entry = item.get(key)
-    return entry["change"] if isinstance(entry, dict) else None
+def verification_sources(record, spk_path=None) -> list:
+    """The outside ephemerides a design is re-flown with: the search's own ephemeris read
+    by jplephem (DE421 when the search used mean elements, DE423 past 2050), and the SPK
+    file given."""
+    search = record.get("ephemeris", {}).get("search", "")
+    spk_used = record.get("ephemeris", {}).get("spk_file")
+    sources = []
+    if "DE423" in search:
+        sources.append(PackagedEphemeris("de423"))
+    elif spk_used:
+        sources.append(SpkEphemeris(spk_used))
+    else:
+        t_last = max(as_float(e["epoch_tdb_s"]) for e in record["events"])
+        sources.append(PackagedEphemeris("de421" if t_last < 1.6e9 else "de423"))
+    if spk_path:
+        sources.append(SpkEphemeris(spk_path))
+    return sources
 
 
-def limits_after(record, eph: dict) -> list:
-    """Design limits re-checked with the outside-ephemeris numbers (margins, >= 0 holds)."""
-    margins = record["margins"]
-    outgoing = eph.get("outgoing") if isinstance(eph.get("outgoing"), dict) else {}
-    shifts = {  # margin name -> change of the margin implied by the check
-        "max_c3": (-_change(eph, "launch_c3_km2_s2")) if "launch_c3_km2_s2" in eph else None,
-        "dsm_budget": (-_change(eph, "dsm_km_s")) if "dsm_km_s" in eph else None,
-        "min_outgoing_vinf": _change(eph, "flyby_vinf_in_km_s"),
-        "min_outgoing_inclination": _change(outgoing, "inclination_deg"),
-        "min_outgoing_aphelion": _change(outgoing, "aphelion_au"),
-    }
-    rows = []
-    for name, shift in shifts.items():
-        if name in margins and shift is not None:
-            design = as_float(margins[name]["margin"])
-            rows.append({"limit": name, "unit": margins[name]["unit"], "design": design,
-                         "check": design + shift, "holds": design + shift >= 0})
-    if "max_turn" in margins and "turn_deg_same_altitude" in eph:
-        check = eph["max_turn_deg"]["check"] - eph["turn_deg_same_altitude"]["check"]
-        rows.append({"limit": "max_turn", "unit": "deg",
-                     "design": as_float(margins["max_turn"]["margin"]), "check": check,
-                     "holds": check >= 0})
-    return rows
+def verdict(ephemeris_rows) -> dict:
+    """Whether every stated limit holds in every re-fly, and the ones that do not."""
+    broken = []
+    for row in ephemeris_rows:
+        for lim in row.get("limits", []):
+            if not lim["holds"]:
+                broken.append({"limit": lim["limit"], "check": lim["check"],
+                               "unit": lim["unit"], "source": row["source"]})
+        if row.get("problem"):
+            broken.append({"limit": "re-fly", "check": None, "unit": "",
+                           "source": row["source"], "problem": row["problem"]})
+    return {"holds": not broken, "broken": broken,
+            "model": "patched conics re-flown with " + ", ".join(r["source"]
+                                                                for r in ephemeris_rows)}
+
+
+def attach(record, report) -> dict:
+    """``record`` with the verification's verdict in ``record["verification"]``: holds,
+    the model, the broken limits and each limit's margin there (the worst over the
+    ephemerides re-flown). Returns the record."""
+    worst = {}
+    for row in report["ephemeris"]:
+        for lim in row.get("limits", []):
+            if lim["limit"] not in worst or lim["check"] < worst[lim["limit"]]["check"]:
+                worst[lim["limit"]] = {"limit": lim["limit"], "check": clean(lim["check"]),
+                                       "unit": lim["unit"], "holds": lim["holds"]}
+    v = report["verdict"]
+    record["verification"] = {
+        "holds": v["holds"], "status": "done", "model": v["model"],
+        "broken": [{k: (clean(x) if isinstance(x, float) else x) for k, x in b.items()}
+                   for b in v["broken"]],
+        "margins": list(worst.values())}
+    return record
 
 
 def verify_record(record, spk_path=None) -> dict:
     """The verification report of a design record (see module docstring)."""
-    sources = [BuiltinEphemeris()]
-    spk = SpkEphemeris(spk_path) if spk_path else None
-    if spk is not None:
-        sources.append(spk)
+    sources = verification_sources(record, spk_path)
     try:
         ephemeris = []
         for source in sources:
-            eph = check_with_ephemeris(record, source)
-            eph["limits"] = limits_after(record, eph)
-            ephemeris.append(eph)
+            try:
+                row = refly(record, source)
+            except (ValueError, RuntimeError) as exc:  # no Lambert solution, and the like
+                row = {"problem": f"cannot re-fly ({type(exc).__name__}: {exc})"}
+            row["source"] = source.name
+            ephemeris.append(row)
         report = {
             "caution": CAUTION,
             "problem": record["problem"]["name"],
+            "body": record["problem"]["body"],
             "status": record.get("status", ""),
             "frame": "heliocentric ecliptic J2000 for every comparison",
             "ephemeris": ephemeris,
+            "verdict": verdict(ephemeris),
             "two_body": {"method": f"scipy.integrate.solve_ivp {METHOD}", "rtol": RTOL,
                          "arcs": _two_body_checks(record)},
-            "point_masses": check_point_masses(record, sources[-1]),
+            "point_masses": check_point_masses(record, sources[0]),
             "covers": COVERS,
             "does_not_cover": DOES_NOT_COVER,
         }
     finally:
-        if spk is not None:
-            spk.close()
+        for source in sources:
+            source.close()
     return report
 
 
@@ -152,57 +183,39 @@ def _pair_line(label, item, unit, scale=1.0, digits=3, change_unit=None, change_
             f"{_num(item['check'] * scale, digits):>14} {unit:<9}(change {change})")
 
 
+_QUANTITY_LABELS = [("c3", "launch C3", 3), ("dla", "launch DLA", 3), ("dsm", "DSM", 5),
+                    ("flyby_vinf_in", "flyby v-infinity in", 5),
+                    ("flyby_vinf_out", "flyby v-infinity out", 5),
+                    ("flyby_altitude", "flyby altitude", 1), ("turn_angle", "turn", 4),
+                    ("max_turn_angle", "largest turn at minimum altitude", 4),
+                    ("flyby_burn", "flyby periapsis burn", 5),
+                    ("arrival_vinf", "arrival v-infinity", 5), ("total_dv", "total dv", 5),
+                    ("outgoing_sma_au", "outgoing semi-major axis", 6),
+                    ("outgoing_eccentricity", "outgoing eccentricity", 6),
+                    ("outgoing_inclination_deg", "outgoing inclination", 5),
+                    ("outgoing_aphelion_au", "outgoing aphelion", 6)]
+
+
 def _ephemeris_lines(eph) -> list:
-    lines = [f"Outside ephemeris: {eph['source']}",
-             f"  {eph['body']} position differs from the search's by "
-             f"{_num(eph['body_position_offset_at_launch_km'], 0)} km at launch and "
-             f"{_num(eph['body_position_offset_at_flyby_km'], 0)} km at the flyby; velocity by "
-             f"{_num(eph['body_velocity_offset_at_launch_m_s'], 1)} and "
-             f"{_num(eph['body_velocity_offset_at_flyby_m_s'], 1)} m/s"]
-    if eph.get("note"):
-        lines.append(f"  ({eph['note']})")
-    lines += ["  launch state kept; DSM point kept; DSM-to-flyby Lambert arc re-solved to the "
-              "precise position", f"  {'':<34}{'design':>14}    {'check':>14}"]
-    lines.append(_pair_line("launch v-infinity", eph["launch_vinf_km_s"], "km/s", digits=4,
-                            change_unit="m/s", change_scale=1e3))
-    lines.append(_pair_line("launch C3", eph["launch_c3_km2_s2"], "km^2/s^2", digits=3,
-                            change_digits=3))
-    if not eph.get("lambert_solved", False):
-        lines.append(f"  {eph.get('problem', 'Lambert arc not solved')}")
-        return lines
-    lines.append(_pair_line("DSM", eph["dsm_km_s"], "km/s", digits=4, change_unit="m/s",
-                            change_scale=1e3))
-    lines.append(f"  {'DSM vector change':<34}{_num(eph['dsm_vector_change_m_s'], 1):>14} m/s")
-    lines.append(_pair_line("flyby v-infinity in", eph["flyby_vinf_in_km_s"], "km/s", digits=4,
-                            change_unit="m/s", change_scale=1e3))
-    lines.append(_pair_line("v-infinity gain", eph["vinf_gain_km_s"], "km/s", digits=4,
-                            change_unit="m/s", change_scale=1e3))
-    if not isinstance(eph.get("outgoing"), dict):
-        lines.append(f"  outgoing: {eph.get('outgoing')}")
-    else:
-        lines.append(_pair_line("turn at the designed altitude", eph["turn_deg_same_altitude"],
-                                "deg", digits=3, change_digits=3))
-        lines.append(_pair_line("largest turn at minimum altitude", eph["max_turn_deg"], "deg",
-                                digits=3, change_digits=3))
-        lines.append(_pair_line("altitude for the designed turn",
-                                eph["altitude_for_design_turn_km"], "km", digits=1))
-        lines.append(f"  {'outgoing heliocentric velocity':<34}"
-                     f"{_num(eph['outgoing_velocity_change_m_s'], 1):>14} m/s change")
-        out = eph["outgoing"]
-        lines.append(_pair_line("outgoing semi-major axis", out["sma_au"], "au", digits=5,
-                                change_unit="km", change_scale=bodies.AU_KM, change_digits=0))
-        lines.append(_pair_line("outgoing eccentricity", out["eccentricity"], "", digits=5,
-                                change_digits=5))
-        lines.append(_pair_line("outgoing inclination", out["inclination_deg"], "deg", digits=4,
-                                change_digits=4))
-        lines.append(_pair_line("outgoing aphelion", out["aphelion_au"], "au", digits=5,
-                                change_unit="km", change_scale=bodies.AU_KM, change_digits=0))
-    if eph.get("limits"):
-        lines.append("  limits with these numbers (margin >= 0 holds)")
-        for row in eph["limits"]:
-            state = "ok" if row["holds"] else "VIOLATED"
-            lines.append(f"    {row['limit']:<30}{_num(row['design'], 4):>12} -> "
-                         f"{_num(row['check'], 4):>12} {row['unit']:<9} {state}")
+    lines = [f"Re-flown apart from the search's kernels, planets from {eph['source']}"]
+    if eph.get("problem"):
+        return lines + [f"  {eph['problem']}"]
+    q = eph["quantities"]
+    lines.append(f"  DSM point moved {_num(q['dsm_position_change_km']['check'], 4)} km, "
+                 f"flyby body moved {_num(q['body_position_change_at_flyby_km']['check'], 4)} km "
+                 "from the design's")
+    lines.append(f"  {'':<34}{'design':>16}    {'re-flown':>16}")
+    for key, label, digits in _QUANTITY_LABELS:
+        if key in q:
+            item = q[key]
+            lines.append(f"  {label:<34}{_num(item['design'], digits):>16} -> "
+                         f"{_num(item['check'], digits):>16} {item['unit']}")
+    lines.append("  stated limits (margin >= 0 holds; design margin asked in brackets)")
+    for row in eph["limits"]:
+        state = "holds" if row["holds"] else "BROKEN"
+        asked = f"[{row['required_margin']:g}]" if row.get("required_margin") else ""
+        lines.append(f"    {row['limit']:<26}{_num(row['design'], 6):>14} -> "
+                     f"{_num(row['check'], 6):>14} {row['unit']:<9}{asked:>7} {state}")
     return lines
 
 
@@ -237,13 +250,28 @@ def _case_lines(title, case) -> list:
 
 
 def record_body(report) -> str:
-    return report["ephemeris"][0]["body"]
+    return report["body"]
+
+
+def verdict_line(report) -> str:
+    """One line: does every stated limit hold in the verification, and if not which."""
+    v = report["verdict"]
+    if v["holds"]:
+        return "holds in the verification: yes (every stated limit, " + v["model"] + ")"
+    parts = []
+    for b in v["broken"]:
+        if b.get("problem"):
+            parts.append(f"{b['problem']} ({b['source']})")
+        else:
+            parts.append(f"{b['limit']} margin {b['check']:.6g} {b['unit']}".rstrip())
+    return "holds in the verification: NO: " + "; ".join(parts)
 
 
 def render(report) -> str:
     """The text of verification.txt."""
     lines = [f"leverage verification: {report['problem']} ({report['status']})",
-             f"  CAUTION: {report['caution']}", f"  {report['frame']}", ""]
+             f"  CAUTION: {report['caution']}", f"  {report['frame']}", "",
+             verdict_line(report), ""]
     for eph in report["ephemeris"]:
         lines += _ephemeris_lines(eph) + [""]
     tb = report["two_body"]
@@ -286,16 +314,14 @@ def write(folder, report) -> tuple[Path, Path]:
 
 
 def headline(report) -> str:
-    """One line for the end of a run: the biggest moves found."""
+    """One line for the end of a run: the verdict and the biggest moves found."""
+    parts = [verdict_line(report)]
     eph = report["ephemeris"][0]
+    if "quantities" in eph:
+        q = eph["quantities"]
+        parts.append(f"re-flown DSM {q['dsm']['change'] * 1e3:+.4f} m/s, flyby v-inf "
+                     f"{q['flyby_vinf_in']['change'] * 1e3:+.4f} m/s")
     pm = report["point_masses"]
-    parts = []
-    if "dsm_km_s" in eph:
-        parts.append(f"outside ephemeris moves the DSM {eph['dsm_km_s']['change'] * 1e3:+.1f} m/s "
-                     f"and flyby v-inf {eph['flyby_vinf_in_km_s']['change'] * 1e3:+.1f} m/s")
-    broken = [row["limit"] for row in eph.get("limits", []) if not row["holds"]]
-    if broken:
-        parts.append(f"with it {', '.join(broken)} no longer holds")
     moved = []
     if "skipped" not in pm["other_planets"]:
         moved.append(f"{pm['other_planets']['end_position_difference_km']:,.0f} km from the "

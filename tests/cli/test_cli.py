@@ -83,8 +83,14 @@ def check_summary_against_record(text: str, record: dict):
         s["algorithm"], s["islands"], s["population"], s["generations"], s["seed"], s["polish"])
     evals, wall = find(text, r"^effort\s+([\d,]+) evaluations in " + NUM + " s")
     assert int(evals.replace(",", "")) == run["evaluations"] and agrees(wall, run["wall_time_s"])
-    obj, feasible = find(text, r"^objective " + NUM + r"\s+feasible: (yes|NO)")
-    assert agrees(obj, record["objective"][0]) and (feasible == "yes") == record["feasible"]
+    (obj,) = find(text, r"^objective " + NUM)
+    assert agrees(obj, record["objective"][0])
+    (feasible,) = find(text, r"^holds in the search model:\s+(yes|NO)")
+    assert (feasible == "yes") == record["feasible"]
+    (verified,) = find(text, r"^holds in the verification: (yes|NO|not run yet)")
+    assert {"yes": True, "NO": False, "not run yet": None}[verified] == \
+        record["verification"]["holds"]
+    assert "feasible: yes" not in text
 
     for label, event in (("launch", "launch"), ("DSM", "dsm"), ("return flyby", "flyby")):
         date, day = find(text, rf"^\s+{label}\s+{DATE}\s+{NUM}\s")
@@ -127,10 +133,19 @@ def check_summary_against_record(text: str, record: dict):
         assert agrees(printed, value(record, key)), key
 
     assert record["margins"], "a run always has margins"
+    checked = {c["limit"]: c for c in record["verification"].get("margins", [])}
     for limit, m in record["margins"].items():
-        printed, state = find(text, rf"^\s+{limit}\s+{NUM}\s.*\b(ok|VIOLATED)$")
-        assert agrees(printed, m["margin"]), limit
-        assert (state == "ok") == m["holds"] == (m["margin"] >= 0), limit
+        # name, stated limit, margin asked, margin in the search model, in the verification
+        asked, printed, verified, state = find(
+            text, rf"^\s+{limit}\s+.*?\s{NUM}\s+{NUM}\s+(\S+)\s+(?:\S+\s+)?(ok|VIOLATED)$")
+        assert agrees(asked, m["required_margin"]) and agrees(printed, m["margin"]), limit
+        assert (state == "ok") == m["holds"], limit
+        assert m["holds"] == (m["margin"] >= m["required_margin"] - 1e-9), limit
+        if limit in checked:
+            assert agrees(verified.rstrip("!"), checked[limit]["check"]), limit
+            assert verified.endswith("!") != checked[limit]["holds"], limit
+        else:
+            assert verified == "-", limit
     assert text.count(CAUTION) >= 1
 
 
@@ -247,7 +262,7 @@ def test_no_feasible_design_exits_3(tmp_path, no_pictures, capsys):
     assert record["feasible"] is False
     assert record["margins"]["min_outgoing_vinf"]["holds"] is False
     summary = (out / "summary.txt").read_text(encoding="utf-8")
-    assert "feasible: NO" in summary and "VIOLATED" in summary
+    assert "holds in the search model:  NO" in summary and "VIOLATED" in summary
     check_summary_against_record(summary, record)
 
 

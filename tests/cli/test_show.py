@@ -29,6 +29,8 @@ def folders(demo_result, tmp_path_factory):
     record["margins"]["min_flyby_altitude"]["margin"] = -12.5
     record["margins"]["min_flyby_altitude"]["holds"] = False
     record["feasible"] = False
+    record["verification"] = {"holds": False, "status": "done", "broken": [
+        {"limit": "min_flyby_altitude", "check": -12.5, "unit": "km"}], "margins": []}
     record["run"]["evaluations"] = 123456
     (b / "best.json").write_text(json.dumps(record))
     return a, b
@@ -52,7 +54,9 @@ def test_several_folders_side_by_side(folders, capsys):
     dsm = _row(text, "DSM (km/s)").split()[-2:]
     assert dsm == [f"{ra['derived']['dsm']['value']:.4f}", f"{rb['derived']['dsm']['value']:.4f}"]
     assert _row(text, "goal").split()[-2:] == [ra["problem"]["goal"]] * 2
-    assert _row(text, "feasible").split()[-2:] == ["yes", "NO"]
+    assert _row(text, "holds: search model").split()[-2:] == ["yes", "NO"]
+    assert _row(text, "holds: verification").split()[-2:] == ["yes", "NO"]
+    assert _row(text, "ephemeris").split()[-2:] == ["DE421", "DE421"]
     assert _row(text, "evaluations").split()[-1] == "123,456"
     altitude = _row(text, "  min_flyby_altitude")
     assert altitude.endswith("-12.5000 !")

@@ -54,7 +54,8 @@ def test_unreachable_inclination_beyond_one_turn(demo_path, tmp_path):
     problem = edited(demo_path, tmp_path, [
         ("max_c3_km2_s2 = 24.0", "max_c3_km2_s2 = 10.0"),
         ("min_outgoing_vinf_km_s = 7.5",
-         "min_outgoing_inclination_deg = 70.0\ndsm_budget_km_s = 0.2")])
+         "min_outgoing_inclination_deg = 70.0\ndsm_budget_km_s = 0.2"),
+        ("outgoing_vinf_km_s = 0.01", "")])
     result = screen(problem)
     assert result.verdict == "unreachable"
     assert result.requirements[0].best < 70.0

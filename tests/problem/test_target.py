@@ -15,6 +15,7 @@ import numpy as np
 import pytest
 
 from leverage.astro import bodies, times
+from leverage.core import ephemeris as E
 from leverage.core import layout as L
 from leverage.core.kepler import elements_from_state
 from leverage.errors import ProblemError
@@ -171,8 +172,15 @@ def test_planet_target_uses_its_mean_elements(tmp_path, demo_path):
     path.write_text(text)
     problem = load_problem(path)
     assert problem.target.is_planet and problem.target.name == "Mars"
-    p = problem.compile().params
-    assert np.array_equal(p[L.P_TARGET_EPH:L.P_TARGET_EPH + 14],
+    compiled = problem.compile()
+    # the default ephemeris (DE421) gives the target a Chebyshev table of Mars (NAIF 4)
+    header = compiled.params[L.P_TARGET_EPH:L.P_TARGET_EPH + E.EPHEMERIS_SIZE]
+    assert header[0] == E.KIND_CHEBYSHEV and header[E.CHEB_NAIF_ID] == 4
+    assert "DE421" in compiled.ephemeris
+    # asked for mean elements, it has Standish's Mars row
+    path.write_text(text + '\n[ephemeris]\nsource = "mean_elements"\n')
+    p = load_problem(path).compile().params
+    assert np.array_equal(p[L.P_TARGET_EPH:L.P_TARGET_EPH + E.EPHEMERIS_SIZE],
                           bodies.planet("mars").ephemeris_array())
 
 

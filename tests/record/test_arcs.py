@@ -120,8 +120,10 @@ def test_an_arrival_event_replaces_the_outgoing_orbit(record):
 def test_body_orbit_is_the_mean_element_orbit(record):
     ev = event_states(record)
     orbit = body_orbit(record["problem"]["body"], ev["launch"]["t"], n=100)
-    # the search's launch point is the body's mean-element position at launch
-    assert np.linalg.norm(orbit.r_km[0] - ev["launch"]["r"]) < 1e-3
+    # The search's launch point is DE421's geocentre; the drawn orbit is Standish's mean
+    # elements of the Earth-Moon barycentre: ~4,700 km apart by the Moon alone (from
+    # memory) plus Standish's error (measured 2,820 km in all on the demo).
+    assert np.linalg.norm(orbit.r_km[0] - ev["launch"]["r"]) < 15_000.0
     r = np.linalg.norm(orbit.r_km, axis=1) / bodies.AU_KM
     # Earth (Earth-Moon barycentre row): perihelion/aphelion 0.983 / 1.017 au (from memory)
     assert r.min() > 0.98 and r.max() < 1.02

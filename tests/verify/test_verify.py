@@ -1,19 +1,21 @@
-"""Verification of a design (leverage.verify, ephemeris_check, nbody_check, integrate,
-precise_ephemeris, afterrun).
+"""Verification of a design (leverage.verify: refly, report, nbody_check, integrate;
+astro.ephemerides; run.afterrun).
 
 Outside sources:
-- astropy's built-in planetary ephemeris (ERFA epv00/plan94) as the outside planet
-  positions, and scipy's solve_ivp (DOP853) as an independent integrator: the conic
-  arcs must agree with it to a small fraction of a kilometre;
+- the re-fly's own path: jplephem reading the DE421 package, poliastro's unit-aware
+  propagation, Lambert solver and flyby routine. Re-flown with the ephemeris the search
+  used, the design must come back to round-off; a sign, frame or radius/altitude slip in
+  either the kernels or the re-fly would not;
+- astropy's built-in planetary ephemeris (ERFA epv00/plan94; epv00's documented heliocentric
+  Earth error is at most 11.2 km and 5 mm/s over 1900-2100, SOFA/ERFA epv00 notes) as a
+  second outside source, and scipy's solve_ivp (DOP853) as an independent integrator: the
+  conic arcs must agree with it to a small fraction of a kilometre;
 - the JPL SPK file layout (NAIF "SPK Required Reading" and "DAF Required Reading":
   a DAF file record, summary/name records, type 2 Chebyshev segments with MID, RADIUS,
   coefficients and a trailer INIT, INTLEN, RSIZE, N), recalled from memory: a small
   synthetic kernel is written here with jplephem's DAF writer from astropy's builtin
   positions and must be read back through the SPK path to the same positions;
-- the Earth-Moon barycentre lies about 4,700 km from the geocentre (from memory), and
-  Standish's mean elements are good to some thousands of km for the EMB (his stated
-  accuracy, from memory): bounds below are generous multiples of these.
-The fixture is a real small run of the (invented) demo problem.
+The fixture is a real small run of the (invented) demo problem, searched with DE421.
 """
 import json
 import math
@@ -27,6 +29,7 @@ from numpy.polynomial import chebyshev
 from leverage.astro import bodies
 from leverage.astro.ephemerides import (
     BuiltinEphemeris,
+    PackagedEphemeris,
     SpkEphemeris,
     ecliptic_to_equatorial,
     equatorial_to_ecliptic,
@@ -38,9 +41,9 @@ from leverage.errors import ProblemError
 from leverage.fileio import read_json
 from leverage.record.arcs import event_states
 from leverage.run import afterrun
-from leverage.verify.ephemeris_check import check_with_ephemeris
 from leverage.verify.integrate import PointMassField, integrate_point_masses
 from leverage.verify.nbody_check import departure_periapsis
+from leverage.verify.refly import launch_vinf_vector, refly
 from leverage.verify.report import render, verify_record
 
 DAY = 86400.0
@@ -137,7 +140,10 @@ def test_a_run_writes_its_verification(demo_result):
     text = (demo_result / "verification.txt").read_text()
     data = json.loads((demo_result / "verification.json").read_text())
     assert "CAUTION" in text and "It does not cover" in text
-    assert data["ephemeris"][0]["source"].startswith("astropy builtin")
+    assert data["ephemeris"][0]["source"].startswith("JPL DE421")
+    assert data["verdict"]["holds"] is True
+    assert json.loads((demo_result / "best.json").read_text())["verification"]["holds"] is True
+    assert "holds in the verification: yes" in (demo_result / "summary.txt").read_text()
 
 
 def test_every_number_is_finite(report):
@@ -155,30 +161,97 @@ def test_conic_arcs_agree_with_scipy_two_body_integration(report):
         assert arc["velocity_mismatch_m_s"] < 1e-3, arc
 
 
-def test_outside_ephemeris_moves_the_design_a_little(report, record):
+def test_refly_with_the_search_ephemeris_returns_the_design(report, record):
+    """Kernels (numba Chebyshev DE421, own propagation, Izzo via poliastro's core) and the
+    re-fly (jplephem, poliastro's unit-aware layer) agree to round-off: measured 1e-11 km/s
+    on the DSM and the flyby v-infinity, 6e-4 km at the DSM point, 1e-11 deg."""
     eph = report["ephemeris"][0]
-    # the "design" column is the record's own numbers
-    assert eph["dsm_km_s"]["design"] == record["derived"]["dsm"]["value"]
-    assert eph["flyby_vinf_in_km_s"]["design"] == record["derived"]["flyby_vinf_in"]["value"]
-    # EMB (search) vs geocentre (check) plus Standish's error: thousands of km, not millions
-    # (a frame mistake, e.g. an equatorial/ecliptic mix-up, would give ~1e7 km).
-    for key in ("body_position_offset_at_launch_km", "body_position_offset_at_flyby_km"):
-        assert 100.0 < eph[key] < 30_000.0, (key, eph[key])
-    for key in ("body_velocity_offset_at_launch_m_s", "body_velocity_offset_at_flyby_m_s"):
-        assert eph[key] < 50.0, (key, eph[key])
-    assert eph["lambert_solved"]
-    assert abs(eph["dsm_km_s"]["change"]) < 0.05
-    assert abs(eph["flyby_vinf_in_km_s"]["change"]) < 0.05
+    q = eph["quantities"]
+    assert eph["source"].startswith("JPL DE421")
+    assert q["dsm"]["design"] == record["derived"]["dsm"]["value"]
+    for key in ("dsm", "flyby_vinf_in", "flyby_vinf_out", "total_dv"):
+        assert abs(q[key]["change"]) < 1e-9, key                      # km/s
+    assert q["dsm_position_change_km"]["check"] < 0.01
+    assert q["body_position_change_at_flyby_km"]["check"] < 0.01
+    assert abs(q["turn_angle"]["change"]) < 1e-7                      # deg
+    assert abs(q["outgoing_inclination_deg"]["change"]) < 1e-7        # deg
+    assert abs(q["outgoing_aphelion_au"]["change"]) < 1e-9            # au
 
 
-
-def test_limits_are_rechecked_with_the_changed_numbers(report, record):
+def test_limits_are_rechecked_against_the_stated_limits(report, record):
     limits = {row["limit"]: row for row in report["ephemeris"][0]["limits"]}
-    eph = report["ephemeris"][0]
-    assert "min_outgoing_vinf" in limits  # the demo requires 7.5 km/s outgoing
-    row = limits["min_outgoing_vinf"]
-    assert row["check"] == pytest.approx(row["design"] + eph["flyby_vinf_in_km_s"]["change"])
-    assert row["holds"] == (row["check"] >= 0)
+    assert {"max_c3", "min_outgoing_vinf", "min_flyby_altitude", "dla_band"} <= set(limits)
+    for name in ("max_c3", "min_outgoing_vinf", "min_flyby_altitude", "dla_band"):
+        row = limits[name]
+        assert row["stated"] == record["margins"][name]["limit"]
+        assert row["check"] == pytest.approx(record["margins"][name]["margin"], abs=1e-8), name
+        assert row["holds"] == (row["check"] >= 0)
+    # the demo asks 0.01 km/s beyond 7.5 km/s; the design keeps it in both models
+    assert limits["min_outgoing_vinf"]["required_margin"] == 0.01
+    assert limits["min_outgoing_vinf"]["check"] >= 0.01 - 1e-9
+    assert report["verdict"]["holds"] and not report["verdict"]["broken"]
+
+
+def test_refly_with_astropy_builtin_moves_the_design_by_its_accuracy(record):
+    """ERFA epv00's Earth is within 11.2 km / 5 mm/s of DE405 (its documentation): the re-fly
+    moves by about that much (measured 0.57 mm/s DSM, 0.43 mm/s v-infinity, 21 km at the
+    DSM on the demo; bounds ~10x)."""
+    q = refly(record, BuiltinEphemeris())["quantities"]
+    assert abs(q["dsm"]["change"]) < 5e-6                              # km/s
+    assert abs(q["flyby_vinf_in"]["change"]) < 5e-6
+    assert 0.1 < q["dsm_position_change_km"]["check"] < 200.0
+    assert 0.1 < q["body_position_change_at_flyby_km"]["check"] < 50.0
+
+
+def test_launch_asymptote_round_trip(record):
+    """The hand-off vector from C3, DLA, RLA (EME2000) back to the same angles."""
+    d = record["derived"]
+    vec = launch_vinf_vector(d["c3"]["value"], d["dla"]["value"], d["rla"]["value"])
+    eq = ecliptic_to_equatorial(vec[None, :])[0]
+    assert eq @ eq == pytest.approx(d["c3"]["value"], rel=1e-14)
+    assert math.degrees(math.asin(eq[2] / np.linalg.norm(eq))) == pytest.approx(
+        d["dla"]["value"], abs=1e-10)
+    assert math.degrees(math.atan2(eq[1], eq[0])) % 360 == pytest.approx(
+        d["rla"]["value"], abs=1e-10)
+
+
+def test_a_design_on_its_limit_breaks_in_verify_with_exit_4(demo_result, tmp_path, capsys):
+    """A stated limit moved onto the design (as a zero-margin design would sit) breaks in
+    the re-fly: exit 4, one line naming it, verdict recorded in best.json and summary."""
+    folder = tmp_path / "run"
+    shutil.copytree(demo_result, folder)
+    record = json.loads((folder / "best.json").read_text())
+    vinf = record["derived"]["flyby_vinf_out"]["value"]
+    record["margins"]["min_outgoing_vinf"]["limit"] = vinf + 1e-6
+    record["margins"]["min_outgoing_vinf"]["margin"] = -1e-6
+    (folder / "best.json").write_text(json.dumps(record))
+    capsys.readouterr()
+    assert main(["verify", str(folder)]) == 4
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "min_outgoing_vinf" in err and "best.json" in err
+    after = json.loads((folder / "best.json").read_text())
+    assert after["verification"]["holds"] is False
+    assert [b["limit"] for b in after["verification"]["broken"]] == ["min_outgoing_vinf"]
+    summary = (folder / "summary.txt").read_text()
+    assert "holds in the verification: NO (min_outgoing_vinf)" in summary
+    assert "feasible: yes" not in summary
+
+
+def test_run_exit_code_names_the_limit_the_verification_breaks(tmp_path, capsys):
+    from leverage.cli.run import exit_code
+    from leverage.run.runner import RunOutcome
+
+    record = {"feasible": True, "verification": {
+        "holds": False, "broken": [{"limit": "max_c3", "check": -0.002, "unit": "km^2/s^2"}]}}
+    assert exit_code(RunOutcome(tmp_path, "complete", record)) == 4
+    err = capsys.readouterr().err.strip()
+    assert err == (f"leverage: {tmp_path / 'best.json'}: the design breaks max_c3 (margin "
+                   "-0.002 km^2/s^2) in the verification")
+    record["verification"] = {"holds": True, "broken": []}
+    assert exit_code(RunOutcome(tmp_path, "complete", record)) == 0
+    record["feasible"] = False
+    assert exit_code(RunOutcome(tmp_path, "complete", record)) == 3
+    assert exit_code(RunOutcome(tmp_path, "interrupted", record)) == 130
 
 
 def test_point_mass_cases_are_reported_and_retargeted(report):
@@ -241,12 +314,18 @@ def test_frame_rotation_round_trip():
     assert math.degrees(math.asin(pole[2])) == pytest.approx(90 - 84381.448 / 3600, abs=1e-9)
 
 
-def test_builtin_earth_is_near_the_search_earth(record):
+def test_packaged_de421_earth_is_the_geocentre(record):
+    """jplephem's Earth (EMB - Moon/(1+EMRAT)) at the design's launch: the design's launch
+    point to the metre, and ~4,670 km from the EMB (|Moon| / (1 + 81.30056), DE421's
+    EMRAT; Moon distance 356,000-407,000 km)."""
     ev = event_states(record)
-    r, v = heliocentric_ecliptic(BuiltinEphemeris(), "earth", ev["launch"]["t"])
-    assert r.shape == (1, 3)
-    assert np.linalg.norm(r[0] - ev["launch"]["r"]) < 30_000.0
-    assert np.linalg.norm(r[0]) / bodies.AU_KM == pytest.approx(1.0, abs=0.02)
+    src = PackagedEphemeris("de421")
+    r, _ = heliocentric_ecliptic(src, "earth", ev["launch"]["t"])
+    assert np.linalg.norm(r[0] - ev["launch"]["r"]) < 0.01
+    r_emb, _ = src.ephemeris.position_and_velocity("earthmoon", 2451545.0 + ev["launch"]["t"] / DAY)
+    rb, _ = src.barycentric("earth", ev["launch"]["t"])
+    offset = np.linalg.norm(r_emb.T[0] - rb[0])
+    assert 356_000 / 82.30056 < offset < 407_000 / 82.30056
 
 
 def test_synthetic_spk_reads_back_to_the_positions_it_was_made_from(spk_file, record):
@@ -272,19 +351,18 @@ def test_synthetic_spk_reads_back_to_the_positions_it_was_made_from(spk_file, re
 
 
 def test_verification_through_an_spk_kernel_matches_the_builtin_one(spk_file, record):
+    """The synthetic kernel is fitted to astropy's builtin positions (within 1 km): re-flown
+    through either, the design agrees to 1e-5 km/s."""
     spk = SpkEphemeris(spk_file)
     try:
-        with_spk = check_with_ephemeris(record, spk)
+        with_spk = refly(record, spk)["quantities"]
     finally:
         spk.close()
-    builtin = check_with_ephemeris(record, BuiltinEphemeris())
-    assert with_spk["source"].startswith("JPL SPK kernel synthetic.bsp")
-    assert with_spk["body_position_offset_at_flyby_km"] == pytest.approx(
-        builtin["body_position_offset_at_flyby_km"], abs=2.0)
-    assert with_spk["dsm_km_s"]["check"] == pytest.approx(builtin["dsm_km_s"]["check"],
-                                                         abs=1e-5)
-    assert with_spk["flyby_vinf_in_km_s"]["check"] == pytest.approx(
-        builtin["flyby_vinf_in_km_s"]["check"], abs=1e-5)
+    builtin = refly(record, BuiltinEphemeris())["quantities"]
+    for key in ("dsm", "flyby_vinf_in"):
+        assert with_spk[key]["check"] == pytest.approx(builtin[key]["check"], abs=1e-5), key
+    assert with_spk["body_position_change_at_flyby_km"]["check"] == pytest.approx(
+        builtin["body_position_change_at_flyby_km"]["check"], abs=2.0)
 
 
 def test_verify_command_with_spk(spk_file, demo_result, tmp_path, capsys):
@@ -293,10 +371,10 @@ def test_verify_command_with_spk(spk_file, demo_result, tmp_path, capsys):
     (folder / "verification.txt").unlink()
     assert main(["verify", str(folder), "--spk", str(spk_file)]) == 0
     text = (folder / "verification.txt").read_text()
-    assert "astropy builtin" in text and "JPL SPK kernel synthetic.bsp" in text
+    assert "JPL DE421" in text and "JPL SPK kernel synthetic.bsp" in text
     data = json.loads((folder / "verification.json").read_text())
-    assert len(data["ephemeris"]) == 2
-    assert data["point_masses"]["source"].startswith("JPL SPK kernel")
+    assert len(data["ephemeris"]) == 2 and data["verdict"]["holds"]
+    assert data["point_masses"]["source"].startswith("JPL DE421")
 
 
 def test_bad_spk_inputs_are_one_line_errors(tmp_path, demo_result, record, spk_file, capsys):

@@ -86,7 +86,6 @@ def test_identities_of_one_evaluation(u, revs):
     x, p, q = demo_point(u, revs)
     assume(q[L.Q_OK] == 1.0)
     t0, t1, t2 = q[L.Q_T_LAUNCH], q[L.Q_T_DSM], q[L.Q_T_FLYBY]
-    eph = body_eph(p)
 
     # Launch: C3 = v_inf^2, and v_inf is the spacecraft's velocity relative to the body.
     r0, vb0 = body_state_in(p, L.P_BODY_EPH, t0)

@@ -53,9 +53,6 @@ def vec(q, slot):
     return np.array(q[slot:slot + 3])
 
 
-def body_eph(p):
-    return p[L.P_BODY_EPH:L.P_BODY_EPH + EPHEMERIS_SIZE]
-
 
 POINTS = st.lists(st.floats(min_value=0.0, max_value=1.0), min_size=L.N_X_LOOP,
                   max_size=L.N_X_LOOP)

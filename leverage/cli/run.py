@@ -3,7 +3,9 @@ import time
 from pathlib import Path
 
 from leverage.errors import NO_VALUE, ProblemError
+from leverage.fileio import check_writable, safe_folder_name
 from leverage.problem.load import load_problem
+from leverage.run.lock import folder_lock
 from leverage.run.runner import Progress, evolver_for, resumed_settings, run, settings_from
 from leverage.search import checkpoint
 
@@ -32,7 +34,7 @@ def add_parser(sub):
 
 def default_out(name: str) -> Path:
     stamp = time.strftime("%Y%m%dT%H%M%SZ", time.gmtime())
-    return Path("results") / f"{name}-{stamp}"
+    return Path("results") / f"{safe_folder_name(name)}-{stamp}"
 
 
 def resume_point(args, problem):
@@ -62,11 +64,13 @@ def main(args) -> int:
     problem = load_problem(args.problem)
     workers = workers_option(args)
     if args.resume:
-        out, settings, saved = resume_point(args, problem)
-        evolver = evolver_for(settings, workers, args.cluster)
-        return exit_code(run(problem, settings, out,
-                             Progress(settings.evolutions, enabled=not args.quiet),
-                             evolver=evolver, resume=saved))
+        check_writable(args.resume, create=False)  # a read-only folder: one line, no work
+        with folder_lock(args.resume, "a resumed run"):
+            out, settings, saved = resume_point(args, problem)
+            evolver = evolver_for(settings, workers, args.cluster)
+            return exit_code(run(problem, settings, out,
+                                 Progress(settings.evolutions, enabled=not args.quiet),
+                                 evolver=evolver, resume=saved))
     settings = settings_from(problem, search_overrides(args))
     out = Path(args.out) if args.out else default_out(problem.name)
     if out.exists() and not out.is_dir():
@@ -74,6 +78,9 @@ def main(args) -> int:
     if out.exists() and any(out.iterdir()) and not args.force:
         raise ProblemError("command line", "--out", str(out),
                            "folder exists and is not empty; pick another or add --force")
-    evolver = evolver_for(settings, workers, args.cluster)
-    return exit_code(run(problem, settings, out,
-                         Progress(settings.evolutions, enabled=not args.quiet), evolver=evolver))
+    check_writable(out)  # before any work: a folder that takes files, or one line
+    with folder_lock(out):
+        evolver = evolver_for(settings, workers, args.cluster)
+        return exit_code(run(problem, settings, out,
+                             Progress(settings.evolutions, enabled=not args.quiet),
+                             evolver=evolver))

@@ -2,8 +2,9 @@
 numerical integration; writes verification.txt and verification.json there."""
 from pathlib import Path
 
-from leverage.fileio import load_record
+from leverage.fileio import check_writable, load_record
 from leverage.record.arcs import check_record
+from leverage.run.lock import folder_lock
 from leverage.verify.report import render, verify_record, write
 
 
@@ -23,8 +24,10 @@ def add_parser(sub):
 def main(args) -> int:
     record = load_record(args.results)
     check_record(record, str(Path(args.results) / "best.json"))
-    report = verify_record(record, spk_path=args.spk)
-    txt, _ = write(args.results, report)
+    check_writable(args.results, create=False)  # before the work, not after it
+    with folder_lock(args.results, "leverage verify"):
+        report = verify_record(record, spk_path=args.spk)
+        txt, _ = write(args.results, report)
     print(render(report))
     print(f"written to {txt} and verification.json")
     return 0

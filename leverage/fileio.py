@@ -36,9 +36,11 @@ def write_bytes_atomic(path, data: bytes, sync: bool = True) -> None:
                 os.fsync(fh.fileno())
         os.chmod(tmp, 0o666 & ~_UMASK)
         os.replace(tmp, path)
-    except BaseException:
+    except BaseException as exc:
         if os.path.exists(tmp):
             os.unlink(tmp)
+        if isinstance(exc, OSError) and exc.filename is None:  # a write: name the file
+            raise OSError(exc.errno, exc.strerror or str(exc), str(path)) from exc
         raise
 
 

@@ -1,4 +1,5 @@
 """leverage run PROBLEM: optimise and write a result folder."""
+import sys
 import time
 from pathlib import Path
 
@@ -53,9 +54,15 @@ def resume_point(args, problem):
     return folder, settings, saved
 
 
-def exit_code(outcome) -> int:
-    """0 feasible, 3 complete but no design met every limit, 130 interrupted."""
+def exit_code(outcome, quiet: bool = False) -> int:
+    """0 feasible, 3 complete but no design met every limit, 130 interrupted (with
+    --quiet, which silences the progress note, one line on stderr says so)."""
     if outcome.status != "complete":
+        if quiet:
+            kept = ("the best design so far is in best.json" if outcome.record
+                    else "nothing written")
+            print(f"leverage: interrupted; {kept}; continue with: leverage run PROBLEM "
+                  f"--resume {outcome.folder}", file=sys.stderr)
         return EXIT_INTERRUPTED
     return EXIT_OK if outcome.feasible else EXIT_INFEASIBLE
 
@@ -70,7 +77,7 @@ def main(args) -> int:
             evolver = evolver_for(settings, workers, args.cluster)
             return exit_code(run(problem, settings, out,
                                  Progress(settings.evolutions, enabled=not args.quiet),
-                                 evolver=evolver, resume=saved))
+                                 evolver=evolver, resume=saved), args.quiet)
     settings = settings_from(problem, search_overrides(args))
     out = Path(args.out) if args.out else default_out(problem.name)
     if out.exists() and not out.is_dir():
@@ -83,4 +90,4 @@ def main(args) -> int:
         evolver = evolver_for(settings, workers, args.cluster)
         return exit_code(run(problem, settings, out,
                              Progress(settings.evolutions, enabled=not args.quiet),
-                             evolver=evolver))
+                             evolver=evolver), args.quiet)

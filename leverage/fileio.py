@@ -4,11 +4,16 @@ Files are written atomically: to a temporary name in the same folder, fsync'd, t
 renamed, so a crash or Ctrl-C leaves the old file or the new one, never a partial one.
 """
 import json
+import math
 import os
+import re
 import tempfile
 from pathlib import Path
 
-from leverage.errors import NO_VALUE, ProblemError
+from leverage.errors import NO_VALUE, ProblemError, WriteFault
+
+MAX_RECORD_BYTES = 50_000_000  # a best.json is some kB; refuse reading anything huge
+MAX_FOLDER_NAME_CHARS = 80
 
 _UMASK = os.umask(0o022)
 os.umask(_UMASK)  # read without changing it
@@ -31,9 +36,11 @@ def write_bytes_atomic(path, data: bytes, sync: bool = True) -> None:
                 os.fsync(fh.fileno())
         os.chmod(tmp, 0o666 & ~_UMASK)
         os.replace(tmp, path)
-    except BaseException:
+    except BaseException as exc:
         if os.path.exists(tmp):
             os.unlink(tmp)
+        if isinstance(exc, OSError) and exc.filename is None:  # a write: name the file
+            raise OSError(exc.errno, exc.strerror or str(exc), str(path)) from exc
         raise
 
 
@@ -46,17 +53,84 @@ def write_json(path, data: dict) -> None:
     write_atomic(path, json.dumps(data, indent=2, allow_nan=False) + "\n")
 
 
+def _no_constant(name):
+    raise ValueError(f"{name} is not a number JSON allows (a non-finite value)")
+
+
+def _finite_float(text):
+    value = float(text)
+    if not math.isfinite(value):
+        raise ValueError(f"{text} is out of range for a float")
+    return value
+
+
 def read_json(path) -> dict:
-    return json.loads(Path(path).read_text(encoding="utf-8"))
+    """A JSON file as written by ``write_json``: NaN, Infinity and overflowing numbers are
+    refused (ValueError), and so is nesting too deep to read (RecursionError)."""
+    return json.loads(Path(path).read_text(encoding="utf-8"),
+                      parse_constant=_no_constant, parse_float=_finite_float)
 
 
 def load_record(folder) -> dict:
+    """The design record of a result folder; a one-line ProblemError for anything that is
+    not a readable, finite, reasonably sized JSON object."""
     path = Path(folder) / "best.json"
     if not path.is_file():
         raise ProblemError(str(folder), "", NO_VALUE, "no best.json here: not a result folder")
     try:
-        return read_json(path)
-    except ValueError as exc:
+        if path.stat().st_size > MAX_RECORD_BYTES:
+            raise ProblemError(str(path), "", NO_VALUE,
+                               f"larger than {MAX_RECORD_BYTES:,} bytes: not a design record")
+        record = read_json(path)
+    except RecursionError:
+        raise ProblemError(str(path), "", NO_VALUE,
+                           "unreadable JSON (nested too deeply)") from None
+    except (ValueError, OSError) as exc:
         raise ProblemError(str(path), "", NO_VALUE, f"unreadable JSON ({exc})") from None
+    if not isinstance(record, dict):
+        raise ProblemError(str(path), "", NO_VALUE,
+                           f"not a design record (a JSON {type(record).__name__}, "
+                           "not an object)")
+    return record
+
+
+def safe_folder_name(name: str) -> str:
+    """A folder name made from a study name: only letters, digits, ``.``, ``_`` and ``-``
+    (anything else, path separators and control characters included, becomes ``-``), no
+    leading dot (so never ``.`` or ``..``), at most ``MAX_FOLDER_NAME_CHARS`` characters;
+    "study" when nothing is left."""
+    clean = re.sub(r"[^\w.-]+", "-", str(name))
+    clean = clean.lstrip(".-")[:MAX_FOLDER_NAME_CHARS].rstrip(".-")
+    return clean or "study"
+
+
+def check_writable(folder, create: bool = True) -> Path:
+    """Make sure files can be written in ``folder`` before any work is done: the folder
+    (created with its parents when ``create``) takes a small probe file, which is
+    removed again. Returns the folder; ``ProblemError`` when a path component is a file,
+    ``WriteFault`` (path, reason, free space) when the system refuses."""
+    folder = Path(folder)
+    for parent in [folder, *folder.parents]:
+        if parent.exists():
+            if not parent.is_dir():
+                raise ProblemError(str(folder), "", NO_VALUE,
+                                   "is a file, not a folder" if parent == folder else
+                                   f"lies below {parent}, which is a file, not a folder")
+            break
+    try:
+        if create:
+            folder.mkdir(parents=True, exist_ok=True)
+        elif not folder.is_dir():
+            raise ProblemError(str(folder), "", NO_VALUE, "no such folder")
+        fd, probe = tempfile.mkstemp(dir=folder, prefix=".leverage-probe.")
+        try:
+            os.write(fd, b"probe")
+        finally:
+            os.close(fd)
+            os.unlink(probe)
+    except OSError as exc:
+        raise WriteFault(exc.filename or folder, exc,
+                         "nothing was done; pick a folder that can be written") from None
+    return folder
 
 

@@ -3,9 +3,10 @@ import math
 from pathlib import Path
 
 from leverage.errors import ProblemError
-from leverage.fileio import load_record
+from leverage.fileio import check_writable, load_record
 from leverage.record.arcs import check_record
 from leverage.reports.export import DEFAULT_STEP_HOURS, FRAMES, export
+from leverage.run.lock import folder_lock
 
 
 def add_parser(sub):
@@ -34,6 +35,9 @@ def main(args) -> int:
                            "Sun-centred ecliptic frame)")
     record = load_record(args.results)
     check_record(record, str(Path(args.results) / "best.json"))
-    path = export(record, args.results, args.format, args.step_hours, args.frame, args.output)
+    check_writable(Path(args.output).parent if args.output else args.results, create=False)
+    with folder_lock(args.results, "leverage export"):
+        path = export(record, args.results, args.format, args.step_hours, args.frame,
+                      args.output)
     print(path)
     return 0

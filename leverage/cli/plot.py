@@ -1,9 +1,10 @@
 """leverage plot RESULT_DIR: (re)draw the pictures of a result folder."""
 from pathlib import Path
 
-from leverage.fileio import load_record
+from leverage.fileio import check_writable, load_record
 from leverage.record.arcs import check_record
 from leverage.reports.plots import all_pictures
+from leverage.run.lock import folder_lock
 
 
 def add_parser(sub):
@@ -18,6 +19,9 @@ def add_parser(sub):
 def main(args) -> int:
     record = load_record(args.results)
     check_record(record, str(Path(args.results) / "best.json"))
-    for picture in all_pictures(record, args.results):
+    check_writable(args.results, create=False)  # a read-only folder: one line, no work
+    with folder_lock(args.results, "leverage plot"):
+        pictures = all_pictures(record, args.results)
+    for picture in pictures:
         print(picture.path)
     return 0

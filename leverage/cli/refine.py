@@ -1,7 +1,7 @@
 """leverage refine RESULT_DIR: converge the best patched-conic design of a result folder
 in an n-body model (Sun, planets and Moon at DE421 states) and write RESULT_DIR/refined/.
 
-Exit codes: 0 converged; 2 bad input (one line); 5 not converged (one line naming the
+Exit codes: 0 converged; 2 bad input (one line); 6 not converged (one line naming the
 condition still missed and by how much; the best attempt is written to refined/ marked
 "not converged"); 130 interrupted (refined/ left as it was).
 """
@@ -32,7 +32,7 @@ def add_parser(sub):
                     "periapsis, least burns subject to the problem's limits measured on the "
                     "integrated trajectory. Writes refined.json, summary.txt, states.oem and "
                     "trajectory.png into RESULT_DIR/refined/ (all at once). Exit status: 0 "
-                    "converged, 2 bad input, 5 not converged (the best attempt is still "
+                    "converged, 2 bad input, 6 not converged (the best attempt is still "
                     "written, marked \"not converged\"), 130 interrupted (nothing written).")
     p.add_argument("results", help="result folder (with best.json and problem.toml)")
     p.add_argument("--parking-altitude-km", type=float, default=200.0,

@@ -4,7 +4,9 @@ import time
 from pathlib import Path
 
 from leverage.errors import NO_VALUE, ProblemError
+from leverage.fileio import check_writable, safe_folder_name
 from leverage.problem.load import load_problem
+from leverage.run.lock import folder_lock
 from leverage.run.runner import Progress, evolver_for, resumed_settings, run, settings_from
 from leverage.search import checkpoint
 
@@ -33,7 +35,7 @@ def add_parser(sub):
 
 def default_out(name: str) -> Path:
     stamp = time.strftime("%Y%m%dT%H%M%SZ", time.gmtime())
-    return Path("results") / f"{name}-{stamp}"
+    return Path("results") / f"{safe_folder_name(name)}-{stamp}"
 
 
 def resume_point(args, problem):
@@ -52,11 +54,17 @@ def resume_point(args, problem):
     return folder, settings, saved
 
 
-def exit_code(outcome) -> int:
+def exit_code(outcome, quiet: bool = False) -> int:
     """0 holds in the search model and the verification; 3 complete but no design met
     every limit; 4 the design holds in the search model but breaks a stated limit in the
-    verification (named on stderr); 130 interrupted."""
+    verification (named on stderr); 130 interrupted (with --quiet, which silences the
+    progress note, one line on stderr says so)."""
     if outcome.status != "complete":
+        if quiet:
+            kept = ("the best design so far is in best.json" if outcome.record
+                    else "nothing written")
+            print(f"leverage: interrupted; {kept}; continue with: leverage run PROBLEM "
+                  f"--resume {outcome.folder}", file=sys.stderr)
         return EXIT_INTERRUPTED
     if not outcome.feasible:
         return EXIT_INFEASIBLE
@@ -71,11 +79,13 @@ def main(args) -> int:
     problem = load_problem(args.problem)
     workers = workers_option(args)
     if args.resume:
-        out, settings, saved = resume_point(args, problem)
-        evolver = evolver_for(settings, workers, args.cluster)
-        return exit_code(run(problem, settings, out,
-                             Progress(settings.evolutions, enabled=not args.quiet),
-                             evolver=evolver, resume=saved))
+        check_writable(args.resume, create=False)  # a read-only folder: one line, no work
+        with folder_lock(args.resume, "a resumed run"):
+            out, settings, saved = resume_point(args, problem)
+            evolver = evolver_for(settings, workers, args.cluster)
+            return exit_code(run(problem, settings, out,
+                                 Progress(settings.evolutions, enabled=not args.quiet),
+                                 evolver=evolver, resume=saved), args.quiet)
     settings = settings_from(problem, search_overrides(args))
     out = Path(args.out) if args.out else default_out(problem.name)
     if out.exists() and not out.is_dir():
@@ -83,6 +93,9 @@ def main(args) -> int:
     if out.exists() and any(out.iterdir()) and not args.force:
         raise ProblemError("command line", "--out", str(out),
                            "folder exists and is not empty; pick another or add --force")
-    evolver = evolver_for(settings, workers, args.cluster)
-    return exit_code(run(problem, settings, out,
-                         Progress(settings.evolutions, enabled=not args.quiet), evolver=evolver))
+    check_writable(out)  # before any work: a folder that takes files, or one line
+    with folder_lock(out):
+        evolver = evolver_for(settings, workers, args.cluster)
+        return exit_code(run(problem, settings, out,
+                             Progress(settings.evolutions, enabled=not args.quiet),
+                             evolver=evolver), args.quiet)

@@ -2,7 +2,9 @@
 from pathlib import Path
 
 from leverage.errors import ProblemError
+from leverage.fileio import check_writable
 from leverage.problem.load import load_problem
+from leverage.run.lock import folder_lock
 from leverage.run.runner import settings_from
 from leverage.run.sweep import Sweep, SweepProgress, default_out
 
@@ -53,11 +55,14 @@ def main(args) -> int:
             raise ProblemError("command line", "--out", str(out),
                                "folder exists and is not empty; pick another, add --force, "
                                "or continue a sweep with --resume")
-    sweep = Sweep(problem, settings, args.slice_days, args.seeds, out, args.max_objective)
-    if args.resume:
-        sweep.check_resumable()
-    sweep.prepare()
-    progress = SweepProgress(len(sweep.tasks), len(sweep.slices), enabled=not args.quiet)
-    ended = sweep.run(workers, args.cluster, progress, redo=bool(args.force and not args.resume))
+    check_writable(out, create=not args.resume)  # before any work: one line if it cannot be
+    with folder_lock(out, "a sweep"):
+        sweep = Sweep(problem, settings, args.slice_days, args.seeds, out, args.max_objective)
+        if args.resume:
+            sweep.check_resumable()
+        sweep.prepare()
+        progress = SweepProgress(len(sweep.tasks), len(sweep.slices), enabled=not args.quiet)
+        ended = sweep.run(workers, args.cluster, progress,
+                          redo=bool(args.force and not args.resume))
     return {"interrupted": EXIT_INTERRUPTED, "incomplete": EXIT_FAILED, "feasible": EXIT_OK,
             "infeasible": EXIT_INFEASIBLE}[ended]

@@ -4,8 +4,9 @@ verification.json there and records the verdict in best.json and summary.txt."""
 import sys
 from pathlib import Path
 
-from leverage.fileio import load_record
+from leverage.fileio import check_writable, load_record
 from leverage.record.arcs import check_record
+from leverage.run.lock import folder_lock
 from leverage.run.runner import write_record
 from leverage.verify.report import attach, render, verify_record, write
 
@@ -32,9 +33,11 @@ def add_parser(sub):
 def main(args) -> int:
     record = load_record(args.results)
     check_record(record, str(Path(args.results) / "best.json"))
-    report = verify_record(record, spk_path=args.spk)
-    txt, _ = write(args.results, report)
-    write_record(Path(args.results), attach(record, report))
+    check_writable(args.results, create=False)  # before the work, not after it
+    with folder_lock(args.results, "leverage verify"):
+        report = verify_record(record, spk_path=args.spk)
+        txt, _ = write(args.results, report)
+        write_record(Path(args.results), attach(record, report))
     print(render(report))
     print(f"written to {txt} and verification.json; verdict recorded in best.json")
     if not report["verdict"]["holds"]:

@@ -8,6 +8,7 @@ naming the file, the key and the value.
 import datetime as _dt
 import hashlib
 import math
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -17,6 +18,7 @@ import tomli
 from leverage.astro import bodies, times
 from leverage.core import layout as L
 from leverage.errors import NO_VALUE, ProblemError
+from leverage.problem import sense
 from leverage.problem.schema import FRONT_ALGORITHMS, OPTIONAL_SECTIONS, REQUIRED, keys_by_section
 from leverage.problem.target import Target, arrival_window_s, target_from_values
 from leverage.problem.vehicle import LaunchVehicle, vehicle_from_values
@@ -69,7 +71,11 @@ def read_toml(path) -> tuple[str, dict]:
     """(text, table) of a TOML file; ProblemError with one line on failure."""
     source = str(path)
     try:
-        text = Path(path).read_text(encoding="utf-8")
+        if Path(path).is_file() and Path(path).stat().st_size > sense.MAX_PROBLEM_BYTES:
+            raise ProblemError(source, "", NO_VALUE, f"larger than {sense.MAX_PROBLEM_BYTES:,} "
+                               "bytes: not a problem file")
+        with open(path, encoding="utf-8", newline="") as fh:  # line ends as they are
+            text = fh.read()
     except FileNotFoundError:
         raise ProblemError(source, "", NO_VALUE, "no such file") from None
     except IsADirectoryError:
@@ -81,10 +87,21 @@ def read_toml(path) -> tuple[str, dict]:
 
 def parse_toml(source: str, text: str) -> dict:
     """The table of TOML text; ProblemError naming ``source`` when it is not TOML."""
+    if len(text) > sense.MAX_PROBLEM_BYTES:
+        raise ProblemError(source, "", NO_VALUE, f"{len(text):,} characters long; a problem "
+                           f"file may hold at most {sense.MAX_PROBLEM_BYTES:,}")
+    lone_cr = re.search("\r(?!\n)", text)
+    if lone_cr:
+        line = text[:lone_cr.start()].count("\n") + 1
+        raise ProblemError(source, "", NO_VALUE, f"not valid TOML: a lone carriage return "
+                           f"(line {line}); TOML lines end in LF or CR LF")
     try:
         return tomli.loads(text)
     except tomli.TOMLDecodeError as exc:
         raise ProblemError(source, "", NO_VALUE, f"not valid TOML: {exc}") from None
+    except RecursionError:
+        raise ProblemError(source, "", NO_VALUE,
+                           "not a problem file: arrays or tables nested too deeply") from None
 
 
 def _number(source, key, value):
@@ -373,8 +390,12 @@ def _problem(source: str, text: str, table: dict, stem: str) -> Problem:
     vehicle = (vehicle_from_values(source, values["vehicle"])
                if values.get("vehicle") is not None else None)
     _check_trade_relations(source, values, target, vehicle)
+    sense.check_text(source, values)
     _resolve_ephemeris(source, values)
     _check_margins(source, values)
+    # An SPK file's own span is checked when its tables are built (compile).
+    span = EPHEMERIS_SPANS_UTC.get(values["ephemeris"]["used"], ("1800-01-01", "2200-01-01"))
+    sense.check_physics(source, values, body, span)
     name = values["study"]["name"] or stem
     return Problem(source=source, text=text, values=values, name=name, body=body,
                    target=target, vehicle=vehicle)

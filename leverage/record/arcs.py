@@ -29,6 +29,9 @@ FRAME = "heliocentric ecliptic J2000"
 MAX_OUTGOING_DAYS = 4.0 * 365.25   # longest outgoing span drawn/exported
 HYPERBOLIC_OUTGOING_DAYS = 365.25  # span of an unbound outgoing orbit
 DEFAULT_SAMPLES = 400
+# Largest sizes a design's event states can have: epoch (s past J2000, about +-300
+# years), position (km, about 700 au), velocity (km/s).
+STATE_LIMITS = {"t": 1e10, "r": 1e11, "v": 1e3}
 
 
 @dataclass
@@ -90,11 +93,23 @@ def check_record(record, source: str) -> None:
     try:
         names = [e["event"] for e in record["events"]]
         solved = record.get("margins", {}).get("lambert_solved", {}).get("margin", 0.0)
-        event_states(record)
-    except (KeyError, TypeError, ValueError) as exc:
+        states = event_states(record)
+    except (KeyError, TypeError, ValueError, AttributeError) as exc:
         raise ProblemError(source, "", NO_VALUE,
                            f"not a leverage result record ({type(exc).__name__}: {exc})") \
             from None
+    for name, item in states.items():  # numbers a design can have, before any sampling
+        for field, value in item.items():
+            if field == "utc":
+                continue
+            limit = STATE_LIMITS["t" if field == "t" else field[0]]
+            arr = np.atleast_1d(np.asarray(value, dtype=float))
+            if (field != "t" and arr.shape != (3,)) or not np.all(np.isfinite(arr)) \
+                    or np.max(np.abs(arr)) > limit:
+                raise ProblemError(source, f"events.{name}.{field}", value.tolist()
+                                   if hasattr(value, "tolist") else value,
+                                   f"not a state of a design (finite, 3 components, each at "
+                                   f"most {limit:g} in size)")
     missing = [n for n in ("launch", "dsm", "flyby") if n not in names]
     if missing:
         raise ProblemError(source, "events", NO_VALUE, f"no {missing[0]} event")

@@ -17,6 +17,7 @@ with the record). Figures are made with ``matplotlib.figure.Figure`` (no pyplot
 state) under a small style of our own.
 """
 import csv
+import io
 import math
 from dataclasses import dataclass, field
 from datetime import datetime
@@ -29,6 +30,8 @@ from matplotlib.figure import Figure
 
 from leverage.astro import times
 from leverage.core.constants import AU_KM, DAY_S
+from leverage.errors import NO_VALUE, ProblemError
+from leverage.fileio import write_bytes_atomic
 from leverage.record.arcs import body_orbit, design_arcs, event_states, target_orbit
 from leverage.record.design import as_float
 
@@ -81,7 +84,9 @@ def _new_figure(width, height) -> Figure:
 
 def _save(fig: Figure, path: Path) -> Path:
     fig.text(0.01, 0.005, FOOTER, fontsize=7.5, color="#777777", ha="left", va="bottom")
-    fig.savefig(path, dpi=DPI)
+    buf = io.BytesIO()  # drawn in memory, then written atomically: never a truncated PNG
+    fig.savefig(buf, dpi=DPI, format=Path(path).suffix.lstrip(".") or "png")
+    write_bytes_atomic(path, buf.getvalue())
     return path
 
 
@@ -230,13 +235,32 @@ def _float(text) -> float:
         return math.nan
 
 
+def _log_rows(path) -> list[dict]:
+    """convergence.csv's rows, checked: a one-line ProblemError for a file that is not a
+    convergence log (no island/evaluations/best_objective columns, a row that is cut
+    short, a number that is not finite)."""
+    try:
+        rows = read_table(path)
+    except (csv.Error, UnicodeDecodeError, OSError) as exc:
+        raise ProblemError(str(path), "", NO_VALUE, f"unreadable log ({exc})") from None
+    for n, row in enumerate(rows, start=2):
+        for column in ("island", "evaluations", "best_objective"):
+            value = row.get(column)
+            if value is None or None in row or (column != "island"
+                                                 and not math.isfinite(_float(value))):
+                raise ProblemError(str(path), f"line {n} {column}", value,
+                                   "not a convergence log row (finite numbers in island, "
+                                   "evaluations, best_objective)")
+    return rows
+
+
 def convergence(record, folder) -> Picture | None:
     """convergence.png from convergence.csv (None when the log is missing or empty)."""
     folder = Path(folder)
     path = folder / "convergence.csv"
     if not path.is_file():
         return None
-    rows = read_table(path)
+    rows = _log_rows(path)
     if not rows:
         return None
     islands = sorted({r["island"] for r in rows}, key=lambda s: (len(s), s))

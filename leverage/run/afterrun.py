@@ -2,11 +2,19 @@
 pictures (``leverage.plots``) and the verification (``leverage.verify``).
 
 Both work from the record and the folder alone, like ``leverage plot`` and
-``leverage verify``. Neither may cost the run its results: each failure, or a Ctrl-C
-while they are made, is reported in one line and the run's files stay as written.
+``leverage verify``. Neither may cost the run its results: each failure is reported
+in one line and the run's files stay as written. A file that cannot be written (disk
+full, folder gone read-only) ends the run with a ``WriteFault``, and SIGINT/SIGTERM
+with ``KeyboardInterrupt`` saying what is kept (exit 130 from the command).
 """
+from leverage.errors import WriteFault
 from leverage.reports import plots
 from leverage.verify import report as verify
+
+
+def _stopped(what: str, command: str, out_dir) -> str:
+    return (f"during the {what}; best.json and summary.txt are written; "
+            f"continue with: leverage {command} {out_dir}")
 
 
 def pictures_and_verification(out_dir, record, echo=print):
@@ -20,8 +28,10 @@ def pictures_and_verification(out_dir, record, echo=print):
         pictures = plots.all_pictures(record, out_dir)
         echo("pictures: " + ", ".join(p.path.name for p in pictures))
     except KeyboardInterrupt:
-        echo("pictures skipped (interrupted); make them with: leverage plot " + str(out_dir))
-        return None
+        raise KeyboardInterrupt(_stopped("pictures", "plot", out_dir)) from None
+    except OSError as exc:
+        raise WriteFault(exc.filename or out_dir, exc,
+                         _stopped("pictures", "plot", out_dir).split("; ", 1)[1]) from None
     except Exception as exc:  # a picture must never cost the run its results
         echo(f"pictures not made ({type(exc).__name__}: {exc}); "
              f"try: leverage plot {out_dir}")
@@ -31,7 +41,10 @@ def pictures_and_verification(out_dir, record, echo=print):
         echo(verify.headline(report) + " (details in verification.txt)")
         return report
     except KeyboardInterrupt:
-        echo("verification skipped (interrupted); run it with: leverage verify " + str(out_dir))
+        raise KeyboardInterrupt(_stopped("verification", "verify", out_dir)) from None
+    except OSError as exc:
+        raise WriteFault(exc.filename or out_dir, exc,
+                         _stopped("verification", "verify", out_dir).split("; ", 1)[1]) from None
     except Exception as exc:  # nor may the check
         echo(f"verification not made ({type(exc).__name__}: {exc}); "
              f"try: leverage verify {out_dir}")

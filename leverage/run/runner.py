@@ -20,12 +20,12 @@ from contextlib import contextmanager
 from dataclasses import asdict, dataclass, fields
 from pathlib import Path
 
-from leverage.errors import ProblemError
-from leverage.fileio import write_atomic, write_json
+from leverage.errors import ProblemError, WriteFault
+from leverage.fileio import write_atomic
 from leverage.problem.load import check_algorithm
 from leverage.record.design import base_record, design_record
 from leverage.reports import summary
-from leverage.run import afterrun
+from leverage.run import afterrun, rescue
 from leverage.search import checkpoint, cluster
 from leverage.search.fronts import search_class
 from leverage.search.islands import ClusterIslands, local_evolver
@@ -169,11 +169,11 @@ def make_search(compiled, udp, settings: SearchSettings, evolver=None):
     return cls(udp, settings)
 
 
-def write_record(out_dir: Path, record: dict) -> str:
-    """best.json and summary.txt of a record (atomically); returns the summary text."""
-    write_json(out_dir / "best.json", record)
+def write_record(out_dir: Path, record: dict, fault: OSError | None = None) -> str:
+    """best.json and summary.txt of a record (atomically; ``rescue.write_results`` keeps
+    the design somewhere when the folder refuses it); returns the summary text."""
     text = summary.render(record)
-    write_atomic(out_dir / "summary.txt", text)
+    rescue.write_results(out_dir, record, text, fault)
     return text
 
 
@@ -282,13 +282,17 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
     the verification of a complete run.
     """
     out_dir = Path(out_dir)
-    out_dir.mkdir(parents=True, exist_ok=True)
-    # The text that was validated and hashed, not a re-read of a file that may change.
-    write_atomic(out_dir / "problem.toml", problem.text)
+    try:
+        out_dir.mkdir(parents=True, exist_ok=True)
+        # The text that was validated and hashed, not a re-read of a file that may change.
+        write_atomic(out_dir / "problem.toml", problem.text)
+    except OSError as exc:
+        raise WriteFault(exc.filename or out_dir, exc, "nothing was run") from None
     progress = progress or Progress(settings.evolutions)
     evolver = evolver or local_evolver(settings.islands)
     status = "complete"
     search = None
+    fault = None  # an OSError (disk full, folder gone read-only) that stopped the search
     run_info = {}
     with StopSignals() as stop:
         try:
@@ -315,12 +319,16 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
                                         search.state.evaluations)
                 finally:
                     log.close()
-            except (KeyboardInterrupt, WorkerLost) as exc:
+            except (KeyboardInterrupt, WorkerLost, OSError) as exc:
                 stop.hold()
                 status = "interrupted"
                 evolver.abort()
+                fault = exc if isinstance(exc, OSError) else None
                 why = f"worker lost: {exc}" if isinstance(exc, WorkerLost) else (
-                    f"{stop.received or 'SIGINT'} received")
+                    f"cannot write {exc.filename or out_dir}: {exc.strerror or exc}"
+                    if fault else f"{stop.received or 'SIGINT'} received")
+                if search is None and fault is not None:
+                    raise WriteFault(exc.filename or out_dir, exc, "nothing was run") from None
                 if search is None:
                     progress.note(f"interrupted ({why}) before the search started; "
                                   "nothing to write")
@@ -343,7 +351,7 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
             record = finish(problem, settings, compiled, udp, search, status,
                             out_dir / "front.csv", run_info)
         stop.hold()
-        text = write_record(out_dir, record)
+        text = write_record(out_dir, record, fault)  # WriteFault after a fault
     if status == "complete" and after:  # pictures and verification; a failure is one line
         report = afterrun.pictures_and_verification(out_dir, record, echo)
         if report is not None:  # the verdict goes into the record and its summary

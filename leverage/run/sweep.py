@@ -26,7 +26,7 @@ from pathlib import Path
 
 from leverage.about import CAUTION
 from leverage.errors import NO_VALUE, ProblemError
-from leverage.fileio import read_json, write_atomic, write_json
+from leverage.fileio import read_json, safe_folder_name, write_atomic, write_json
 from leverage.problem.schema import MAX_SEED
 from leverage.reports import summary
 from leverage.reports import sweep_table as sweep_report
@@ -344,4 +344,4 @@ class Sweep:
 
 def default_out(name: str) -> Path:
     stamp = time.strftime("%Y%m%dT%H%M%SZ", time.gmtime())
-    return Path("results") / f"{name}-sweep-{stamp}"
+    return Path("results") / f"{safe_folder_name(name)}-sweep-{stamp}"

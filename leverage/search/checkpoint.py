@@ -6,10 +6,16 @@ on disk is always a whole checkpoint, whenever the process is stopped or killed.
 ``Checkpointer`` also forces the file to the disk (fsync) at most every
 ``SYNC_EVERY_S`` seconds and after the last evolution: an fsync costs about 7 ms
 here, a quarter of a demo evolution, and only an operating-system crash (not a
-killed run) could lose the unsynced last seconds. Format: a Python pickle
-(protocol 4) of a dict
+killed run) could lose the unsynced last seconds. Format: one header line
 
-- ``format``: ``"leverage-checkpoint/1"``;
+    leverage-checkpoint/2 sha256=<64 hex digits> bytes=<length>\n
+
+then a Python pickle (protocol 4) of that length and SHA-256 digest. ``load`` checks
+the header, the length and the digest before unpickling anything, so a truncated,
+foreign or bit-flipped file is refused in one line, never resumed to another design;
+then the dict's keys and their types. The dict:
+
+- ``format``: ``"leverage-checkpoint/2"``;
 - ``problem_sha256``, ``problem_name``: the problem text it belongs to;
 - ``settings``: the search settings (``SearchSettings`` fields);
 - ``island_seeds``: the seeds the islands' populations and algorithms started from;
@@ -24,17 +30,24 @@ killed run) could lose the unsynced last seconds. Format: a Python pickle
 
 A pickle runs code when loaded: only resume from checkpoints you wrote yourself.
 """
+import hashlib
 import pickle
+import re
 import time
-from dataclasses import asdict
+from dataclasses import asdict, fields
 from pathlib import Path
 
 from leverage.errors import NO_VALUE, ProblemError
 from leverage.fileio import write_bytes_atomic
-from leverage.search.single import island_seed
+from leverage.search.single import SearchSettings, island_seed
 
 FILE_NAME = "checkpoint.pickle"
-FORMAT = "leverage-checkpoint/1"
+FORMAT = "leverage-checkpoint/2"
+_HEADER = re.compile(rb"leverage-checkpoint/(\d+) sha256=([0-9a-f]{64}) bytes=(\d+)\n")
+# Keys a checkpoint must hold, with their types (checked before any is used).
+REQUIRED_KEYS = {"format": str, "problem_sha256": str, "problem_name": str, "settings": dict,
+                 "island_seeds": list, "search_class": str, "state": object,
+                 "elapsed_s": (int, float)}
 SYNC_EVERY_S = 10.0
 
 
@@ -58,8 +71,15 @@ def save(folder, problem, settings, search, sync: bool = True) -> Path:
         "saved_utc": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()),
     }
     path = Path(folder) / FILE_NAME
-    write_bytes_atomic(path, pickle.dumps(data, protocol=4), sync)
+    write_bytes_atomic(path, encode(data), sync)
     return path
+
+
+def encode(data: dict) -> bytes:
+    """The file's bytes: the header line (format, SHA-256, length) and the pickle."""
+    body = pickle.dumps(data, protocol=4)
+    head = f"{FORMAT} sha256={hashlib.sha256(body).hexdigest()} bytes={len(body)}\n"
+    return head.encode("ascii") + body
 
 
 class Checkpointer:
@@ -87,13 +107,46 @@ def load(folder) -> dict:
         raise ProblemError(str(folder), "", NO_VALUE,
                            f"no {FILE_NAME} here: not a run folder this version can resume")
     try:
-        data = pickle.loads(path.read_bytes())
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise ProblemError(str(path), "", NO_VALUE,
+                           f"unreadable checkpoint ({exc.strerror or exc})") from None
+    head = _HEADER.match(raw[:200])
+    if head is None:
+        raise ProblemError(str(path), "", NO_VALUE,
+                           f"unreadable checkpoint: not a {FORMAT} file (no header with a "
+                           "checksum; written by another program or an older version)")
+    if int(head.group(1)) != int(FORMAT.rsplit("/", 1)[1]):
+        raise ProblemError(str(path), "format", f"leverage-checkpoint/{int(head.group(1))}",
+                           f"unreadable checkpoint: this version reads {FORMAT}")
+    body = raw[head.end():]
+    if len(body) != int(head.group(3)) or hashlib.sha256(body).hexdigest() != \
+            head.group(2).decode("ascii"):
+        raise ProblemError(str(path), "", NO_VALUE,
+                           f"damaged checkpoint: {len(body):,} bytes whose SHA-256 does not "
+                           f"match its header ({int(head.group(3)):,} bytes); not resumed")
+    try:
+        data = pickle.loads(body)
     except Exception as exc:
-        raise ProblemError(str(path), "", NO_VALUE, f"unreadable checkpoint ({exc})") from None
+        raise ProblemError(str(path), "", NO_VALUE,
+                           f"unreadable checkpoint ({type(exc).__name__}: {exc})") from None
     if not isinstance(data, dict) or data.get("format") != FORMAT:
         raise ProblemError(str(path), "format", data.get("format", NO_VALUE)
                            if isinstance(data, dict) else NO_VALUE,
                            f"not a {FORMAT} checkpoint")
+    for key, kind in REQUIRED_KEYS.items():
+        if key not in data:
+            raise ProblemError(str(path), key, NO_VALUE, "missing from the checkpoint")
+        if not isinstance(data[key], kind):
+            raise ProblemError(str(path), key, data[key], "has the wrong type")
+    missing = [f.name for f in fields(SearchSettings) if f.name not in data["settings"]]
+    if missing:
+        raise ProblemError(str(path), f"settings.{missing[0]}", NO_VALUE,
+                           "missing from the checkpoint's search settings")
+    state = data["state"]
+    if not all(hasattr(state, a) for a in ("evolution", "evaluations", "history")):
+        raise ProblemError(str(path), "state", NO_VALUE,
+                           "is not a search state (no evolution, evaluations, history)")
     return data
 
 
@@ -101,6 +154,7 @@ def restore(search, data: dict) -> None:
     """Put a loaded checkpoint's state into a freshly made search of the same class."""
     kind = f"{type(search).__module__}.{type(search).__qualname__}"
     if kind != data["search_class"]:
-        raise ValueError(f"checkpoint was written by {data['search_class']}, not {kind}")
+        raise ProblemError(FILE_NAME, "search_class", data["search_class"],
+                           f"the checkpoint was written by another search than {kind}")
     search.state = data["state"]
     search.start_time = time.monotonic() - float(data["elapsed_s"])

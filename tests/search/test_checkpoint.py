@@ -93,7 +93,7 @@ def test_load_refuses_missing_and_foreign_files(tmp_path):
         checkpoint.load(tmp_path)
     assert "\n" not in str(err.value)
     (tmp_path / checkpoint.FILE_NAME).write_bytes(pickle.dumps({"format": "something else"}))
-    with pytest.raises(ProblemError, match="not a leverage-checkpoint/1 checkpoint"):
+    with pytest.raises(ProblemError, match="not a leverage-checkpoint/2 file"):
         checkpoint.load(tmp_path)
 
 

@@ -242,9 +242,10 @@ def _png_whole(path: Path) -> bool:
 
 def test_disk_full_during_pictures_keeps_the_design_and_no_partial_png(tmp_path):
     out = tmp_path / "run"
-    proc = subprocess.run([sys.executable, "-m", "leverage", "run", str(DEMO), "--out", str(out),
-                           *SMALL], env=ENV, capture_output=True, text=True,
-                          preexec_fn=_limit(100_000), timeout=120)
+    driver = tmp_path / "fill.py"
+    driver.write_text(FILL_AT_PICTURES.format(root=str(ROOT)))
+    proc = subprocess.run([sys.executable, str(driver), "run", str(DEMO), "--out", str(out),
+                           *SMALL], env=ENV, capture_output=True, text=True, timeout=120)
     assert proc.returncode == EXIT_CANNOT_WRITE, proc.stderr
     assert "Traceback" not in proc.stderr
     last = proc.stderr.strip().splitlines()[-1]
@@ -260,6 +261,18 @@ import os, resource, signal, sys, time
 sys.path.insert(0, {root!r})
 from leverage.cli import main
 """
+
+FILL_AT_PICTURES = DRIVER_HEAD + """
+from leverage.run import afterrun
+real = afterrun.pictures_and_verification
+def pictures_and_verification(*args, **kwargs):
+    # the disk fills once the search's files are written: a PNG is the first casualty
+    resource.setrlimit(resource.RLIMIT_FSIZE, (100_000, resource.RLIM_INFINITY))
+    return real(*args, **kwargs)
+afterrun.pictures_and_verification = pictures_and_verification
+sys.exit(main(sys.argv[1:]))
+"""
+
 
 FILL_MID_SEARCH = DRIVER_HEAD + """
 from leverage.search import checkpoint

@@ -249,12 +249,13 @@ EPHEMERIS_NAMES = {"mean_elements": "Standish mean elements (JPL, Table 1)",
                    "de423": "JPL DE423 (de423 package, read with jplephem)"}
 
 
-def _span_days(values: dict) -> tuple:
-    """(first, last) TDB days past J2000 any leg of the problem can reach."""
+def _span_days(values: dict, with_target: bool = True) -> tuple:
+    """(first, last) TDB days past J2000 the launch window and loops (and the target
+    leg) can reach."""
     launch, loop, target = values["launch"], values["loop"], values.get("target")
     first = times.tdb_days(launch["window_open_utc"])
     last = times.tdb_days(launch["window_close_utc"]) + loop["duration_days"][1]
-    if target is not None:
+    if target is not None and with_target:
         last += target["leg_duration_days"][1]
     return first, last
 
@@ -292,8 +293,11 @@ def _resolve_ephemeris(source: str, values: dict) -> None:
     refuse dates outside the chosen ephemeris in one line naming the key and the span."""
     eph = values["ephemeris"]
     asked = eph["source"]
-    first, last = _span_days(values)
+    # auto chooses for every leg; an ephemeris named outright is checked here for the
+    # launch window and loops (problem.sense names a target leg that leaves it).
+    first, last = _span_days(values, with_target=asked == "auto")
     dates = f"{times.utc_date(first * times.DAY_S)} .. {times.utc_date(last * times.DAY_S)}"
+    legs = "launch window plus the longest loop" + (" and leg" if asked == "auto" else "")
 
     def fits(name):
         lo, hi = (times.tdb_days(d) for d in EPHEMERIS_SPANS_UTC[name])
@@ -319,16 +323,15 @@ def _resolve_ephemeris(source: str, values: dict) -> None:
         choice = next((n for n in ("de421", "de423") if fits(n)), None)
         if choice is None:
             raise ProblemError(source, "[ephemeris] source", asked,
-                               f"the problem's dates ({dates}, launch window plus the longest "
-                               "loop and leg) leave every bundled DE span (DE421 1900-2050, "
+                               f"the problem's dates ({dates}, {legs}) leave every bundled DE "
+                               "span (DE421 1900-2050, "
                                "DE423 1800-2200); name an SPK file or ask for mean_elements")
         eph["used"] = choice
         return
     if not fits(asked):
         span = " .. ".join(EPHEMERIS_SPANS_UTC[asked])
         raise ProblemError(source, "[ephemeris] source", asked,
-                           f"the problem's dates ({dates}, launch window plus the longest "
-                           f"loop and leg) leave its span ({span})")
+                           f"the problem's dates ({dates}, {legs}) leave its span ({span})")
     eph["used"] = asked
 
 

@@ -35,9 +35,10 @@ def add_parser(sub):
                     "converged, 2 bad input, 6 not converged (the best attempt is still "
                     "written, marked \"not converged\"), 130 interrupted (nothing written).")
     p.add_argument("results", help="result folder (with best.json and problem.toml)")
-    p.add_argument("--parking-altitude-km", type=float, default=200.0,
+    p.add_argument("--parking-altitude-km", type=float, default=None,
                    help="altitude of the departure hyperbola's periapsis above the "
-                        "equatorial radius (km; default 200, common practice 185-200)")
+                        "equatorial radius (km; default: the problem's [launch] "
+                        "parking_altitude_km, 200 unless set; common practice 185-200)")
     p.add_argument("--max-steps", type=int, default=25,
                    help="most trust-region optimisation steps (default 25)")
     return p
@@ -49,17 +50,19 @@ def _say(line):
 
 def main(args) -> int:
     folder = Path(args.results)
-    if not 0.0 < args.parking_altitude_km < 100_000.0:
+    if args.parking_altitude_km is not None and not 0.0 < args.parking_altitude_km < 100_000.0:
         raise ProblemError("command line", "--parking-altitude-km", args.parking_altitude_km,
                            "must be between 0 and 100000 km")
     check_folder(folder)
     record = load_record(folder)
     check_record(record, str(folder / "best.json"))
     limits = read_limits(folder)
+    parking_km = (limits.parking_altitude_km if args.parking_altitude_km is None
+                  else args.parking_altitude_km)
     started = time.monotonic()
     try:
         de = De421()
-        refiner = Refiner(record, limits, de, Ias15(de), args.parking_altitude_km,
+        refiner = Refiner(record, limits, de, Ias15(de), parking_km,
                           progress=lambda line: _say(f"refine: {line}"))
         best, missed = refiner.solve(max_outer=args.max_steps)
         _say("refine: cross-checking with DOP853")

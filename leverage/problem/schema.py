@@ -87,6 +87,9 @@ KEYS = [
     Key("launch", "out_of_plane_angle_deg", "range", [-90.0, 90.0],
         "Launch direction searched out of the body's orbit plane, toward its orbit normal (deg).",
         minimum=-90.0, maximum=90.0),
+    Key("launch", "parking_altitude_km", "number", 200.0,
+        "Parking-orbit altitude of the departure hyperbola's periapsis, used by leverage "
+        "refine (km; 185-200 km is common practice).", minimum=50.0, maximum=100_000.0),
     Key("loop", "duration_days", "range", REQUIRED,
         "Launch to return flyby (days).", minimum=1.0, example=[700.0, 800.0]),
     Key("loop", "dsm_fraction", "range", [0.05, 0.95],

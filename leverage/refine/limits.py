@@ -37,6 +37,7 @@ class Limits:
     max_arrival_vinf_km_s: float | None
     powered_flyby: bool
     arrival_burn: bool
+    parking_altitude_km: float = 200.0
 
 
 def _positive_or_none(value):
@@ -82,6 +83,7 @@ def read_limits(result_dir) -> Limits:
         max_arrival_vinf_km_s=None if arrival is None else arrival - m["arrival_vinf_km_s"],
         powered_flyby=bool(t is not None and t["flyby"] == "powered"),
         arrival_burn=bool(t is not None and t["arrival_burn"]),
+        parking_altitude_km=float(v["launch"]["parking_altitude_km"]),
     )
 
 

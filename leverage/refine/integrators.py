@@ -42,6 +42,7 @@ DOP853_RTOL = 1e-12
 DOP853_ATOL_KM = 1e-6
 DOP853_ATOL_KM_S = 1e-12
 TABLE_STEP_S = 21600.0
+IAS15_MIN_DT_S = 1.0
 IAS15_EPSILON = 1e-9  # REBOUND's default; IAS15 then keeps errors at round-off level
 
 
@@ -64,6 +65,11 @@ class Ias15:
         sim.G = 1.0
         sim.integrator = "ias15"
         sim.integrator.epsilon = IAS15_EPSILON
+        # A trial step of the solver can aim the spacecraft through a planet's centre,
+        # where IAS15's step would shrink without end (seen: one least_squares
+        # evaluation ran for minutes). One second is far below the steps of any real
+        # arc here (minutes at a 200 km periapsis), so real arcs are untouched.
+        sim.integrator.min_dt = IAS15_MIN_DT_S
         sim.exit_max_distance = 0  # never stop on distance
         r, v = self.de.states(t0)
         n = len(self.de.gm)

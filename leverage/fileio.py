@@ -71,6 +71,15 @@ def read_json(path) -> dict:
                       parse_constant=_no_constant, parse_float=_finite_float)
 
 
+def load_refined(folder) -> dict | None:
+    """The ``refined/refined.json`` of a result folder (``leverage refine``), or None."""
+    path = Path(folder) / "refined" / "refined.json"
+    try:
+        return read_json(path) if path.is_file() else None
+    except (OSError, ValueError):
+        return None
+
+
 def load_record(folder) -> dict:
     """The design record of a result folder; a one-line ProblemError for anything that is
     not a readable, finite, reasonably sized JSON object."""

@@ -2,9 +2,9 @@
 from pathlib import Path
 
 from leverage.errors import NO_VALUE, ProblemError
-from leverage.fileio import load_record
+from leverage.fileio import load_record, load_refined
 from leverage.reports import compare
-from leverage.reports.summary import render
+from leverage.reports.summary import refined_line, render
 
 
 def add_parser(sub):
@@ -21,7 +21,8 @@ def main(args) -> int:
         # Several folders: one side-by-side table (leverage.compare).
         records = [load_record(folder) for folder in args.results]
         try:
-            text = compare.render(args.results, records)
+            text = compare.render(args.results, records,
+                                  [load_refined(folder) for folder in args.results])
         except (KeyError, TypeError, ValueError, AttributeError) as exc:
             bad = next((f for f, r in zip(args.results, records) if not _renders(r)),
                        args.results[0])
@@ -39,6 +40,7 @@ def main(args) -> int:
                                f"not a leverage result record ({type(exc).__name__}: {exc})"
                                ) from None
         print(text)
+        print(refined_line(load_refined(folder)))
     return 0
 
 

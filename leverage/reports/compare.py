@@ -134,14 +134,21 @@ def setting_differences(folders) -> list:
             if len({repr(t.get(k, "(default)")) for t in tables}) > 1]
 
 
-def render(folders, records) -> str:
-    """The side-by-side text of several result folders."""
+def render(folders, records, refined=None) -> str:
+    """The side-by-side text of several result folders (``refined``: each folder's
+    refined.json or None)."""
     letters = [chr(ord("A") + k) if k < 26 else f"R{k}" for k in range(len(records))]
     lines = [f"leverage comparison of {len(records)} runs", f"  CAUTION: {CAUTION}", ""]
     lines += [f"  {letter} = {folder}" for letter, folder in zip(letters, folders)]
     width = max(28, max(len(label) for label, _ in _rows(records)) + 2)
     lines += ["", " " * width + "".join(f"{letter:>{COL}}" for letter in letters)]
-    for label, cells in _rows(records):
+    rows = _rows(records)
+    if refined and any(refined):
+        rows.append(("refined DSM (km/s)", [
+            "not yet" if r is None else
+            f"{r.get('derived', {}).get('dsm', {}).get('value', float('nan')):.4f}"
+            + ("" if r.get("status") == "converged" else " !") for r in refined]))
+    for label, cells in rows:
         lines.append((f"{label:<{width}}" + "".join(f"{c:>{COL}}" for c in cells)).rstrip())
     diffs = setting_differences(folders)
     lines += ["", "problem-file settings that differ" if diffs else

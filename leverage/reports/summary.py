@@ -104,6 +104,19 @@ def limit_lines(record) -> list[str]:
     return lines
 
 
+def refined_line(refined) -> str:
+    """One line on a result's n-body refinement (``refined/refined.json``), or how to
+    make one."""
+    if refined is None:
+        return "refined   not yet (leverage refine RESULT_DIR converges it in an n-body model)"
+    dsm = refined.get("derived", {}).get("dsm", {})
+    before, after = dsm.get("patched_conic"), dsm.get("value")
+    change = ""
+    if isinstance(before, (int, float)) and isinstance(after, (int, float)):
+        change = (f"; DSM {before:.4f} -> {after:.4f} km/s ({(after - before) * 1e3:+.1f} m/s)")
+    return f"refined   {refined.get('status', '?')} in an n-body model{change}; see refined/"
+
+
 def render(record) -> str:
     """The summary text of a result record."""
     p = record["problem"]

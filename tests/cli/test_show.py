@@ -70,7 +70,9 @@ def test_several_folders_side_by_side(folders, capsys):
 def test_one_folder_keeps_the_full_summary(folders, capsys):
     a, _ = folders
     text = _table(capsys, a)
-    assert text.strip() == summary_render(read_json(a / "best.json")).strip()
+    summary, _, last = text.strip().rpartition("\n")
+    assert summary.strip() == summary_render(read_json(a / "best.json")).strip()
+    assert last.startswith("refined   ")
 
 
 def test_same_problem_files_say_so(folders):
@@ -85,3 +87,22 @@ def test_a_folder_without_best_json_is_a_one_line_error(folders, tmp_path, capsy
     assert main(["show", str(a), str(tmp_path)]) == 2
     err = capsys.readouterr().err.strip()
     assert "no best.json here" in err and len(err.splitlines()) == 1
+
+
+def test_show_says_whether_a_result_was_refined(folders, capsys, tmp_path):
+    a, _ = folders
+    folder = tmp_path / "refined-run"
+    shutil.copytree(a, folder)
+    assert main(["show", str(folder)]) == 0
+    assert "refined   not yet (leverage refine RESULT_DIR" in capsys.readouterr().out
+    (folder / "refined").mkdir()
+    (folder / "refined" / "refined.json").write_text(json.dumps(
+        {"status": "converged", "derived": {"dsm": {"value": 0.8011, "unit": "km/s",
+                                                    "patched_conic": 0.8112}}}))
+    assert main(["show", str(folder)]) == 0
+    out = capsys.readouterr().out
+    assert "refined   converged in an n-body model; DSM 0.8112 -> 0.8011 km/s (-10.1 m/s)" in out
+    assert main(["show", str(folder), str(a)]) == 0
+    row = next(ln for ln in capsys.readouterr().out.splitlines()
+               if ln.startswith("refined DSM (km/s)"))
+    assert row.split()[-2:] == ["0.8011", "not"] or row.endswith("not yet")

@@ -5,7 +5,9 @@ T = a_b/a + 2 cos i sqrt(a (1 - e^2)/a_b), and v_inf = V_b sqrt(3 - T) (the Tiss
 relation used in gravity-assist design, e.g. Strange and Longuski 2002, J. Spacecraft
 and Rockets 39(1); from memory): with no DSM the return v-infinity equals the launch
 v-infinity. The turn limit 2 asin(1/(1 + r_p v^2/mu)) (Curtis, Orbital Mechanics for
-Engineering Students, sec. 8.9; from memory). The problems are the invented demo
+Engineering Students, sec. 8.9; from memory). The return v-infinity after a tangential
+burn at an apsis is also computed from vis-viva and angular momentum alone (Curtis
+secs. 2.4, 2.8), independently of Tisserand's relation. The problems are the invented demo
 (problems/demo.toml) and goals made impossible by construction from it.
 """
 import json
@@ -72,3 +74,35 @@ def test_reachable_goal_is_then_reached(demo_path, tmp_path):
     assert outcome.status == "complete" and outcome.feasible and record["feasible"]
     # The screen ignores phasing: its DSM estimate is optimistic, never above the search's.
     assert result.min_dsm_kms <= record["derived"]["dsm"]["value"]
+
+
+def _return_vinf_by_vis_viva(v0, dv, at_aphelion, sign):
+    """Return v-infinity (units of the body's circular speed) after a tangential launch
+    at r = 1 with v-infinity v0 and a tangential burn sign*dv at perihelion or aphelion,
+    from vis-viva and the conservation of angular momentum only (Curtis, Orbital
+    Mechanics for Engineering Students, secs. 2.4 and 2.8; from memory) - no Tisserand."""
+    h0 = 1.0 + v0                              # perihelion speed at r = 1 (mu = 1)
+    a0 = 1.0 / (2.0 - h0 * h0)
+    r = 2.0 * a0 - 1.0 if at_aphelion else 1.0
+    v = h0 / r + sign * dv                     # speed after the burn, tangential
+    h = r * v
+    speed2 = v * v + 2.0 * (1.0 / 1.0 - 1.0 / r)   # energy: at r = 1
+    vr2 = speed2 - h * h                       # radial part squared at r = 1
+    if vr2 < 0.0:
+        return None                            # the new orbit does not reach r = 1
+    return float(np.sqrt((h - 1.0) ** 2 + vr2))
+
+
+@pytest.mark.parametrize("v0_kms, dv_kms", [(5.2, 0.3), (4.0, 0.5), (3.0, 1.0)])
+def test_return_vinf_after_an_apsis_dsm_matches_vis_viva(demo_path, v0_kms, dv_kms):
+    """The screen's Tisserand relation against an independent vis-viva computation, for
+    the one launch sample tangential along the body's velocity: each apsis, each sense."""
+    model = _Model(load_problem(demo_path))
+    model.v_launch = np.array([v0_kms / model.v_b])
+    model.pump = np.array([0.0])
+    w, vt, vr, v0 = model.returns(dv_kms)
+    expected = [_return_vinf_by_vis_viva(v0_kms / model.v_b, dv_kms / model.v_b, apo, sign)
+                for apo in (False, True) for sign in (1.0, -1.0)]
+    expected = sorted(e for e in expected if e is not None)
+    assert len(expected) >= 3
+    np.testing.assert_allclose(sorted(w), expected, rtol=1e-12)

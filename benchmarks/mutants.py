@@ -120,9 +120,9 @@ MUTANTS = (
            ("tests/problem/test_vehicle.py",),
            "rocket equation without g0 (units)"),
     Mutant("dates-in-utc-not-tdb", "leverage/astro/times.py",
-           "t = to_time(value, scale).tdb", "t = to_time(value, scale).tt",
+           "t = to_time(value, scale).tdb", "t = to_time(value, scale).utc",
            ("tests/astro/test_times.py",),
-           "calendar dates converted to TT instead of TDB (a time-scale mix-up)"),
+           "calendar dates counted in UTC instead of TDB (a 69 s time-scale mix-up)"),
 )
 SMOKE = "screen-dsm-doubled"
 

@@ -55,3 +55,11 @@ def test_search_quality_smoke():
 def test_startup_smoke():
     out = smoke("startup")
     assert "to first evaluation" in out
+
+
+@pytest.mark.slow
+def test_mutants_smoke():
+    """One mutant in a temporary copy: the clean copy passes, the mutant is caught."""
+    out = smoke("mutants")
+    assert "unmutated copy, 1 test file(s) or test(s): exit 0" in out
+    assert "turn-angle-half" in out and "caught 1 of 1" in out

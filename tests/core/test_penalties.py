@@ -5,7 +5,9 @@ Outside sources: none numeric. The checks are the properties the model promises
 and penalties"): the margin penalty v + v^2, v = -m/s, is zero iff m >= 0 and grows
 with the violation, and over random decision vectors of the demo problem
 (problems/demo.toml, an invented scenario) the total penalty in q is zero exactly
-when every margin slot is >= 0.
+when every margin slot is >= 0. The penalty's size inside the objective is compared with
+an independent re-implementation (benchmarks/unit_aware_baseline.py) in
+tests/core/test_unit_aware.py.
 """
 import math
 from pathlib import Path

@@ -2,7 +2,8 @@
 
 Outside sources (each problem file in tests/run/published/ names its own in its header):
 
-1. Juno's flown Earth leveraging loop (NASA/JPL press releases, read, not from memory):
+1. Juno's flown Earth leveraging loop (read, not from memory; NASA/JPL releases, and a
+   secondary page quoting mission reporting for the orbits and C3, see the file header):
    DSM-1 344 m/s + DSM-2 388 m/s = 732 m/s; heliocentric orbit 0.88 x 2.26 au before
    the 2013-10-09 Earth flyby and 0.98 x 5.44 au after it. ``juno_earth_loop.toml`` fixes
    what the mission fixed (launch day and C3, flyby date, minimum flyby altitude, Jupiter
@@ -78,7 +79,7 @@ def test_juno_least_dsm_matches_the_flown_dsms(juno):
     arrival geometry at Jupiter or on the flyby's B-plane (Juno's flyby also set up its
     polar arrival), so ours may be a little below the flown total; splitting one burn
     into two along nearly the same direction costs little, and DSM-2 flown 10 days late
-    cost ~2 m/s (planned 345 + 385 m/s). Measured: 0.7159 km/s (seeds 1-3: 0.7153-0.7159),
+    cost ~2 m/s (planned 345 + 385 m/s, secondary page). Measured: 0.7159 km/s (seeds 1-3: 0.7153-0.7159),
     0.016 below the flown total. Tolerance 0.05 km/s (7%, 3x the measured difference):
     the model differences above, not the optimizer (its seed scatter is < 0.001 km/s)."""
     _, q = juno

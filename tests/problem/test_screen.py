@@ -11,13 +11,15 @@ secs. 2.4, 2.8), independently of Tisserand's relation. The problems are the inv
 (problems/demo.toml) and goals made impossible by construction from it.
 """
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
 
 from leverage.problem.load import load_problem
 from leverage.problem.screen import _Model, screen
-from leverage.run.runner import Progress, run, settings_from
+
+ROOT = Path(__file__).resolve().parents[2]
 
 
 def edited(demo_path, tmp_path, replacements, extra=""):
@@ -63,17 +65,19 @@ def test_unreachable_inclination_beyond_one_turn(demo_path, tmp_path):
 
 
 @pytest.mark.slow
-def test_reachable_goal_is_then_reached(demo_path, tmp_path):
+def test_reachable_goal_is_then_reached(demo_path, demo_result):
+    """The session's demo run (tests/conftest.py, shared with the report tests) reaches a
+    feasible design, and the screen's DSM estimate is below the demo's best-known DSM
+    (benchmarks/best_known.json: a dense launch-date x loop grid, every point polished,
+    0.813 km/s), since the screen ignores phasing and is optimistic by design."""
     problem = load_problem(demo_path)
     result = screen(problem)
     assert result.verdict == "reachable"
-    settings = settings_from(problem)
-    outcome = run(problem, settings, tmp_path / "run", Progress(1, enabled=False),
-               echo=lambda *a: None)
-    record = json.loads((tmp_path / "run" / "best.json").read_text())
-    assert outcome.status == "complete" and outcome.feasible and record["feasible"]
-    # The screen ignores phasing: its DSM estimate is optimistic, never above the search's.
-    assert result.min_dsm_kms <= record["derived"]["dsm"]["value"]
+    record = json.loads((demo_result / "best.json").read_text())
+    assert record["status"] == "complete" and record["feasible"]
+    known = json.loads((ROOT / "benchmarks" / "best_known.json").read_text())["demo"]
+    assert known["sha256"] == problem.sha256 and known["feasible"]
+    assert result.min_dsm_kms <= known["total_dv_km_s"]
 
 
 def _return_vinf_by_vis_viva(v0, dv, at_aphelion, sign):

@@ -21,12 +21,12 @@ def full_size(request) -> bool:
     return request.config.getoption("--full-size")
 
 
-@pytest.fixture
+@pytest.fixture(scope="session")
 def demo_path() -> Path:
     return PROBLEMS / "demo.toml"
 
 
-@pytest.fixture
+@pytest.fixture(scope="session")
 def problems_dir() -> Path:
     return PROBLEMS
 

@@ -25,7 +25,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from leverage.astro import bodies
-from leverage.core.flyby import turn_angle
+from leverage.core.flyby import tisserand, turn_angle
 
 DV_MAX_KMS = 3.0      # largest DSM the screen looks at
 DV_STEP_KMS = 0.02
@@ -120,9 +120,9 @@ class _Model:
                 en_new = 0.5 * v_new * v_new - 1.0 / r_apsis
                 ok = bound & (v_new > 0.0) & (en_new < 0.0)
                 a_new = -0.5 / np.where(ok, en_new, -1.0)
-                p_new = h_new * h_new
-                tisserand = 1.0 / a_new + 2.0 * np.sqrt(np.abs(p_new))  # coplanar, a_b = 1
-                w2 = 3.0 - tisserand
+                e_new = np.sqrt(np.clip(1.0 - h_new * h_new / a_new, 0.0, None))
+                # coplanar (i = 0), lengths in units of a_b
+                w2 = 3.0 - tisserand(1.0, a_new, e_new, np.zeros_like(a_new))
                 vt = h_new - 1.0                   # along-track part of v_inf at r = 1
                 vr2 = w2 - vt * vt                 # >= 0 exactly when the orbit crosses r = 1
                 ok &= (w2 > 0.0) & (vr2 >= -1e-12)

@@ -4,11 +4,9 @@ Outside sources:
 - astropy's built-in ephemeris (``get_body_barycentric_posvel(..., ephemeris=
   'builtin')``, no network): ERFA's epv00 for the Sun and Simon et al. (1994)
   planetary theory plan94 for the planets (heliocentric, mean equator and equinox
-  of J2000). plan94's own maximum errors over 1800-2100 against DE200 are quoted in
-  ERFA's plan94 documentation (used below, in the reference-error budget).
-- E. M. Standish, "Keplerian Elements for Approximate Positions of the Major
-  Planets" (JPL; Explanatory Supplement 1992), error table for Table 1 (1800-2050),
-  quoted from memory: maximum errors in RA ("), Dec ("), distance (1000 km).
+  of J2000). Our mean-element positions and velocities stay within 1.5x (2x for
+  velocity) of the largest differences measured against it over 2000-2050 (see
+  MEASURED for what those numbers are and what this check cannot see).
 - Two-body propagation (leverage.core.kepler, checked in test_kepler.py) for the
   osculating orbits, and the velocity as the time derivative of the position
   (common practice).
@@ -30,35 +28,28 @@ from leverage.core.kepler import propagate
 
 ARCSEC = np.pi / 180.0 / 3600.0
 
-# Standish, Table 1 error table (1800-2050), from memory: RA ("), Dec ("), r (km).
-STANDISH = {
-    "mercury": (15.0, 1.0, 1_000.0),
-    "venus": (20.0, 1.0, 4_000.0),
-    "earth": (20.0, 8.0, 6_000.0),  # Earth-Moon barycentre
-    "mars": (40.0, 2.0, 25_000.0),
-    "jupiter": (400.0, 10.0, 600_000.0),
-    "saturn": (600.0, 25.0, 1_500_000.0),
-    "uranus": (50.0, 2.0, 1_000_000.0),
-    "neptune": (10.0, 1.0, 200_000.0),
+# Largest differences from the reference (plan94) measured over the epochs below
+# (2000-2050): heliocentric angle ("), distance (km), velocity (m/s). The bounds are 1.5x
+# these (angle, distance) and 2x (velocity): a regression check against an outside
+# ephemeris, not a statement of accuracy. For scale: Standish's own error table for
+# Table 1 (1800-2050, quoted from memory) gives 15-600" and 1000-1 500 000 km, but as
+# geocentric RA/Dec, not comparable with a heliocentric angle; and plan94's own errors
+# against DE200 (ERFA documentation) are 7-87" and 500-661 000 km, included in these
+# measurements. The largest terms are the periodic perturbations the mean elements
+# leave out (Mars-Jupiter and Jupiter-Saturn terms) and, beyond Jupiter, the Sun's
+# offset from the barycentre of the interior planets (Jacobi coordinates).
+# What this cannot see: a UTC/TDB mix-up (69 s is 2.8" of the Earth's motion, a sixth of
+# its bound); tests/astro/test_times.py checks the time scales against astropy.
+MEASURED = {  # angle ("), distance (km), velocity (m/s)
+    "mercury": (13.7, 1_293.0, 2.9),
+    "venus": (23.0, 5_424.0, 3.7),
+    "earth": (17.6, 6_277.0, 2.5),  # Earth-Moon barycentre
+    "mars": (103.0, 37_802.0, 11.9),
+    "jupiter": (489.5, 572_337.0, 36.5),
+    "saturn": (592.2, 2_783_712.0, 40.3),
+    "uranus": (101.7, 1_207_071.0, 16.1),
+    "neptune": (61.7, 1_333_360.0, 7.5),
 }
-# ERFA plan94 documentation: maximum differences from DE200 over 1800-2100,
-# longitude ("), latitude ("), radius (km) - the reference's own error.
-PLAN94 = {
-    "mercury": (7.0, 1.0, 500.0),
-    "venus": (7.0, 1.0, 1_100.0),
-    "earth": (9.0, 1.0, 1_300.0),
-    "mars": (26.0, 1.0, 9_000.0),
-    "jupiter": (78.0, 6.0, 82_000.0),
-    "saturn": (87.0, 14.0, 263_000.0),
-    "uranus": (86.0, 7.0, 661_000.0),
-    "neptune": (11.0, 2.0, 248_000.0),
-}
-# Margin on Standish's figures. Measured against plan94 over 2000-2050, Mars's
-# heliocentric longitude departs from Standish's elements by up to ~85" (periodic
-# terms with the 2.2-year Mars-Jupiter synodic period), more than his 40" plus
-# plan94's 26": whether his table refers to a different quantity or is optimistic,
-# a factor 2 on his numbers covers it.
-MARGIN = 2.0
 ASTROPY_NAME = {"earth": "earth-moon-barycenter"}
 
 # A few dozen epochs over 2000-2050 (TDB), at a step (503 d) that is not a multiple
@@ -81,48 +72,30 @@ def reference():
     return out
 
 
-def _interior_offset(reference, name, k):
-    """Distance (km) from the Sun to the barycentre of the Sun and the planets inside
-    ``name``'s orbit at epoch k. A distant planet's orbit is nearly Keplerian about
-    that point (Jacobi coordinates; e.g. Murray & Dermott, Solar System Dynamics,
-    sec. 6.2, from memory), not about the Sun, so a heliocentric fit can miss by
-    up to this much: about 1e6 km for Saturn and beyond, < 1000 km inside Jupiter."""
-    names = list(PLANETS)
-    gm_total = GM_SUN_KM3_S2
-    weighted = GM_SUN_KM3_S2 * reference["sun"][k]
-    for inner in names[:names.index(name)]:
-        gm = PLANETS[inner].gm_km3_s2
-        gm_total += gm
-        weighted = weighted + gm * reference[inner][0][k]
-    return np.linalg.norm(weighted / gm_total - reference["sun"][k])
-
-
 @pytest.mark.parametrize("name", list(PLANETS))
-def test_mean_elements_within_standish_accuracy(reference, name):
+def test_mean_elements_near_plan94(reference, name):
     eph = PLANETS[name].ephemeris_array()
-    std, p94 = STANDISH[name], PLAN94[name]
-    angle_budget = (MARGIN * np.hypot(std[0], std[1]) + np.hypot(p94[0], p94[1])) * ARCSEC
-    radial_budget = MARGIN * std[2] + p94[2]
+    angle_max, radial_max, _ = MEASURED[name]
+    worst_angle = worst_radial = 0.0
     for k, days in enumerate(EPOCH_DAYS):
         r, _ = body_state(eph, days * DAY_S)
         r_ref = equatorial_to_ecliptic(reference[name][2][k])
-        dist = np.linalg.norm(r_ref)
-        offset = _interior_offset(reference, name, k)
-        angle = np.arctan2(np.linalg.norm(np.cross(r, r_ref)), r @ r_ref)
-        assert angle <= angle_budget + offset / dist, (name, days, angle / ARCSEC)
-        assert abs(np.linalg.norm(r) - dist) <= radial_budget + offset, (name, days)
+        angle = np.arctan2(np.linalg.norm(np.cross(r, r_ref)), r @ r_ref) / ARCSEC
+        worst_angle = max(worst_angle, angle)
+        worst_radial = max(worst_radial, abs(np.linalg.norm(r) - np.linalg.norm(r_ref)))
+    assert worst_angle <= 1.5 * angle_max, (name, worst_angle)
+    assert worst_radial <= 1.5 * radial_max, (name, worst_radial)
 
 
 @pytest.mark.parametrize("name", list(PLANETS))
-def test_mean_elements_velocity_loosely(reference, name):
-    # The mean-element velocity is the derivative of the mean-element position; a
-    # loose 1% agreement with the reference's velocity (brief's choice; the worst
-    # measured is ~0.4%, Saturn).
+def test_mean_elements_velocity_near_plan94(reference, name):
+    # The mean-element velocity is the derivative of the mean-element position.
     eph = PLANETS[name].ephemeris_array()
+    bound = 2.0 * MEASURED[name][2] / 1000.0  # km/s
     for k, days in enumerate(EPOCH_DAYS):
         _, v = body_state(eph, days * DAY_S)
         v_ref = equatorial_to_ecliptic(reference[name][3][k])
-        assert np.linalg.norm(v - v_ref) <= 0.01 * np.linalg.norm(v_ref), (name, days)
+        assert np.linalg.norm(v - v_ref) <= bound, (name, days)
 
 
 def test_mean_elements_in_ecliptic_frame():

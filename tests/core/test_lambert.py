@@ -192,10 +192,12 @@ lons = st.floats(0.0, 2.0 * np.pi)
 lats = st.floats(-1.4, 1.4)
 
 
-def _check_lands(r1, r2, tof, revs, prograde, low_path):
+def _check_lands(r1, r2, tof, revs, prograde, low_path, must_solve):
     v1, v2, ok = lambert(MU_EARTH, r1, r2, tof, revs, prograde, low_path)
-    if not ok:
-        return False
+    if must_solve:
+        assert ok
+    else:
+        assume(ok)  # no solution with these revolutions in this time: skipped, not passed
     r, v, pok = propagate(MU_EARTH, r1, v1, tof)
     assert pok
     assert np.linalg.norm(r - r2) <= 1e-6 * np.linalg.norm(r2)
@@ -215,7 +217,7 @@ def test_zero_rev_solution_reaches_r2(ra, lona, lata, rb, lonb, latb, tof, progr
     sin_angle = np.linalg.norm(np.cross(r1, r2)) / (ra * rb)
     assume(sin_angle > 0.05)
     # Izzo's M = 0 branch exists for every positive time of flight.
-    assert _check_lands(r1, r2, tof, 0, prograde, True)
+    assert _check_lands(r1, r2, tof, 0, prograde, True, must_solve=True)
 
 
 @settings(deadline=None, max_examples=40)
@@ -226,4 +228,4 @@ def test_one_rev_solution_reaches_r2_when_ok(ra, lona, lata, rb, lonb, latb, tof
     r1, r2 = _vector(ra, lona, lata), _vector(rb, lonb, latb)
     sin_angle = np.linalg.norm(np.cross(r1, r2)) / (ra * rb)
     assume(sin_angle > 0.05)
-    _check_lands(r1, r2, tof, 1, prograde, low_path)
+    _check_lands(r1, r2, tof, 1, prograde, low_path, must_solve=False)

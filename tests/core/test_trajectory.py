@@ -122,9 +122,10 @@ def test_identities_of_one_evaluation(u, revs):
     np.testing.assert_allclose(vec(q, L.Q_V_BODY_FLYBY), vb2, rtol=0, atol=1e-12)
     r2p, v2p, ok = propagate(MU_SUN, vec(q, L.Q_R_DSM), vec(q, L.Q_V_DSM_AFTER), t2 - t1)
     assert ok
-    # Izzo's solver stops at a relative tolerance; 1e-6 of 1 au is 150 km at most.
-    assert np.linalg.norm(r2p - r2) < 1e-6 * np.linalg.norm(r2) + 1.0
-    np.testing.assert_allclose(v2p, vec(q, L.Q_V_FLYBY_IN), rtol=0, atol=1e-6 * 30)
+    # Izzo's solver stops at a 1e-10 relative tolerance; measured over 1500 random demo
+    # points: landing within 6e-6 km (6 mm), arrival velocity within 1.1e-12 km/s.
+    assert np.linalg.norm(r2p - r2) < 5e-5  # km
+    np.testing.assert_allclose(v2p, vec(q, L.Q_V_FLYBY_IN), rtol=0, atol=1e-11)
 
     # Flyby: |v_inf in| as stored, gain = in - launch, |v_inf out| = |v_inf in|.
     vin = vec(q, L.Q_V_FLYBY_IN) - vb2
@@ -171,17 +172,18 @@ def _two_body(t, y):
 ])
 def test_coast_and_arc_agree_with_an_independent_integrator(u):
     """scipy DOP853 from the stored launch state reaches the stored DSM point, and from
-    the stored post-DSM state reaches the body at the flyby (to ~1 km over ~2 years)."""
+    the stored post-DSM state reaches the body at the flyby. Measured: within 2.4 m and
+    10 m over ~2 years, the integrator's own error at rtol 1e-12; bounds 10x that."""
     _, p, q = demo_point(u)
     assert q[L.Q_OK] == 1.0
     t0, t1, t2 = q[L.Q_T_LAUNCH], q[L.Q_T_DSM], q[L.Q_T_FLYBY]
     y0 = np.concatenate([vec(q, L.Q_R_LAUNCH), vec(q, L.Q_V_LAUNCH)])
     sol = solve_ivp(_two_body, (t0, t1), y0, method="DOP853", rtol=1e-12, atol=1e-6)
-    assert np.linalg.norm(sol.y[:3, -1] - vec(q, L.Q_R_DSM)) < 1.0  # km
+    assert np.linalg.norm(sol.y[:3, -1] - vec(q, L.Q_R_DSM)) < 0.025  # km
     y1 = np.concatenate([vec(q, L.Q_R_DSM), vec(q, L.Q_V_DSM_AFTER)])
     sol = solve_ivp(_two_body, (t1, t2), y1, method="DOP853", rtol=1e-12, atol=1e-6)
     r2, _ = body_state_in(p, L.P_BODY_EPH, t2)
-    assert np.linalg.norm(sol.y[:3, -1] - r2) < 2.0  # km
+    assert np.linalg.norm(sol.y[:3, -1] - r2) < 0.1  # km
 
 
 # ------------------------------------------------- a zero DSM by construction

@@ -126,6 +126,27 @@ def test_known_target_needs_no_extra_burn(tmp_path, demo_path, flyby):
         assert q[L.Q_MARGIN_VINF_MATCH_KMS] == math.inf
 
 
+@pytest.mark.parametrize("flyby", ["unpowered", "powered"])
+def test_a_target_flyby_below_the_minimum_altitude_is_penalised(tmp_path, demo_path, flyby):
+    """The known design flies by at ~3797 km; with a 5000 km minimum the same design
+    violates it by ~1203 km: margin = altitude - minimum (not periapsis radius - minimum,
+    which would be ~5175 km and hold), costing at least weight * (v + v^2), v = 1203/100.
+    Earth's equatorial radius 6378.1 km: IAU 2015 Resolution B3 nominal value (from
+    memory), so altitude = periapsis radius - 6378.1 km."""
+    path, q_loop = known_target_file(tmp_path, demo_path, flyby)
+    path.write_text(path.read_text().replace("min_altitude_km = 300.0", "min_altitude_km = 5000.0"))
+    udp = LeveragingUDP.from_compiled(load_problem(path).compile())
+    q = udp.details(np.append(LOOP_X[:6], LEG_DAYS))
+    assert q[L.Q_ALT] == pytest.approx(q[L.Q_RP] - 6378.1, abs=1e-6)
+    assert q[L.Q_ALT] == pytest.approx(q_loop[L.Q_ALT], abs=1e-3)
+    margin = q[L.Q_ALT] - 5000.0
+    assert -1300.0 < margin < -1100.0
+    assert q[L.Q_MARGIN_ALT_KM] == pytest.approx(margin, abs=1e-6)
+    v = -margin / 100.0  # the altitude margin's scale (leverage.core.penalties, 100 km)
+    # penalty_weight 10; the turn limit (the turn reachable at 5000 km) fails as well.
+    assert q[L.Q_PENALTY] >= 10.0 * (v + v * v) * (1.0 - 1e-12)
+
+
 def test_speed_mismatch_is_a_burn_when_powered_and_a_violation_when_not(tmp_path, demo_path):
     x = np.append(LOOP_X[:6], LEG_DAYS)
     x[L.X_DSM_FRACTION] = 0.4  # another DSM: the incoming speed changes, the leg does not

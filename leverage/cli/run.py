@@ -10,7 +10,7 @@ from leverage.run.lock import folder_lock
 from leverage.run.runner import Progress, evolver_for, resumed_settings, run, settings_from
 from leverage.search import checkpoint
 
-from . import EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_NOT_VERIFIED, EXIT_OK
+from . import EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_NOT_VERIFIED, EXIT_OK, print_warnings
 from .options import add_search_options, search_overrides
 from .parallel import add_parallel_options, workers_option
 
@@ -77,6 +77,7 @@ def exit_code(outcome, quiet: bool = False) -> int:
 
 def main(args) -> int:
     problem = load_problem(args.problem)
+    print_warnings(problem)
     workers = workers_option(args)
     if args.resume:
         check_writable(args.resume, create=False)  # a read-only folder: one line, no work

@@ -20,7 +20,7 @@ import tomli
 from leverage.astro import bodies, times
 from leverage.core import layout as L
 from leverage.errors import NO_VALUE, ProblemError
-from leverage.problem import sense
+from leverage.problem import plausibility, sense
 from leverage.problem.schema import FRONT_ALGORITHMS, OPTIONAL_SECTIONS, REQUIRED, keys_by_section
 from leverage.problem.target import Target, arrival_window_s, target_from_values
 from leverage.problem.vehicle import LaunchVehicle, vehicle_from_values
@@ -38,6 +38,8 @@ class Problem:
     extra: dict = field(default_factory=dict)
     target: Target | None = None          # [target] section, if any
     vehicle: LaunchVehicle | None = None  # [vehicle] section, if any
+    # Values that look like a slip of units (problem.plausibility): warnings, not refusals.
+    warnings: list = field(default_factory=list)
 
     def get(self, section: str, key: str):
         return self.values[section][key]
@@ -459,6 +461,21 @@ def load_problem_text(text: str, source: str = "<text>", name: str = "problem") 
 
 def _problem(source: str, text: str, table: dict, stem: str) -> Problem:
     values = validate(source, table)
+    slips = plausibility.warnings(values)
+    try:
+        problem = _checked_problem(source, text, values, stem)
+    except ProblemError as exc:
+        # A slip of units often breaks a limit of sense first: say what it likely is.
+        slip = next((s for s in slips if s.key == exc.key), None)
+        if slip is None:
+            raise
+        raise ProblemError(exc.source, exc.key, exc.value,
+                           f"{exc.reason} ({slip.hint})") from None
+    problem.warnings = slips
+    return problem
+
+
+def _checked_problem(source: str, text: str, values: dict, stem: str) -> Problem:
     body = bodies.planet(values["body"]["name"])
     _check_relations(source, values, body)
     target = (target_from_values(source, values["target"])

@@ -1,4 +1,5 @@
 """leverage run PROBLEM: optimise and write a result folder."""
+import shlex
 import sys
 import time
 from pathlib import Path
@@ -54,17 +55,20 @@ def resume_point(args, problem):
     return folder, settings, saved
 
 
-def exit_code(outcome, quiet: bool = False) -> int:
+def exit_code(outcome, problem: str = "PROBLEM") -> int:
     """0 holds in the search model and the verification; 3 complete but no design met
     every limit; 4 the design holds in the search model but breaks a stated limit in the
-    verification (named on stderr); 130 interrupted (with --quiet, which silences the
-    progress note, one line on stderr says so)."""
+    verification (named on stderr); 130 interrupted: one line on stderr says what was
+    kept and, when a checkpoint was written, the command that continues the run."""
     if outcome.status != "complete":
-        if quiet:
-            kept = ("the best design so far is in best.json" if outcome.record
-                    else "nothing written")
-            print(f"leverage: interrupted; {kept}; continue with: leverage run PROBLEM "
-                  f"--resume {outcome.folder}", file=sys.stderr)
+        kept = ("the best design so far is in best.json" if outcome.record
+                else "nothing written")
+        if (Path(outcome.folder) / checkpoint.FILE_NAME).is_file():
+            how = (f"continue with: leverage run {shlex.quote(str(problem))} "
+                   f"--resume {shlex.quote(str(outcome.folder))}")
+        else:
+            how = "no checkpoint yet, nothing to resume; run it again"
+        print(f"leverage: interrupted; {kept}; {how}", file=sys.stderr)
         return EXIT_INTERRUPTED
     if not outcome.feasible:
         return EXIT_INFEASIBLE
@@ -86,7 +90,7 @@ def main(args) -> int:
             evolver = evolver_for(settings, workers, args.cluster)
             return exit_code(run(problem, settings, out,
                                  Progress(settings.evolutions, enabled=not args.quiet),
-                                 evolver=evolver, resume=saved), args.quiet)
+                                 evolver=evolver, resume=saved), args.problem)
     settings = settings_from(problem, search_overrides(args))
     out = Path(args.out) if args.out else default_out(problem.name)
     if out.exists() and not out.is_dir():
@@ -99,4 +103,4 @@ def main(args) -> int:
         evolver = evolver_for(settings, workers, args.cluster)
         return exit_code(run(problem, settings, out,
                              Progress(settings.evolutions, enabled=not args.quiet),
-                             evolver=evolver), args.quiet)
+                             evolver=evolver), args.problem)

@@ -104,6 +104,12 @@ def limit_lines(record) -> list[str]:
     return lines
 
 
+def _count(value, noun: str) -> str:
+    """"1 revolution", "0 revolutions", "2 revolutions"."""
+    n = int(as_float(value))
+    return f"{n} {noun}" if n == 1 else f"{n} {noun}s"
+
+
 def render(record) -> str:
     """The summary text of a result record."""
     p = record["problem"]
@@ -145,8 +151,7 @@ def render(record) -> str:
                                   f"RLA {_d(record, 'rla', 2)}"]),
         "DSM       " + f"{_d(record, 'dsm', 4)}  (radial {_d(record, 'dsm_radial', 4)}, "
         f"along-track {_d(record, 'dsm_along_track', 4)}, normal {_d(record, 'dsm_normal', 4)})",
-        "          " + f"Lambert arc: {int(as_float(record['derived']['lambert_revolutions']['value']))}"
-        f" revolutions, "
+        "          " + f"Lambert arc: {_count(record['derived']['lambert_revolutions']['value'], 'revolution')}, "
         + ("low-path" if as_float(record['derived']['lambert_low_path']['value']) else "high-path")
         + " root",
         "flyby     " + f"altitude {_d(record, 'flyby_altitude', 1)}, turn {_d(record, 'turn_angle', 2)}"

@@ -32,6 +32,7 @@ from leverage.astro import times
 from leverage.core.constants import AU_KM, DAY_S
 from leverage.errors import NO_VALUE, ProblemError
 from leverage.fileio import write_bytes_atomic
+from leverage.record import objective
 from leverage.record.arcs import body_orbit, design_arcs, event_states, target_orbit
 from leverage.record.design import as_float
 
@@ -268,6 +269,7 @@ def convergence(record, folder) -> Picture | None:
                                              for r in rows)
     fig = _new_figure(8.0, 6.4 if has_hv else 4.6)
     artists = {}
+    shown = objective.from_record(record)[0]  # the first objective, as people read it
     with matplotlib.rc_context(STYLE):
         axes = fig.subplots(2 if has_hv else 1, 1, sharex=True, squeeze=False)[:, 0]
         for n, island in enumerate(islands):
@@ -276,7 +278,7 @@ def convergence(record, folder) -> Picture | None:
                         marker=ISLAND_MARKERS[n % len(ISLAND_MARKERS)], ms=4, lw=1.4)
             mine = [r for r in rows if r["island"] == island]
             x = np.array([_float(r["evaluations"]) for r in mine])
-            y = np.array([_float(r["best_objective"]) for r in mine])
+            y = shown.value(np.array([_float(r["best_objective"]) for r in mine]))
             label = f"island {island}" if island.isdigit() else island
             (artists[f"island {island}"],) = axes[0].plot(x, y, label=label, **look)
             if has_hv:
@@ -285,8 +287,8 @@ def convergence(record, folder) -> Picture | None:
         several = len(record.get("objective") or []) > 1
         final = as_float(record["objective"][0]) if record.get("objective") else math.nan
         if math.isfinite(final) and not several:
-            axes[0].axhline(final, color="#555555", lw=0.9, ls=":",
-                            label=f"after polish: {final:.6g}")
+            axes[0].axhline(shown.value(final), color="#555555", lw=0.9, ls=":",
+                            label=f"after polish: {shown.text(final)}")
         axes[-1].set_xlim(left=0)
         per_island = min(sum(r["island"] == i for r in rows) for i in islands)
         if per_island < 3:
@@ -294,14 +296,15 @@ def convergence(record, folder) -> Picture | None:
                          "row per island after each migration interval of "
                          f"{rows[0].get('generations', '?')} generations",
                          transform=axes[0].transAxes, fontsize=8, color="#777777")
-        axes[0].set_ylabel("lowest first objective" if several
-                           else "best objective (lower is better)")
+        best = "best" if not several else "best first objective:"
+        axes[0].set_ylabel(f"{best} {shown.label()}")
         axes[0].set_title(f"{record['problem']['name']}: search progress "
                           f"(goal {record['problem']['goal']}, {record['search']['algorithm']})")
         axes[0].legend()
         if has_hv:
             axes[1].set_ylabel("hypervolume of the front")
-        axes[-1].set_xlabel("objective evaluations")
+        axes[-1].set_xlabel("objective evaluations per island" + (
+            " (front: all islands together)" if "front" in islands else ""))
         fig.subplots_adjust(left=0.12, right=0.97, bottom=0.12 if not has_hv else 0.09,
                             top=0.92, hspace=0.12)
     return Picture(_save(fig, folder / "convergence.png"), artists)

@@ -7,6 +7,7 @@ import math
 
 from leverage.about import CAUTION
 from leverage.core.constants import DAY_S
+from leverage.record import objective
 from leverage.record.design import as_float
 
 
@@ -104,6 +105,21 @@ def limit_lines(record) -> list[str]:
     return lines
 
 
+def objective_line(record) -> str:
+    """"objective total DSM 0.811 km/s", "objective delivered mass 814.5 kg (maximised)":
+    each objective in its own unit and natural sign (``leverage.record.objective``)."""
+    shown = objective.from_record(record)
+    parts = []
+    for s, v in zip(shown, record["objective"]):
+        unit = f" {s.unit}" if s.unit else ""
+        number = _fmt(s.value(as_float(v)), 3 if s.unit == "kg" else 6)
+        parts.append(f"{s.name} {number}{unit}" + (" (maximised)" if s.maximised else ""))
+    line = "objective " + ", ".join(parts)
+    if record.get("feasible") is False:
+        line += " (penalty included: no design met every limit)"
+    return line
+
+
 def _count(value, noun: str) -> str:
     """"1 revolution", "0 revolutions", "2 revolutions"."""
     n = int(as_float(value))
@@ -143,8 +159,7 @@ def render(record) -> str:
             lines.append("          no member stands out as a knee (knee distance "
                          f"{_fmt(front['knee_distance'], 4)} of the front's scaled span: it "
                          "does not bulge toward the ideal point); choose from front.csv")
-    objective = ", ".join(_fmt(v, 6) for v in record["objective"])
-    lines += [f"objective {objective}"] + model_lines(record) + ["", "timeline"] + timeline(record)
+    lines += [objective_line(record)] + model_lines(record) + ["", "timeline"] + timeline(record)
     lines += [
         "",
         "launch    " + ", ".join([f"C3 {_d(record, 'c3')}", f"DLA {_d(record, 'dla', 2)}",

@@ -35,6 +35,7 @@ from leverage.fileio import write_bytes_atomic
 from leverage.record import objective
 from leverage.record.arcs import body_orbit, design_arcs, event_states, target_orbit
 from leverage.record.design import as_float
+from leverage.search.fronts import KNEE_MIN_DISTANCE
 
 DPI = 120
 FOOTER = "Preliminary patched-conic design: verify it before any flight use."
@@ -386,14 +387,21 @@ def front(record, folder) -> Picture | None:
             bar.set_label("outgoing inclination (deg)")
         else:
             artists["front"] = ax.scatter(dsm[ok], gain[ok], color="#2b6cb0", s=28, zorder=2)
-        artists["knee"] = ax.scatter([dsm[knee]], [gain[knee]], s=170, facecolor="none",
-                                     edgecolor="#c53030", lw=1.8, zorder=3)
-        # Lower right is empty on any front of a minimised DSM against a maximised gain.
-        ax.annotate(f"knee: DSM {dsm[knee]:.3f} km/s, gain {gain[knee]:.3f} km/s",
-                    (dsm[knee], gain[knee]), xytext=(0.97, 0.06), textcoords="axes fraction",
-                    ha="right", fontsize=8.5, color="#c53030",
-                    arrowprops=dict(arrowstyle="-", color="#c53030", lw=0.8,
-                                    shrinkA=2, shrinkB=7))
+        distance = as_float((record.get("front") or {}).get("knee_distance"))
+        if distance < KNEE_MIN_DISTANCE:  # the summary says no knee stands out: none circled
+            artists["no knee"] = ax.text(
+                0.97, 0.06, f"no knee stands out (knee distance {distance:.4f} of the scaled "
+                "span); choose from front.csv", transform=ax.transAxes, ha="right",
+                fontsize=8.5, color="#555555")
+        else:
+            artists["knee"] = ax.scatter([dsm[knee]], [gain[knee]], s=170, facecolor="none",
+                                         edgecolor="#c53030", lw=1.8, zorder=3)
+            # Lower right is empty on any front of a minimised DSM against a maximised gain.
+            ax.annotate(f"knee: DSM {dsm[knee]:.3f} km/s, gain {gain[knee]:.3f} km/s",
+                        (dsm[knee], gain[knee]), xytext=(0.97, 0.06),
+                        textcoords="axes fraction", ha="right", fontsize=8.5, color="#c53030",
+                        arrowprops=dict(arrowstyle="-", color="#c53030", lw=0.8,
+                                        shrinkA=2, shrinkB=7))
         ax.set_xlabel("DSM (km/s)" if "dsm" in c_dsm.lower() else f"{c_dsm} (km/s)")
         ax.set_ylabel("v-infinity gain (km/s)")
         ax.set_title(f"{record['problem']['name']}: trade front ({int(ok.sum())} designs)")

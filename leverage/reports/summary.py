@@ -9,6 +9,7 @@ from leverage.about import CAUTION
 from leverage.core.constants import DAY_S
 from leverage.record import objective
 from leverage.record.design import as_float
+from leverage.search.fronts import KNEE_MIN_DISTANCE
 
 
 def fmt_number(value, digits=3, thousands=False):
@@ -155,7 +156,7 @@ def render(record) -> str:
                      f"{', '.join(front['objectives'])}; hypervolume {_fmt(front['hypervolume'], 6)}"
                      f" (reference {', '.join(_fmt(v, 3) for v in front['reference_point'])});"
                      f" below: its knee point; all members in {front['file']}")
-        if as_float(front.get("knee_distance")) < 0.02:
+        if as_float(front.get("knee_distance")) < KNEE_MIN_DISTANCE:
             lines.append("          no member stands out as a knee (knee distance "
                          f"{_fmt(front['knee_distance'], 4)} of the front's scaled span: it "
                          "does not bulge toward the ideal point); choose from front.csv")

@@ -145,6 +145,12 @@ def test_front_draws_front_csv_with_its_knee(folder, record, tmp_path):
     assert np.allclose(pic.artists["knee"].get_offsets()[0], [dsm[knee], gain[knee]])
     assert plots.front(record, folder) is None  # no front.csv, no picture
 
+    # The summary says no knee stands out (knee distance below the threshold): no circle.
+    flat = dict(record, front={"knee_distance": 0.004})
+    pic = plots.front(flat, dest)
+    assert "knee" not in pic.artists
+    assert pic.artists["no knee"].get_text().startswith("no knee stands out")
+
 
 @pytest.mark.slow
 def test_front_reads_a_real_front_search_table(tmp_path, problems_dir):

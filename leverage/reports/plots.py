@@ -191,11 +191,17 @@ def trajectory(record, folder) -> Picture:
         after = next(a for a in arcs if a.key in ("outgoing", "flyby_arrival"))
         height = after.r_km @ vertical / AU_KM
         k = int(np.argmax(np.abs(height)))
+        # The label reads away from the nearer side edge, so it stays inside the figure.
+        spread = np.concatenate([arc.r_km @ horizontal / AU_KM for arc in arcs]
+                                + [orbit.r_km @ horizontal / AU_KM])
+        at = after.r_km[k] @ horizontal / AU_KM
+        rightward = at - spread.min() <= 0.5 * (spread.max() - spread.min())
         side.annotate(f"{abs(height[k]):.2f} au {'above' if height[k] >= 0 else 'below'} "
                       f"the ecliptic\n{_utc_datetime(after.t_tdb_s[k]):%Y-%m-%d}",
-                      (after.r_km[k] @ horizontal / AU_KM, height[k]),
-                      xytext=(6, 5 if height[k] >= 0 else -5), textcoords="offset points",
-                      ha="left", va="bottom" if height[k] >= 0 else "top", fontsize=8.5,
+                      (at, height[k]),
+                      xytext=(6 if rightward else -6, 5 if height[k] >= 0 else -5),
+                      textcoords="offset points", ha="left" if rightward else "right",
+                      va="bottom" if height[k] >= 0 else "top", fontsize=8.5,
                       color=COLOURS["text"])
         side.scatter([after.r_km[k] @ horizontal / AU_KM], [height[k]], s=18,
                      color=COLOURS[after.key], zorder=4)
@@ -212,8 +218,12 @@ def trajectory(record, folder) -> Picture:
                        "(vertical scale enlarged)")
         inc = record["derived"].get("outgoing_inclination")
         if inc is not None:
-            side.text(0.02, 0.97, f"outgoing inclination {as_float(inc['value']):.2f} deg",
-                      transform=side.transAxes, va="top", fontsize=8.5, color=COLOURS["text"])
+            # Across from the height label (top or bottom), so the two never meet.
+            up = height[k] < 0
+            side.text(0.02, 0.97 if up else 0.03,
+                      f"outgoing inclination {as_float(inc['value']):.2f} deg",
+                      transform=side.transAxes, va="top" if up else "bottom", fontsize=8.5,
+                      color=COLOURS["text"])
         handles, labels = top.get_legend_handles_labels()
         fig.legend(handles, labels, loc="lower center", ncol=(len(labels) + 1) // 2,
                    bbox_to_anchor=(0.5, 0.02))

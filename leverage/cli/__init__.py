@@ -28,6 +28,7 @@ EXIT_INFEASIBLE = 3
 EXIT_NOT_VERIFIED = 4    # holds in the search model, breaks a stated limit in the verification
 EXIT_CANNOT_WRITE = 5    # disk full, a folder not writable: the machine refused a file
 EXIT_NOT_CONVERGED = 6   # leverage refine: the n-body design misses a condition
+EXIT_UNREACHABLE = 7     # leverage check: the feasibility screen says the goal is unreachable
 EXIT_INTERNAL = 70       # a bug in leverage (one line; --debug for the traceback)
 EXIT_INTERRUPTED = 130   # SIGINT or SIGTERM
 
@@ -38,7 +39,7 @@ EXIT_CODES_HELP = (
     "met every limit; 4 the design breaks a stated limit in the verification (run, "
     "verify); 5 a file could not be written (disk full, folder not writable; the best "
     "design so far is kept where possible); 6 refine did not converge (the attempt is "
-    "kept, marked so); 70 an internal error (please report; --debug shows the "
+    "kept, marked so); 7 check: the feasibility screen finds the goal unreachable; 70 an internal error (please report; --debug shows the "
     "traceback); 130 interrupted (SIGINT or SIGTERM; what was written is kept).")
 
 
@@ -123,6 +124,14 @@ class _Signals:
         for sig, old in self._old.items():
             signal.signal(sig, old)
         return False
+
+
+def print_warnings(problem) -> None:
+    """One stderr line per value of the problem file that looks like a slip of units
+    (``Problem.warnings``, from ``leverage.problem.plausibility``)."""
+    for slip in getattr(problem, "warnings", ()):
+        print(f"leverage: warning: {printable(problem.source, 200)}: {printable(slip, 600)}",
+              file=sys.stderr)
 
 
 def _os_error_line(exc: OSError) -> str:

@@ -1,11 +1,15 @@
 """leverage check PROBLEM: validate, list the decision variables, sample a few points,
 and screen whether the goal is reachable at all (``leverage.screen``)."""
+import sys
+
 import numpy as np
 
 from leverage.core import layout as L
 from leverage.problem.load import load_problem
 from leverage.problem.screen import screen
 from leverage.search.udp import LeveragingUDP
+
+from . import EXIT_OK, EXIT_UNREACHABLE, print_warnings
 
 
 def add_parser(sub):
@@ -20,7 +24,7 @@ def add_parser(sub):
     return p
 
 
-def report(problem, samples: int, seed: int) -> str:
+def report(problem, samples: int, seed: int, result=None) -> str:
     compiled = problem.compile()
     udp = LeveragingUDP.from_compiled(compiled, problem.name)
     lines = [f"{problem.source}: valid ({problem.name}, goal {problem.values['goal']['kind']}, "
@@ -41,11 +45,18 @@ def report(problem, samples: int, seed: int) -> str:
             continue
         lines.append(f"  {f[0]:>12.4g}{q[L.Q_C3]:>11.3f}{q[L.Q_DSM]:>10.3f}{q[L.Q_VINF_IN]:>13.3f}"
                      f"{q[L.Q_ALT]:>10.0f}{q[L.Q_PENALTY]:>10.3g}")
-    lines += [""] + screen(problem).lines()
+    lines += [""] + (result or screen(problem)).lines()
     return "\n".join(lines)
 
 
 def main(args) -> int:
+    """0, or 7 when the feasibility screen finds the goal unreachable (one line says so)."""
     problem = load_problem(args.problem)
-    print(report(problem, args.samples, args.seed))
-    return 0
+    print_warnings(problem)
+    result = screen(problem)
+    print(report(problem, args.samples, args.seed, result))
+    if result.verdict == "unreachable":
+        print(f"leverage: {problem.source}: the feasibility screen finds the goal unreachable "
+              "with this launch C3 and DSM budget (see the screen above)", file=sys.stderr)
+        return EXIT_UNREACHABLE
+    return EXIT_OK

@@ -1,4 +1,5 @@
 """leverage run PROBLEM: optimise and write a result folder."""
+import shlex
 import sys
 import time
 from pathlib import Path
@@ -10,7 +11,7 @@ from leverage.run.lock import folder_lock
 from leverage.run.runner import Progress, evolver_for, resumed_settings, run, settings_from
 from leverage.search import checkpoint
 
-from . import EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_NOT_VERIFIED, EXIT_OK
+from . import EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_NOT_VERIFIED, EXIT_OK, print_warnings
 from .options import add_search_options, search_overrides
 from .parallel import add_parallel_options, workers_option
 
@@ -54,17 +55,20 @@ def resume_point(args, problem):
     return folder, settings, saved
 
 
-def exit_code(outcome, quiet: bool = False) -> int:
+def exit_code(outcome, problem: str = "PROBLEM") -> int:
     """0 holds in the search model and the verification; 3 complete but no design met
     every limit; 4 the design holds in the search model but breaks a stated limit in the
-    verification (named on stderr); 130 interrupted (with --quiet, which silences the
-    progress note, one line on stderr says so)."""
+    verification (named on stderr); 130 interrupted: one line on stderr says what was
+    kept and, when a checkpoint was written, the command that continues the run."""
     if outcome.status != "complete":
-        if quiet:
-            kept = ("the best design so far is in best.json" if outcome.record
-                    else "nothing written")
-            print(f"leverage: interrupted; {kept}; continue with: leverage run PROBLEM "
-                  f"--resume {outcome.folder}", file=sys.stderr)
+        kept = ("the best design so far is in best.json" if outcome.record
+                else "nothing written")
+        if (Path(outcome.folder) / checkpoint.FILE_NAME).is_file():
+            how = (f"continue with: leverage run {shlex.quote(str(problem))} "
+                   f"--resume {shlex.quote(str(outcome.folder))}")
+        else:
+            how = "no checkpoint yet, nothing to resume; run it again"
+        print(f"leverage: interrupted; {kept}; {how}", file=sys.stderr)
         return EXIT_INTERRUPTED
     if not outcome.feasible:
         return EXIT_INFEASIBLE
@@ -77,6 +81,7 @@ def exit_code(outcome, quiet: bool = False) -> int:
 
 def main(args) -> int:
     problem = load_problem(args.problem)
+    print_warnings(problem)
     workers = workers_option(args)
     if args.resume:
         check_writable(args.resume, create=False)  # a read-only folder: one line, no work
@@ -85,7 +90,7 @@ def main(args) -> int:
             evolver = evolver_for(settings, workers, args.cluster)
             return exit_code(run(problem, settings, out,
                                  Progress(settings.evolutions, enabled=not args.quiet),
-                                 evolver=evolver, resume=saved), args.quiet)
+                                 evolver=evolver, resume=saved), args.problem)
     settings = settings_from(problem, search_overrides(args))
     out = Path(args.out) if args.out else default_out(problem.name)
     if out.exists() and not out.is_dir():
@@ -98,4 +103,4 @@ def main(args) -> int:
         evolver = evolver_for(settings, workers, args.cluster)
         return exit_code(run(problem, settings, out,
                              Progress(settings.evolutions, enabled=not args.quiet),
-                             evolver=evolver), args.quiet)
+                             evolver=evolver), args.problem)

@@ -8,7 +8,7 @@ from leverage.run.lock import folder_lock
 from leverage.run.runner import settings_from
 from leverage.run.sweep import Sweep, SweepProgress, default_out
 
-from . import EXIT_FAILED, EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_OK
+from . import EXIT_FAILED, EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_OK, print_warnings
 from .options import add_search_options, search_overrides
 from .parallel import add_parallel_options, workers_option
 
@@ -40,6 +40,7 @@ def add_parser(sub):
 
 def main(args) -> int:
     problem = load_problem(args.problem)
+    print_warnings(problem)
     workers = workers_option(args)
     settings = settings_from(problem, search_overrides(args))
     if args.resume:

@@ -5,7 +5,9 @@ Data path: problem file -> ``load_problem`` (a validated ``Problem``) ->
 the compiled fitness). Every refusal is a ``ProblemError`` whose text is one line
 naming the file, the key and the value.
 """
+import calendar
 import datetime as _dt
+import difflib
 import hashlib
 import math
 import re
@@ -18,7 +20,7 @@ import tomli
 from leverage.astro import bodies, times
 from leverage.core import layout as L
 from leverage.errors import NO_VALUE, ProblemError
-from leverage.problem import sense
+from leverage.problem import plausibility, sense
 from leverage.problem.schema import FRONT_ALGORITHMS, OPTIONAL_SECTIONS, REQUIRED, keys_by_section
 from leverage.problem.target import Target, arrival_window_s, target_from_values
 from leverage.problem.vehicle import LaunchVehicle, vehicle_from_values
@@ -36,6 +38,8 @@ class Problem:
     extra: dict = field(default_factory=dict)
     target: Target | None = None          # [target] section, if any
     vehicle: LaunchVehicle | None = None  # [vehicle] section, if any
+    # Values that look like a slip of units (problem.plausibility): warnings, not refusals.
+    warnings: list = field(default_factory=list)
 
     def get(self, section: str, key: str):
         return self.values[section][key]
@@ -98,10 +102,48 @@ def parse_toml(source: str, text: str) -> dict:
     try:
         return tomli.loads(text)
     except tomli.TOMLDecodeError as exc:
-        raise ProblemError(source, "", NO_VALUE, f"not valid TOML: {exc}") from None
+        raise ProblemError(source, "", NO_VALUE,
+                           f"not valid TOML: {exc}{_toml_hint(text, exc)}") from None
     except RecursionError:
         raise ProblemError(source, "", NO_VALUE,
                            "not a problem file: arrays or tables nested too deeply") from None
+
+
+_DATE_LIKE = re.compile(r"(\d{4})-(\d{2})-(\d{2})")
+
+
+def _calendar_slip(text: str) -> str | None:
+    """Why a YYYY-MM-DD text that has the right format is no calendar date (None when
+    the format is wrong or the date exists)."""
+    match = _DATE_LIKE.match(text)
+    if not match:
+        return None
+    year, month, day = (int(g) for g in match.groups())
+    if not 1 <= month <= 12:
+        return f"an impossible calendar date (the format is right, but there is no month {month})"
+    last = calendar.monthrange(year, month)[1]
+    if not 1 <= day <= last:
+        return (f"an impossible calendar date (the format is right, but "
+                f"{calendar.month_name[month]} {year} has {last} days)")
+    return None
+
+
+def _toml_hint(text: str, exc) -> str:
+    """A hint for the TOML errors a new user makes: an unquoted word (text needs quotes)
+    and an unquoted date that does not exist."""
+    pos = getattr(exc, "pos", None)
+    if not isinstance(pos, int) or not 0 <= pos < len(text):
+        return ""
+    token = re.match(r"[^\s,\]}#]*", text[pos:]).group(0)
+    msg = getattr(exc, "msg", "")
+    if msg == "Invalid value" and re.match(r"[A-Za-z_]", token):
+        return (f"; text values need quotes: write \"{token}\"" if token
+                else "; text values need quotes")
+    if msg == "Invalid date or datetime":
+        slip = _calendar_slip(token)
+        if slip:
+            return f"; {token} is {slip}"
+    return ""
 
 
 def _number(source, key, value):
@@ -132,6 +174,9 @@ def _date(source, key, value):
     try:
         parsed = _dt.datetime.fromisoformat(text.replace("Z", "+00:00"))
     except ValueError:
+        slip = _calendar_slip(text)
+        if slip:
+            raise ProblemError(source, key.path, value, slip) from None
         raise ProblemError(source, key.path, value,
                            "expected a date like 2031-01-01 or 2031-01-01T12:00:00") from None
     if parsed.tzinfo is not None:
@@ -209,17 +254,20 @@ def validate(source: str, table: dict, schema: dict | None = None) -> dict:
     schema = schema or keys_by_section()
     for section, content in table.items():
         if section not in schema and not isinstance(content, dict):
-            raise ProblemError(source, section, content,
-                               f"key outside any section; sections: {', '.join(schema)}")
+            home = _sections_holding(schema, section)
+            where = (f"it belongs in {' or '.join(home)}" if home
+                     else f"sections: {', '.join(schema)}")
+            raise ProblemError(source, section, content, f"key outside any section; {where}")
         if section not in schema:
             raise ProblemError(source, f"[{section}]", NO_VALUE,
-                               f"unknown section; known: {', '.join(schema)}")
+                               f"unknown section{_did_you_mean(section, schema)}; "
+                               f"known: {', '.join(schema)}")
         if not isinstance(content, dict):
             raise ProblemError(source, section, content, "expected a [section] table")
         for name in content:
             if name not in schema[section]:
                 raise ProblemError(source, f"[{section}] {name}", content[name],
-                                   f"unknown key; known: {', '.join(schema[section])}")
+                                   _unknown_key(schema, section, name))
     values = {}
     for section, keys in schema.items():
         if section in OPTIONAL_SECTIONS and section not in table:
@@ -236,6 +284,33 @@ def validate(source: str, table: dict, schema: dict | None = None) -> dict:
                 default = key.default
                 values[section][name] = list(default) if isinstance(default, list) else default
     return values
+
+
+def _sections_holding(schema: dict, name: str) -> list[str]:
+    """The sections (as "[section]") that have a key called ``name``."""
+    return [f"[{section}]" for section, keys in schema.items() if name in keys]
+
+
+def _did_you_mean(name: str, known) -> str:
+    """"; did you mean X?" for the closest known name (difflib), or ""."""
+    close = difflib.get_close_matches(name, list(known), n=1, cutoff=0.6)
+    return f"; did you mean [{close[0]}]?" if close else ""
+
+
+def _unknown_key(schema: dict, section: str, name: str) -> str:
+    """The reason an unknown key is refused: the section it belongs in, else the closest
+    key of this section (or of any section), else the keys this section knows."""
+    home = _sections_holding(schema, name)
+    if home:
+        return f"unknown key in [{section}]; it belongs in {' or '.join(home)}"
+    here = difflib.get_close_matches(name, list(schema[section]), n=1, cutoff=0.6)
+    if here:
+        return f"unknown key in [{section}]; did you mean {here[0]}?"
+    everywhere = {key: sec for sec, keys in schema.items() for key in keys}
+    there = difflib.get_close_matches(name, list(everywhere), n=1, cutoff=0.75)
+    if there:
+        return f"unknown key in [{section}]; did you mean [{everywhere[there[0]]}] {there[0]}?"
+    return f"unknown key; known: {', '.join(schema[section])}"
 
 
 # The spans each ephemeris source is used within (UTC dates, inclusive): Standish's Table 1
@@ -386,6 +461,21 @@ def load_problem_text(text: str, source: str = "<text>", name: str = "problem") 
 
 def _problem(source: str, text: str, table: dict, stem: str) -> Problem:
     values = validate(source, table)
+    slips = plausibility.warnings(values)
+    try:
+        problem = _checked_problem(source, text, values, stem)
+    except ProblemError as exc:
+        # A slip of units often breaks a limit of sense first: say what it likely is.
+        slip = next((s for s in slips if s.key == exc.key), None)
+        if slip is None:
+            raise
+        raise ProblemError(exc.source, exc.key, exc.value,
+                           f"{exc.reason} ({slip.hint})") from None
+    problem.warnings = slips
+    return problem
+
+
+def _checked_problem(source: str, text: str, values: dict, stem: str) -> Problem:
     body = bodies.planet(values["body"]["name"])
     _check_relations(source, values, body)
     target = (target_from_values(source, values["target"])

@@ -13,6 +13,7 @@ from leverage.about import CAUTION, __version__
 from leverage.astro import times
 from leverage.core import layout as L
 from leverage.core.constants import AU_KM
+from leverage.record import objective
 
 # name, slot, unit, factor from the kernel's unit, meaning
 DERIVED = [
@@ -148,7 +149,8 @@ def design_record(compiled, udp, x) -> dict:
                             "values": [float(v) for v in x],
                             "lower": [float(v) for v in compiled.lower],
                             "upper": [float(v) for v in compiled.upper]},
-        "objective": [clean(v) for v in f],
+        "objective": [clean(v) for v in f],  # as minimised (the CSV columns' values)
+        "objective_shown": objective.as_records(objective.shown_objectives(udp.params)),
         "feasible": feasible(q),
         "ephemeris": {"search": getattr(compiled, "ephemeris", ""),
                       "spk_file": getattr(compiled, "ephemeris_file", None)},

@@ -12,6 +12,8 @@ from pathlib import Path
 import tomli
 
 from leverage.about import CAUTION
+from leverage.record import objective
+from leverage.record.design import as_float
 from leverage.reports.summary import fmt_number
 
 # label, derived quantity, digits
@@ -59,6 +61,18 @@ def _verified(record) -> str:
     return "yes" if v["holds"] else "NO"
 
 
+def _objective_row(records) -> tuple:
+    """(label, values) of the first objective: in its own unit and sign when every record
+    reads it the same way (e.g. "objective: total DSM (km/s)"), else as minimised."""
+    shown = [objective.from_record(r)[0] for r in records]
+    values = [as_float(r["objective"][0]) for r in records]
+    if all(s == shown[0] for s in shown):
+        s = shown[0]
+        label = f"objective: {s.name}" + (f" ({s.unit})" if s.unit else "")
+        return label, [_num(s.value(v), 3 if s.unit == "kg" else 6) for v in values]
+    return "objective (minimised)", [_num(v, 6) for v in values]
+
+
 def _rows(records) -> list:
     rows = [("problem", [r["problem"]["name"] for r in records]),
             ("problem sha256", [r["problem"]["sha256"][:12] for r in records]),
@@ -68,7 +82,7 @@ def _rows(records) -> list:
             ("ephemeris", [_short_ephemeris(r) for r in records]),
             ("holds: search model", ["yes" if r.get("feasible") else "NO" for r in records]),
             ("holds: verification", [_verified(r) for r in records]),
-            ("objective", [_num(r["objective"][0], 6) for r in records]),
+            _objective_row(records),
             ("launch (UTC)", [_event(r, "launch")["utc"][:10] for r in records]),
             ("flyby (UTC)", [_event(r, "flyby")["utc"][:10] for r in records])]
     if any(_event(r, "arrival") for r in records):

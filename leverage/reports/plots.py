@@ -32,8 +32,10 @@ from leverage.astro import times
 from leverage.core.constants import AU_KM, DAY_S
 from leverage.errors import NO_VALUE, ProblemError
 from leverage.fileio import write_bytes_atomic
+from leverage.record import objective
 from leverage.record.arcs import body_orbit, design_arcs, event_states, target_orbit
 from leverage.record.design import as_float
+from leverage.search.fronts import KNEE_MIN_DISTANCE
 
 DPI = 120
 FOOTER = "Preliminary patched-conic design: verify it before any flight use."
@@ -189,11 +191,17 @@ def trajectory(record, folder) -> Picture:
         after = next(a for a in arcs if a.key in ("outgoing", "flyby_arrival"))
         height = after.r_km @ vertical / AU_KM
         k = int(np.argmax(np.abs(height)))
+        # The label reads away from the nearer side edge, so it stays inside the figure.
+        spread = np.concatenate([arc.r_km @ horizontal / AU_KM for arc in arcs]
+                                + [orbit.r_km @ horizontal / AU_KM])
+        at = after.r_km[k] @ horizontal / AU_KM
+        rightward = at - spread.min() <= 0.5 * (spread.max() - spread.min())
         side.annotate(f"{abs(height[k]):.2f} au {'above' if height[k] >= 0 else 'below'} "
                       f"the ecliptic\n{_utc_datetime(after.t_tdb_s[k]):%Y-%m-%d}",
-                      (after.r_km[k] @ horizontal / AU_KM, height[k]),
-                      xytext=(6, 5 if height[k] >= 0 else -5), textcoords="offset points",
-                      ha="left", va="bottom" if height[k] >= 0 else "top", fontsize=8.5,
+                      (at, height[k]),
+                      xytext=(6 if rightward else -6, 5 if height[k] >= 0 else -5),
+                      textcoords="offset points", ha="left" if rightward else "right",
+                      va="bottom" if height[k] >= 0 else "top", fontsize=8.5,
                       color=COLOURS["text"])
         side.scatter([after.r_km[k] @ horizontal / AU_KM], [height[k]], s=18,
                      color=COLOURS[after.key], zorder=4)
@@ -210,8 +218,12 @@ def trajectory(record, folder) -> Picture:
                        "(vertical scale enlarged)")
         inc = record["derived"].get("outgoing_inclination")
         if inc is not None:
-            side.text(0.02, 0.97, f"outgoing inclination {as_float(inc['value']):.2f} deg",
-                      transform=side.transAxes, va="top", fontsize=8.5, color=COLOURS["text"])
+            # Across from the height label (top or bottom), so the two never meet.
+            up = height[k] < 0
+            side.text(0.02, 0.97 if up else 0.03,
+                      f"outgoing inclination {as_float(inc['value']):.2f} deg",
+                      transform=side.transAxes, va="top" if up else "bottom", fontsize=8.5,
+                      color=COLOURS["text"])
         handles, labels = top.get_legend_handles_labels()
         fig.legend(handles, labels, loc="lower center", ncol=(len(labels) + 1) // 2,
                    bbox_to_anchor=(0.5, 0.02))
@@ -268,6 +280,7 @@ def convergence(record, folder) -> Picture | None:
                                              for r in rows)
     fig = _new_figure(8.0, 6.4 if has_hv else 4.6)
     artists = {}
+    shown = objective.from_record(record)[0]  # the first objective, as people read it
     with matplotlib.rc_context(STYLE):
         axes = fig.subplots(2 if has_hv else 1, 1, sharex=True, squeeze=False)[:, 0]
         for n, island in enumerate(islands):
@@ -276,7 +289,7 @@ def convergence(record, folder) -> Picture | None:
                         marker=ISLAND_MARKERS[n % len(ISLAND_MARKERS)], ms=4, lw=1.4)
             mine = [r for r in rows if r["island"] == island]
             x = np.array([_float(r["evaluations"]) for r in mine])
-            y = np.array([_float(r["best_objective"]) for r in mine])
+            y = shown.value(np.array([_float(r["best_objective"]) for r in mine]))
             label = f"island {island}" if island.isdigit() else island
             (artists[f"island {island}"],) = axes[0].plot(x, y, label=label, **look)
             if has_hv:
@@ -285,8 +298,8 @@ def convergence(record, folder) -> Picture | None:
         several = len(record.get("objective") or []) > 1
         final = as_float(record["objective"][0]) if record.get("objective") else math.nan
         if math.isfinite(final) and not several:
-            axes[0].axhline(final, color="#555555", lw=0.9, ls=":",
-                            label=f"after polish: {final:.6g}")
+            axes[0].axhline(shown.value(final), color="#555555", lw=0.9, ls=":",
+                            label=f"after polish: {shown.text(final)}")
         axes[-1].set_xlim(left=0)
         per_island = min(sum(r["island"] == i for r in rows) for i in islands)
         if per_island < 3:
@@ -294,14 +307,15 @@ def convergence(record, folder) -> Picture | None:
                          "row per island after each migration interval of "
                          f"{rows[0].get('generations', '?')} generations",
                          transform=axes[0].transAxes, fontsize=8, color="#777777")
-        axes[0].set_ylabel("lowest first objective" if several
-                           else "best objective (lower is better)")
+        best = "best" if not several else "best first objective:"
+        axes[0].set_ylabel(f"{best} {shown.label()}")
         axes[0].set_title(f"{record['problem']['name']}: search progress "
                           f"(goal {record['problem']['goal']}, {record['search']['algorithm']})")
         axes[0].legend()
         if has_hv:
             axes[1].set_ylabel("hypervolume of the front")
-        axes[-1].set_xlabel("objective evaluations")
+        axes[-1].set_xlabel("objective evaluations per island" + (
+            " (front: all islands together)" if "front" in islands else ""))
         fig.subplots_adjust(left=0.12, right=0.97, bottom=0.12 if not has_hv else 0.09,
                             top=0.92, hspace=0.12)
     return Picture(_save(fig, folder / "convergence.png"), artists)
@@ -383,14 +397,21 @@ def front(record, folder) -> Picture | None:
             bar.set_label("outgoing inclination (deg)")
         else:
             artists["front"] = ax.scatter(dsm[ok], gain[ok], color="#2b6cb0", s=28, zorder=2)
-        artists["knee"] = ax.scatter([dsm[knee]], [gain[knee]], s=170, facecolor="none",
-                                     edgecolor="#c53030", lw=1.8, zorder=3)
-        # Lower right is empty on any front of a minimised DSM against a maximised gain.
-        ax.annotate(f"knee: DSM {dsm[knee]:.3f} km/s, gain {gain[knee]:.3f} km/s",
-                    (dsm[knee], gain[knee]), xytext=(0.97, 0.06), textcoords="axes fraction",
-                    ha="right", fontsize=8.5, color="#c53030",
-                    arrowprops=dict(arrowstyle="-", color="#c53030", lw=0.8,
-                                    shrinkA=2, shrinkB=7))
+        distance = as_float((record.get("front") or {}).get("knee_distance"))
+        if distance < KNEE_MIN_DISTANCE:  # the summary says no knee stands out: none circled
+            artists["no knee"] = ax.text(
+                0.97, 0.06, f"no knee stands out (knee distance {distance:.4f} of the scaled "
+                "span); choose from front.csv", transform=ax.transAxes, ha="right",
+                fontsize=8.5, color="#555555")
+        else:
+            artists["knee"] = ax.scatter([dsm[knee]], [gain[knee]], s=170, facecolor="none",
+                                         edgecolor="#c53030", lw=1.8, zorder=3)
+            # Lower right is empty on any front of a minimised DSM against a maximised gain.
+            ax.annotate(f"knee: DSM {dsm[knee]:.3f} km/s, gain {gain[knee]:.3f} km/s",
+                        (dsm[knee], gain[knee]), xytext=(0.97, 0.06),
+                        textcoords="axes fraction", ha="right", fontsize=8.5, color="#c53030",
+                        arrowprops=dict(arrowstyle="-", color="#c53030", lw=0.8,
+                                        shrinkA=2, shrinkB=7))
         ax.set_xlabel("DSM (km/s)" if "dsm" in c_dsm.lower() else f"{c_dsm} (km/s)")
         ax.set_ylabel("v-infinity gain (km/s)")
         ax.set_title(f"{record['problem']['name']}: trade front ({int(ok.sum())} designs)")

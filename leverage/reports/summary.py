@@ -7,7 +7,9 @@ import math
 
 from leverage.about import CAUTION
 from leverage.core.constants import DAY_S
+from leverage.record import objective
 from leverage.record.design import as_float
+from leverage.search.fronts import KNEE_MIN_DISTANCE
 
 
 def fmt_number(value, digits=3, thousands=False):
@@ -117,6 +119,27 @@ def refined_line(refined) -> str:
     return f"refined   {refined.get('status', '?')} in an n-body model{change}; see refined/"
 
 
+def objective_line(record) -> str:
+    """"objective total DSM 0.811 km/s", "objective delivered mass 814.5 kg (maximised)":
+    each objective in its own unit and natural sign (``leverage.record.objective``)."""
+    shown = objective.from_record(record)
+    parts = []
+    for s, v in zip(shown, record["objective"]):
+        unit = f" {s.unit}" if s.unit else ""
+        number = _fmt(s.value(as_float(v)), 3 if s.unit == "kg" else 6)
+        parts.append(f"{s.name} {number}{unit}" + (" (maximised)" if s.maximised else ""))
+    line = "objective " + ", ".join(parts)
+    if record.get("feasible") is False:
+        line += " (penalty included: no design met every limit)"
+    return line
+
+
+def _count(value, noun: str) -> str:
+    """"1 revolution", "0 revolutions", "2 revolutions"."""
+    n = int(as_float(value))
+    return f"{n} {noun}" if n == 1 else f"{n} {noun}s"
+
+
 def render(record) -> str:
     """The summary text of a result record."""
     p = record["problem"]
@@ -146,20 +169,18 @@ def render(record) -> str:
                      f"{', '.join(front['objectives'])}; hypervolume {_fmt(front['hypervolume'], 6)}"
                      f" (reference {', '.join(_fmt(v, 3) for v in front['reference_point'])});"
                      f" below: its knee point; all members in {front['file']}")
-        if as_float(front.get("knee_distance")) < 0.02:
+        if as_float(front.get("knee_distance")) < KNEE_MIN_DISTANCE:
             lines.append("          no member stands out as a knee (knee distance "
                          f"{_fmt(front['knee_distance'], 4)} of the front's scaled span: it "
                          "does not bulge toward the ideal point); choose from front.csv")
-    objective = ", ".join(_fmt(v, 6) for v in record["objective"])
-    lines += [f"objective {objective}"] + model_lines(record) + ["", "timeline"] + timeline(record)
+    lines += [objective_line(record)] + model_lines(record) + ["", "timeline"] + timeline(record)
     lines += [
         "",
         "launch    " + ", ".join([f"C3 {_d(record, 'c3')}", f"DLA {_d(record, 'dla', 2)}",
                                   f"RLA {_d(record, 'rla', 2)}"]),
         "DSM       " + f"{_d(record, 'dsm', 4)}  (radial {_d(record, 'dsm_radial', 4)}, "
         f"along-track {_d(record, 'dsm_along_track', 4)}, normal {_d(record, 'dsm_normal', 4)})",
-        "          " + f"Lambert arc: {int(as_float(record['derived']['lambert_revolutions']['value']))}"
-        f" revolutions, "
+        "          " + f"Lambert arc: {_count(record['derived']['lambert_revolutions']['value'], 'revolution')}, "
         + ("low-path" if as_float(record['derived']['lambert_low_path']['value']) else "high-path")
         + " root",
         "flyby     " + f"altitude {_d(record, 'flyby_altitude', 1)}, turn {_d(record, 'turn_angle', 2)}"

@@ -23,6 +23,7 @@ from pathlib import Path
 from leverage.errors import ProblemError, WriteFault
 from leverage.fileio import write_atomic
 from leverage.problem.load import check_algorithm
+from leverage.record import objective
 from leverage.record.design import base_record, design_record
 from leverage.reports import summary
 from leverage.run import afterrun, rescue
@@ -62,12 +63,15 @@ class Progress:
         self.enabled = enabled
         self.tty = hasattr(self.stream, "isatty") and self.stream.isatty()
         self.start = time.monotonic()
+        # How the (first) objective reads: its own unit and sign (set by ``run``).
+        self.shown = None
 
     def update(self, done: int, best: float, evaluations: int):
         if not self.enabled:
             return
         elapsed = time.monotonic() - self.start
-        text = (f"evolution {done}/{self.total}  best {best:.6g}  "
+        best_text = self.shown.text(best) if self.shown is not None else f"{best:.6g}"
+        text = (f"evolution {done}/{self.total}  best {best_text}  "
                 f"{evaluations:,} evaluations  {elapsed:.1f} s")
         if self.tty:
             self.stream.write("\r" + text.ljust(78))
@@ -298,6 +302,7 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
         try:
             try:
                 compiled, udp, search = prepare(problem, settings, evolver)
+                progress.shown = objective.shown_objectives(compiled.params)[0]
                 run_info["islands_evolved"] = islands_evolved(search, evolver)
                 if resume is not None:
                     checkpoint.restore(search, resume)

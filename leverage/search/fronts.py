@@ -39,6 +39,10 @@ FRONT_ALGORITHM_NOTES = {
     "nspso": "non-dominated sorting particle swarm (pygmo nspso, batch evaluation)",
 }
 MAX_ARCHIVE = 300  # front members kept; beyond this the most crowded are dropped
+# Below this distance from the line (plane) through the front's extreme members, in
+# objectives scaled to [0, 1], no member stands out as a knee: the summary says so and
+# front.png circles none.
+KNEE_MIN_DISTANCE = 0.02
 
 # objective code -> (column name of the minimised quantity, unit)
 OBJECTIVES = {
@@ -271,8 +275,8 @@ class FrontSearch:
         """Write the archive as CSV (atomically); return its description for best.json.
 
         One row per member, sorted by the first objective: member number, knee flag,
-        the minimised objectives, the decision vector and every derived quantity of
-        ``result.DERIVED``, each column named with its unit.
+        the minimised objectives, the decision vector (``x_<name>``) and every derived
+        quantity of ``result.DERIVED``, each column named with its unit; no name repeats.
         """
         st = self.state
         codes = [int(self.udp.params[L.P_OBJ_CODES + k]) for k in range(self.udp.get_nobj())]
@@ -280,8 +284,11 @@ class FrontSearch:
         knee_row, knee_distance = knee(st.archive_f) if len(st.archive_f) else (-1, math.nan)
         header = (["member", "knee"]
                   + [column("objective_" + OBJECTIVES[c][0], OBJECTIVES[c][1]) for c in codes]
-                  + list(compiled.names)  # decision names carry their units
+                  # decision names carry their units; "x_" keeps them apart from derived
+                  # quantities of the same name (launch_vinf_km_s, flyby_altitude_km, ...)
+                  + ["x_" + name for name in compiled.names]
                   + [column(name, unit) for name, _, unit, _, _ in DERIVED])
+        assert len(set(header)) == len(header), "front.csv column names repeat"
         buf = io.StringIO()
         out = csv.writer(buf, lineterminator="\n")
         out.writerow(header)

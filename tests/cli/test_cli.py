@@ -83,8 +83,11 @@ def check_summary_against_record(text: str, record: dict):
         s["algorithm"], s["islands"], s["population"], s["generations"], s["seed"], s["polish"])
     evals, wall = find(text, r"^effort\s+([\d,]+) evaluations in " + NUM + " s")
     assert int(evals.replace(",", "")) == run["evaluations"] and agrees(wall, run["wall_time_s"])
-    (obj,) = find(text, r"^objective " + NUM)
-    assert agrees(obj, record["objective"][0])
+    # In its own unit and natural sign (record["objective_shown"]), not as minimised.
+    shown = record["objective_shown"][0]
+    unit = re.escape(f" {shown['unit']}") if shown["unit"] else ""
+    (obj,) = find(text, r"^objective " + re.escape(shown["name"]) + " " + NUM + unit)
+    assert agrees(obj, shown["factor"] * record["objective"][0])
     (feasible,) = find(text, r"^holds in the search model:\s+(yes|NO)")
     assert (feasible == "yes") == record["feasible"]
     (verified,) = find(text, r"^holds in the verification: (yes|NO|not run yet)")
@@ -113,7 +116,7 @@ def check_summary_against_record(text: str, record: dict):
                      rf"normal {NUM} km/s\)")
     for printed, key in zip(got, ("dsm", "dsm_radial", "dsm_along_track", "dsm_normal")):
         assert agrees(printed, value(record, key)), key
-    revs, root = find(text, r"Lambert arc: (\d+) revolutions, (low|high)-path root")
+    revs, root = find(text, r"Lambert arc: (\d+) revolutions?, (low|high)-path root")
     assert int(revs) == value(record, "lambert_revolutions")
     assert (root == "low") == bool(value(record, "lambert_low_path"))
     got = find(text, rf"^flyby\s+altitude {NUM} km, turn {NUM} deg \(largest allowed {NUM} deg\), "

@@ -93,7 +93,11 @@ def test_convergence_draws_the_log(folder, record):
         mine = [r for r in rows if r["island"] == island]
         line = pic.artists[f"island {island}"]
         assert np.allclose(line.get_xdata(), [float(r["evaluations"]) for r in mine])
-        assert np.allclose(line.get_ydata(), [float(r["best_objective"]) for r in mine])
+        factor = record["objective_shown"][0]["factor"]  # drawn in its own unit and sign
+        assert np.allclose(line.get_ydata(), [factor * float(r["best_objective"]) for r in mine])
+    axes = pic.artists["island 0"].axes
+    assert axes.get_ylabel() == "best total DSM (km/s, lower is better)"
+    assert axes.get_xlabel().startswith("objective evaluations per island")
 
 
 def test_convergence_adds_the_hypervolume_when_logged(folder, record, tmp_path):
@@ -140,6 +144,12 @@ def test_front_draws_front_csv_with_its_knee(folder, record, tmp_path):
     assert np.allclose(scatter.get_array(), inc)
     assert np.allclose(pic.artists["knee"].get_offsets()[0], [dsm[knee], gain[knee]])
     assert plots.front(record, folder) is None  # no front.csv, no picture
+
+    # The summary says no knee stands out (knee distance below the threshold): no circle.
+    flat = dict(record, front={"knee_distance": 0.004})
+    pic = plots.front(flat, dest)
+    assert "knee" not in pic.artists
+    assert pic.artists["no knee"].get_text().startswith("no knee stands out")
 
 
 @pytest.mark.slow

@@ -131,7 +131,9 @@ def test_front_run_writes_a_feasible_non_dominated_front(problems_dir, tmp_path,
             assert i == j or not dominates(f[j], f[i])
     udp = LeveragingUDP.from_compiled(problem.compile())
     x_cols = list(rows[0])[4:4 + 8]  # after member, knee and the two objectives
-    assert x_cols[0] == "launch_epoch_days" and x_cols[-1] == "bplane_angle_deg"
+    assert x_cols[0] == "x_launch_epoch_days" and x_cols[-1] == "x_bplane_angle_deg"
+    header = (out / "front.csv").read_text().splitlines()[0].split(",")
+    assert len(set(header)) == len(header)  # no column name repeats (issue 13)
     for r, fi in zip(rows, f):
         x = np.array([float(r[c]) for c in x_cols])
         q = udp.details(x)

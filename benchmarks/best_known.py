@@ -16,6 +16,12 @@ penalty has where a limit becomes active); BOBYQA again; monotonic basin hopping
 around it (pygmo mbh); SLSQP again. The best is the best-known answer. Writes ``benchmarks/best_known.json`` (objective in the problem's own units:
 km/s for min_dsm, -km/s of gain for max_gain).
 
+The problem files are used as they are: their ephemeris (the default, JPL DE421) and
+their ``[margins]`` (the limits the search sees are tightened by them, and so are the
+ones here). Each answer also records the ephemeris, the margins and the
+verification's verdict (``leverage.verify``: re-flown apart from the kernels against
+the stated limits), as ``leverage run`` gives it in best.json.
+
 Usage: python -m benchmarks.best_known [--only NAME] [--smoke] [--out FILE]
 """
 import argparse
@@ -211,6 +217,24 @@ def full_polish(compiled, days, loops, best_f, best_y, final):
     return best_x, best, evals
 
 
+def verification(problem, compiled, x) -> dict:
+    """The verification's verdict on x (``leverage.verify``: the design re-flown apart
+    from the kernels, every stated limit re-checked), as ``leverage run`` gives it."""
+    from types import SimpleNamespace
+
+    from leverage.record.design import base_record, design_record
+    from leverage.verify.report import verify_record
+
+    settings = SimpleNamespace(algorithm="benchmarks.best_known", islands=0, population=0,
+                               generations=0, generations_per_migration=0, seed=0,
+                               polish="bobyqa, slsqp, mbh")
+    record = base_record(problem, settings, "best known")
+    record.update(design_record(compiled, LeveragingUDP.from_compiled(compiled), x))
+    verdict = verify_record(record)["verdict"]
+    return {"holds": bool(verdict["holds"]), "model": verdict["model"],
+            "broken": [b["limit"] for b in verdict["broken"]]}
+
+
 def establish(name, path, args, log):
     problem = load_problem(path)
     compiled = problem.compile()
@@ -221,6 +245,7 @@ def establish(name, path, args, log):
     x, f, n = full_polish(compiled, days, loops, best_f, best_y, args.final)
     evals += n
     q = trajectory.details(x, compiled.params)
+    check = verification(problem, compiled, x)
     return {
         "file": str(Path(path).resolve().relative_to(Path(__file__).resolve().parent.parent)),
         "sha256": problem.sha256,
@@ -231,6 +256,9 @@ def establish(name, path, args, log):
         "vinf_gain_km_s": float(q[L.Q_GAIN]),
         "penalty": float(q[L.Q_PENALTY]),
         "feasible": feasible(compiled, x),
+        "verification": check,
+        "ephemeris": compiled.ephemeris,
+        "margins": {k: v for k, v in problem.values["margins"].items() if v > 0.0},
         "decision_vector": {"names": compiled.names, "values": [float(v) for v in x]},
         "grid": {"launch_days": [float(days[0]), float(days[-1]), int(days.size)],
                  "loop_days": [float(loops[0]), float(loops[-1]), int(loops.size)],
@@ -272,8 +300,12 @@ def main(argv=None) -> int:
         entry = establish(name, REFERENCES[name], args, lambda s: print(s, flush=True))
         print(f"  best-known objective {entry['objective']:.6f} (total DSM "
               f"{entry['total_dv_km_s']:.6f} km/s, gain {entry['vinf_gain_km_s']:.6f} km/s, "
-              f"feasible {entry['feasible']}), {entry['evaluations']:,} evaluations, "
+              f"feasible {entry['feasible']}, holds in the verification "
+              f"{entry['verification']['holds']}), {entry['evaluations']:,} evaluations, "
               f"{entry['wall_s']} s")
+        print(f"  ephemeris: {entry['ephemeris']}; margins: {entry['margins'] or 'none'}"
+              + (f"; broken in the verification: {', '.join(entry['verification']['broken'])}"
+                 if entry['verification']['broken'] else ""))
         print("  x = " + ", ".join(f"{n} {v:.6f}" for n, v in
                                    zip(entry["decision_vector"]["names"],
                                        entry["decision_vector"]["values"])))

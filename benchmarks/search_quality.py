@@ -8,7 +8,9 @@ not count; ``--file-settings`` uses them instead) and count the runs whose final
 (0.001 in the objective's km/s) of the best-known one. Time to get there is read from
 the run's own convergence log: the wall time (from the start of the search) of the
 first evolution whose best objective is within the tolerance, or the whole run
-(search and polish) when only the polish got there.
+(search and polish) when only the polish got there. "verified" counts the runs whose
+final design also holds in the verification (best.json ``verification.holds``: the
+design re-flown apart from the search's kernels against the stated limits).
 
 Usage: python -m benchmarks.search_quality [--problems demo,earth-3yr] [--algorithms sade,pso]
        [--seeds 20] [--population N] [--generations N] [--islands N] [--file-settings]
@@ -46,7 +48,9 @@ def one_run(path, seed, algorithm, options, target):
                 break
         if reach is None and hit:
             reach = best["run"]["wall_time_s"]
+    holds = (best.get("verification") or {}).get("holds") is True
     return {"ok": True, "objective": objective, "feasible": bool(best["feasible"]), "hit": hit,
+            "holds": holds,
             "reach_s": reach if hit else None, "wall_s": best["run"]["wall_time_s"],
             "process_wall_s": res["process_wall_s"], "evaluations": best["run"]["evaluations"]}
 
@@ -90,7 +94,8 @@ def main(argv=None) -> int:
         target = entry["objective"] if entry else None
         print(f"\n{problem} ({path.name}): best-known objective "
               + (f"{target:.6f}" if target is not None else "unknown (run benchmarks.best_known)"))
-        print(f"  {'algorithm':<9} {'hits':>6} {'median s to hit':>16} {'median run s':>13} "
+        print(f"  {'algorithm':<9} {'hits':>6} {'verified':>8} {'median s to hit':>16} "
+              f"{'median run s':>13} "
               f"{'median process s':>17} {'median evals':>13} {'worst miss m/s':>15}")
         for algorithm in args.algorithms.split(","):
             runs = [one_run(path, seed, algorithm, options, target)
@@ -99,7 +104,9 @@ def main(argv=None) -> int:
             hits = [r for r in good if r["hit"]]
             misses = [1000 * (r["objective"] - target) for r in good if target is not None]
             better = [m for m in misses if m < -1000 * TOLERANCE]
+            verified = [r for r in good if r["holds"]]
             row = {"problem": problem, "algorithm": algorithm, "hits": len(hits),
+                   "verified": len(verified),
                    "runs": len(runs),
                    "median_reach_s": median([r["reach_s"] for r in hits]),
                    "median_wall_s": median([r["wall_s"] for r in good]),
@@ -107,7 +114,8 @@ def main(argv=None) -> int:
                    "median_evaluations": median([r["evaluations"] for r in good]),
                    "worst_miss_m_s": max(misses) if misses else float("nan")}
             summary.append(row)
-            print(f"  {algorithm:<9} {len(hits):>3}/{len(runs):<2} {row['median_reach_s']:>16.2f} "
+            print(f"  {algorithm:<9} {len(hits):>3}/{len(runs):<2} "
+                  f"{len(verified):>5}/{len(runs):<2} {row['median_reach_s']:>16.2f} "
                   f"{row['median_wall_s']:>13.2f} {row['median_process_s']:>17.2f} "
                   f"{row['median_evaluations']:>13,.0f} {row['worst_miss_m_s']:>15.1f}",
                   flush=True)

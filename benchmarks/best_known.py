@@ -24,6 +24,7 @@ the stated limits), as ``leverage run`` gives it in best.json.
 
 Usage: python -m benchmarks.best_known [--only NAME] [--smoke] [--out FILE]
 """
+
 import argparse
 import json
 import sys
@@ -47,8 +48,14 @@ REFERENCES = {
     "earth-gain": BENCH_PROBLEMS / "earth-gain.toml",
 }
 GRID_VARS = (L.X_LAUNCH_EPOCH_DAYS, L.X_LOOP_DURATION_DAYS)
-FREE_VARS = (L.X_LAUNCH_VINF_KM_S, L.X_LAUNCH_IN_PLANE_ANGLE_DEG, L.X_LAUNCH_OUT_OF_PLANE_ANGLE_DEG, L.X_DSM_FRACTION,
-             L.X_FLYBY_ALTITUDE_KM, L.X_BPLANE_ANGLE_DEG)
+FREE_VARS = (
+    L.X_LAUNCH_VINF_KM_S,
+    L.X_LAUNCH_IN_PLANE_ANGLE_DEG,
+    L.X_LAUNCH_OUT_OF_PLANE_ANGLE_DEG,
+    L.X_DSM_FRACTION,
+    L.X_FLYBY_ALTITUDE_KM,
+    L.X_BPLANE_ANGLE_DEG,
+)
 
 
 class FixedGridPoint:
@@ -120,8 +127,10 @@ def search_grid(compiled, launch_step, loop_step, samples, starts, rng, log):
                 evals += n
                 if fy < best_f[i, j]:
                     best_f[i, j], best_y[i, j] = fy, y
-        log(f"    launch day {i + 1}/{days.size} done, {evals:,} evaluations, "
-            f"{time.perf_counter() - start:.0f} s, best so far {np.min(best_f):.6f}")
+        log(
+            f"    launch day {i + 1}/{days.size} done, {evals:,} evaluations, "
+            f"{time.perf_counter() - start:.0f} s, best so far {np.min(best_f):.6f}"
+        )
     # Continuation: neighbours' answers as starts, so one unlucky point cannot hide a basin.
     for i in range(days.size):
         for j in range(loops.size):
@@ -135,8 +144,10 @@ def search_grid(compiled, launch_step, loop_step, samples, starts, rng, log):
                     evals += n
                     if fy < best_f[i, j]:
                         best_f[i, j], best_y[i, j] = fy, y
-    log(f"    continuation sweep done, {evals:,} evaluations, "
-        f"{time.perf_counter() - start:.0f} s, best {np.min(best_f):.6f}")
+    log(
+        f"    continuation sweep done, {evals:,} evaluations, "
+        f"{time.perf_counter() - start:.0f} s, best {np.min(best_f):.6f}"
+    )
     return days, loops, best_f, best_y, evals
 
 
@@ -152,8 +163,11 @@ def constrained_polish(compiled, x):
 
     p, lo, hi = compiled.params, compiled.lower, compiled.upper
     span = hi - lo
-    slots = [k for k in range(L.N_MARGINS)
-             if np.isfinite(trajectory.details(x, p)[L.Q_MARGIN_ALT_KM + k])]
+    slots = [
+        k
+        for k in range(L.N_MARGINS)
+        if np.isfinite(trajectory.details(x, p)[L.Q_MARGIN_ALT_KM + k])
+    ]
     count = [0]
 
     def unscale(z):
@@ -171,9 +185,14 @@ def constrained_polish(compiled, x):
         # A hair inside each limit (1e-7 of its scale), so the answer is strictly feasible.
         return np.where(np.isfinite(m), m, 1.0e3) - 1.0e-7
 
-    res = minimize(objective, (x - lo) / span, method="SLSQP", bounds=[(0.0, 1.0)] * lo.size,
-                   constraints=[{"type": "ineq", "fun": margins}],
-                   options={"ftol": 1e-12, "maxiter": 500, "eps": 1e-8})
+    res = minimize(
+        objective,
+        (x - lo) / span,
+        method="SLSQP",
+        bounds=[(0.0, 1.0)] * lo.size,
+        constraints=[{"type": "ineq", "fun": margins}],
+        options={"ftol": 1e-12, "maxiter": 500, "eps": 1e-8},
+    )
     x_new = unscale(res.x)
     return x_new, float(trajectory.fitness(x_new, p)[0]), count[0]
 
@@ -181,22 +200,29 @@ def constrained_polish(compiled, x):
 def feasible(compiled, x) -> bool:
     """The rule of leverage.result: every leg solved and every limit margin >= 0."""
     q = trajectory.details(x, compiled.params)
-    return bool(q[L.Q_OK] == 1.0 and np.all(q[L.Q_MARGIN_ALT_KM:L.Q_MARGIN_ALT_KM + L.N_MARGINS]
-                                               >= 0.0))
+    return bool(
+        q[L.Q_OK] == 1.0 and np.all(q[L.Q_MARGIN_ALT_KM : L.Q_MARGIN_ALT_KM + L.N_MARGINS] >= 0.0)
+    )
 
 
 def full_polish(compiled, days, loops, best_f, best_y, final):
     """Polish the best grid points in all eight variables; the best (x, f, evals)."""
     udp = LeveragingUDP.from_compiled(compiled)
     chosen = set(np.argsort(best_f, axis=None)[:final].tolist())
-    chosen |= {int(np.ravel_multi_index((i, int(np.argmin(best_f[i]))), best_f.shape))
-               for i in range(days.size)}
+    chosen |= {
+        int(np.ravel_multi_index((i, int(np.argmin(best_f[i]))), best_f.shape))
+        for i in range(days.size)
+    }
     hopper = pg.algorithm(pg.mbh(bobyqa(2000), stop=5, perturb=0.002, seed=1))
     # Each step starts from the best strictly feasible point so far; SLSQP can wander
     # off where the best Lambert branch changes (a kink), BOBYQA stalls at active limits.
-    steps = [lambda x: polish(udp, x, bobyqa()), lambda x: constrained_polish(compiled, x),
-             lambda x: polish(udp, x, bobyqa()), lambda x: polish(udp, x, hopper),
-             lambda x: constrained_polish(compiled, x)]
+    steps = [
+        lambda x: polish(udp, x, bobyqa()),
+        lambda x: constrained_polish(compiled, x),
+        lambda x: polish(udp, x, bobyqa()),
+        lambda x: polish(udp, x, hopper),
+        lambda x: constrained_polish(compiled, x),
+    ]
     best_x, best = None, np.inf
     evals = 0
     for flat in sorted(chosen):
@@ -225,14 +251,23 @@ def verification(problem, compiled, x) -> dict:
     from leverage.record.design import base_record, design_record
     from leverage.verify.report import verify_record
 
-    settings = SimpleNamespace(algorithm="benchmarks.best_known", islands=0, population=0,
-                               generations=0, generations_per_migration=0, seed=0,
-                               polish="bobyqa, slsqp, mbh")
+    settings = SimpleNamespace(
+        algorithm="benchmarks.best_known",
+        islands=0,
+        population=0,
+        generations=0,
+        generations_per_migration=0,
+        seed=0,
+        polish="bobyqa, slsqp, mbh",
+    )
     record = base_record(problem, settings, "best known")
     record.update(design_record(compiled, LeveragingUDP.from_compiled(compiled), x))
     verdict = verify_record(record)["verdict"]
-    return {"holds": bool(verdict["holds"]), "model": verdict["model"],
-            "broken": [b["limit"] for b in verdict["broken"]]}
+    return {
+        "holds": bool(verdict["holds"]),
+        "model": verdict["model"],
+        "broken": [b["limit"] for b in verdict["broken"]],
+    }
 
 
 def establish(name, path, args, log):
@@ -241,7 +276,8 @@ def establish(name, path, args, log):
     rng = np.random.default_rng(args.seed)
     start = time.perf_counter()
     days, loops, best_f, best_y, evals = search_grid(
-        compiled, args.launch_step_days, args.loop_step_days, args.samples, args.starts, rng, log)
+        compiled, args.launch_step_days, args.loop_step_days, args.samples, args.starts, rng, log
+    )
     x, f, n = full_polish(compiled, days, loops, best_f, best_y, args.final)
     evals += n
     q = trajectory.details(x, compiled.params)
@@ -260,11 +296,14 @@ def establish(name, path, args, log):
         "ephemeris": compiled.ephemeris,
         "margins": {k: v for k, v in problem.values["margins"].items() if v > 0.0},
         "decision_vector": {"names": compiled.names, "values": [float(v) for v in x]},
-        "grid": {"launch_days": [float(days[0]), float(days[-1]), int(days.size)],
-                 "loop_days": [float(loops[0]), float(loops[-1]), int(loops.size)],
-                 "samples_per_point": args.samples, "polished_starts_per_point": args.starts,
-                 "final_full_polishes": args.final,
-                 "grid_best_objective": float(np.min(best_f))},
+        "grid": {
+            "launch_days": [float(days[0]), float(days[-1]), int(days.size)],
+            "loop_days": [float(loops[0]), float(loops[-1]), int(loops.size)],
+            "samples_per_point": args.samples,
+            "polished_starts_per_point": args.starts,
+            "final_full_polishes": args.final,
+            "grid_best_objective": float(np.min(best_f)),
+        },
         "evaluations": int(evals),
         "wall_s": round(time.perf_counter() - start, 1),
         "date": time.strftime("%Y-%m-%d"),
@@ -273,42 +312,65 @@ def establish(name, path, args, log):
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--only", action="append", choices=sorted(REFERENCES),
-                    help="establish only this reference (repeatable)")
+    ap.add_argument(
+        "--only",
+        action="append",
+        choices=sorted(REFERENCES),
+        help="establish only this reference (repeatable)",
+    )
     ap.add_argument("--launch-step-days", type=float, default=5.0)
     ap.add_argument("--loop-step-days", type=float, default=5.0)
     ap.add_argument("--samples", type=int, default=1024, help="random points per grid point")
     ap.add_argument("--starts", type=int, default=3, help="polished starts per grid point")
-    ap.add_argument("--final", type=int, default=40,
-                    help="best grid points polished in full (besides the best of each date)")
+    ap.add_argument(
+        "--final",
+        type=int,
+        default=40,
+        help="best grid points polished in full (besides the best of each date)",
+    )
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--out", default=str(OUT), help="JSON file to update")
-    ap.add_argument("--smoke", action="store_true",
-                    help="a 2 x 2 grid, printed only (best_known.json untouched)")
+    ap.add_argument(
+        "--smoke",
+        action="store_true",
+        help="a 2 x 2 grid, printed only (best_known.json untouched)",
+    )
     args = ap.parse_args(argv)
     if args.smoke:
         args.launch_step_days, args.loop_step_days = 1000.0, 1000.0
         args.samples, args.starts, args.final = 64, 1, 1
         args.only = args.only or ["demo"]
-    print_header("best-known answers" + (" (smoke: tiny grid, not written)" if args.smoke
-                                         else ""))
+    print_header("best-known answers" + (" (smoke: tiny grid, not written)" if args.smoke else ""))
     numba.set_num_threads(1)  # the other core stays free for whoever shares the machine
     out_path = Path(args.out)
     known = json.loads(out_path.read_text()) if out_path.exists() else {}
     for name in args.only or REFERENCES:
         print(f"\n{name}: {REFERENCES[name]}")
         entry = establish(name, REFERENCES[name], args, lambda s: print(s, flush=True))
-        print(f"  best-known objective {entry['objective']:.6f} (total DSM "
-              f"{entry['total_dv_km_s']:.6f} km/s, gain {entry['vinf_gain_km_s']:.6f} km/s, "
-              f"feasible {entry['feasible']}, holds in the verification "
-              f"{entry['verification']['holds']}), {entry['evaluations']:,} evaluations, "
-              f"{entry['wall_s']} s")
-        print(f"  ephemeris: {entry['ephemeris']}; margins: {entry['margins'] or 'none'}"
-              + (f"; broken in the verification: {', '.join(entry['verification']['broken'])}"
-                 if entry['verification']['broken'] else ""))
-        print("  x = " + ", ".join(f"{n} {v:.6f}" for n, v in
-                                   zip(entry["decision_vector"]["names"],
-                                       entry["decision_vector"]["values"])))
+        print(
+            f"  best-known objective {entry['objective']:.6f} (total DSM "
+            f"{entry['total_dv_km_s']:.6f} km/s, gain {entry['vinf_gain_km_s']:.6f} km/s, "
+            f"feasible {entry['feasible']}, holds in the verification "
+            f"{entry['verification']['holds']}), {entry['evaluations']:,} evaluations, "
+            f"{entry['wall_s']} s"
+        )
+        print(
+            f"  ephemeris: {entry['ephemeris']}; margins: {entry['margins'] or 'none'}"
+            + (
+                f"; broken in the verification: {', '.join(entry['verification']['broken'])}"
+                if entry["verification"]["broken"]
+                else ""
+            )
+        )
+        print(
+            "  x = "
+            + ", ".join(
+                f"{n} {v:.6f}"
+                for n, v in zip(
+                    entry["decision_vector"]["names"], entry["decision_vector"]["values"]
+                )
+            )
+        )
         if not args.smoke:
             known[name] = entry
             out_path.write_text(json.dumps(known, indent=2) + "\n")

@@ -4,6 +4,7 @@ A benchmark runs the command exactly as a user would (``python -m leverage run .
 a child process) and reads the run's own numbers back from ``best.json`` and
 ``convergence.csv``.
 """
+
 import csv
 import json
 import os
@@ -40,8 +41,12 @@ def machine() -> dict:
     """Cores, CPU, Python and package versions of this machine."""
     from leverage.record.design import package_versions
 
-    return {"cores": os.cpu_count(), "cpu": cpu_model(), "platform": platform.platform(),
-            "packages": package_versions()}
+    return {
+        "cores": os.cpu_count(),
+        "cpu": cpu_model(),
+        "platform": platform.platform(),
+        "packages": package_versions(),
+    }
 
 
 def print_header(title: str) -> None:
@@ -66,16 +71,31 @@ def leverage_run(problem, out_dir, *options, env=None) -> dict:
     Returns the run's own numbers: exit code, process wall time (s), ``best.json``
     (or None) and the convergence log rows (dicts of floats).
     """
-    cmd = [sys.executable, "-m", "leverage", "run", str(problem), "--out", str(out_dir),
-           "--force", "--quiet", *[str(o) for o in options]]
+    cmd = [
+        sys.executable,
+        "-m",
+        "leverage",
+        "run",
+        str(problem),
+        "--out",
+        str(out_dir),
+        "--force",
+        "--quiet",
+        *[str(o) for o in options],
+    ]
     start = time.perf_counter()
     proc = subprocess.run(cmd, capture_output=True, text=True, env=env, cwd=ROOT)
     wall = time.perf_counter() - start
     best_path = Path(out_dir) / "best.json"
     best = json.loads(best_path.read_text()) if best_path.exists() else None
     rows = read_log(Path(out_dir) / "convergence.csv")
-    return {"returncode": proc.returncode, "process_wall_s": wall, "best": best, "log": rows,
-            "stderr": proc.stderr}
+    return {
+        "returncode": proc.returncode,
+        "process_wall_s": wall,
+        "best": best,
+        "log": rows,
+        "stderr": proc.stderr,
+    }
 
 
 def read_log(path) -> list:

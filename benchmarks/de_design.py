@@ -14,6 +14,7 @@ inside compiled code (numba loop over random epochs, best of ``--repeats``):
 
 Usage: python -m benchmarks.de_design [--epochs N] [--repeats N]
 """
+
 import argparse
 import sys
 import time
@@ -129,13 +130,16 @@ def main(argv=None) -> int:
     ts = T0 + 1.0 + rng.random(args.epochs) * (T1 - T0 - 2.0)
     earth = D.build_table("de421", "earth", T0, T1)
     p1 = packed(earth)
-    print(f"Earth from DE421, {D._calendar(T0)} .. {D._calendar(T1)}: {int(earth.header[2])} "
-          f"granules x 3 x {int(earth.header[3])} coefficients = "
-          f"{D.table_bytes(earth) / 1e6:.3f} MB")
+    print(
+        f"Earth from DE421, {D._calendar(T0)} .. {D._calendar(T1)}: {int(earth.header[2])} "
+        f"granules x 3 x {int(earth.header[3])} coefficients = "
+        f"{D.table_bytes(earth) / 1e6:.3f} MB"
+    )
 
     # Raw terms, each on its own table (rotated to ecliptic; the cost is the same).
     import de421
     from jplephem import Ephemeris
+
     emrat = Ephemeris(de421).EMRAT
     raw = []
     for name in ("earthmoon", "moon", "sun"):
@@ -150,11 +154,18 @@ def main(argv=None) -> int:
     p3 = packed(*raw)
     share = 1.0 / (1.0 + emrat)
     r_chk = np.array([E.body_state_in(p1, 0, t)[0] for t in ts[:200]])
-    r_three = np.array([E.chebyshev_state(p3, 0, t)[0] - share * E.chebyshev_state(
-        p3, E.EPHEMERIS_SIZE, t)[0] - E.chebyshev_state(p3, 2 * E.EPHEMERIS_SIZE, t)[0]
-        for t in ts[:200]])
-    print(f"build-time vs evaluation-time combination: largest difference "
-          f"{np.abs(r_chk - r_three).max():.2e} km (200 epochs)")
+    r_three = np.array(
+        [
+            E.chebyshev_state(p3, 0, t)[0]
+            - share * E.chebyshev_state(p3, E.EPHEMERIS_SIZE, t)[0]
+            - E.chebyshev_state(p3, 2 * E.EPHEMERIS_SIZE, t)[0]
+            for t in ts[:200]
+        ]
+    )
+    print(
+        f"build-time vs evaluation-time combination: largest difference "
+        f"{np.abs(r_chk - r_three).max():.2e} km (200 epochs)"
+    )
 
     _loop_one(p1, ts[:10])
     _loop_three(p3, ts[:10], E.EPHEMERIS_SIZE, 2 * E.EPHEMERIS_SIZE, share)
@@ -162,8 +173,9 @@ def main(argv=None) -> int:
     _loop_mean(eph, ts[:10])
     n = len(ts)
     one = best_ns(args.repeats, lambda: _loop_one(p1, ts), n)
-    three = best_ns(args.repeats, lambda: _loop_three(p3, ts, E.EPHEMERIS_SIZE,
-                                                       2 * E.EPHEMERIS_SIZE, share), n)
+    three = best_ns(
+        args.repeats, lambda: _loop_three(p3, ts, E.EPHEMERIS_SIZE, 2 * E.EPHEMERIS_SIZE, share), n
+    )
     mean = best_ns(args.repeats, lambda: _loop_mean(eph, ts), n)
     print(f"  1. one table, combined at build time     {one:7.1f} ns/state")
     print(f"  2. three tables, combined per evaluation {three:7.1f} ns/state")
@@ -183,8 +195,10 @@ def main(argv=None) -> int:
         dr = np.abs(np.array([a for a, _ in got]) - r_ref).max()
         dv = np.abs(np.array([b for _, b in got]) - v_ref).max() * 1e6
         cost = best_ns(args.repeats, lambda: _loop_hermite(tab, T0, h, ts), n)
-        print(f"     step {step_days:4.2f} d: {tab.nbytes / 1e6:6.3f} MB, largest error "
-              f"{dr:9.3f} km, {dv:9.3f} mm/s, {cost:7.1f} ns/state")
+        print(
+            f"     step {step_days:4.2f} d: {tab.nbytes / 1e6:6.3f} MB, largest error "
+            f"{dr:9.3f} km, {dv:9.3f} mm/s, {cost:7.1f} ns/state"
+        )
     print_footer()
     return 0
 

@@ -30,6 +30,7 @@ process) and all cores for a front run (numba-parallel batches in one process).
 
 Usage: python -m benchmarks.eval_cost [--points N] [--baseline-points N] [--smoke]
 """
+
 import argparse
 import copy
 import dataclasses
@@ -88,25 +89,29 @@ def measure_floor(compiled, xs, repeats):
 
     def chunks():
         for i in range(0, n, 64):
-            trajectory.batch_fitness(xs[i:i + 64], p)
+            trajectory.batch_fitness(xs[i : i + 64], p)
+
     wall = best_of(repeats, chunks) / n * 1e6
     out[f"batches of 64, {threads} threads (per core)"] = wall * threads
 
     def per_call():
         for x in xs:
             trajectory.fitness(x, p)
+
     out["trajectory.fitness per call"] = best_of(repeats, per_call) / n * 1e6
     udp = LeveragingUDP.from_compiled(compiled)
 
     def udp_call():
         for x in xs:
             udp.fitness(x)
+
     out["LeveragingUDP.fitness per call"] = best_of(repeats, udp_call) / n * 1e6
     prob = pg.problem(udp)
 
     def pg_call():
         for x in xs:
             prob.fitness(x)
+
     out["pygmo.problem.fitness per call"] = best_of(repeats, pg_call) / n * 1e6
     return out
 
@@ -131,16 +136,22 @@ def measure_de_table(compiled, compiled_mean, xs, repeats):
     numba.set_num_threads(1)
     trajectory.batch_fitness(xs[:4], p_de)
     trajectory.fitness(xs[0], p_de)
-    out = {"mean elements, batch": [], "DE421 table, batch": [],
-           "mean elements, per call": [], "DE421 table, per call": []}
+    out = {
+        "mean elements, batch": [],
+        "DE421 table, batch": [],
+        "mean elements, per call": [],
+        "DE421 table, per call": [],
+    }
     for _ in range(repeats):
         for label, p in (("mean elements", p_mean), ("DE421 table", p_de)):
             out[f"{label}, batch"].append(
-                best_of(1, lambda: trajectory.batch_fitness(xs, p)) / n * 1e6)
+                best_of(1, lambda: trajectory.batch_fitness(xs, p)) / n * 1e6
+            )
 
             def per_call():
                 for x in xs:
                     trajectory.fitness(x, p)
+
             out[f"{label}, per call"].append(best_of(1, per_call) / n * 1e6)
     numba.set_num_threads(threads)
     table_mb = (p_de.size - p_mean.size) * 8 / 1e6
@@ -173,7 +184,8 @@ def measure_in_process(compiled, evaluations, population):
         pop = algo.evolve(pop)
         wall = time.perf_counter() - start
         out[f"pso_gen + batch evaluation, population {pop_size}"] = (
-            wall / (pop.problem.get_fevals() - before) * 1e6)
+            wall / (pop.problem.get_fevals() - before) * 1e6
+        )
     numba.set_num_threads(threads)
     if FRONT_PROBLEM.exists() and importlib.util.find_spec("leverage.search.fronts"):
         front = load_problem(FRONT_PROBLEM).compile()
@@ -189,8 +201,10 @@ def measure_in_process(compiled, evaluations, population):
             start = time.perf_counter()
             pop = pg.algorithm(uda).evolve(pop)
             wall = time.perf_counter() - start
-            out[f"trade-front: nsga2 + batch evaluation, pop. {size}, {n_threads} thread(s), "
-                f"per core"] = wall * n_threads / (pop.problem.get_fevals() - before) * 1e6
+            out[
+                f"trade-front: nsga2 + batch evaluation, pop. {size}, {n_threads} thread(s), "
+                f"per core"
+            ] = wall * n_threads / (pop.problem.get_fevals() - before) * 1e6
         numba.set_num_threads(threads)
     return out
 
@@ -205,9 +219,14 @@ def run_rates(label, problem, cores, *options):
         return None
     evals = best["run"]["evaluations"]
     wall = best["run"]["wall_time_s"]
-    out = {"label": label, "cores": cores, "evaluations": evals, "wall_s": wall,
-           "process_wall_s": res["process_wall_s"],
-           "us_per_eval_per_core": wall * cores / evals * 1e6}
+    out = {
+        "label": label,
+        "cores": cores,
+        "evaluations": evals,
+        "wall_s": wall,
+        "process_wall_s": res["process_wall_s"],
+        "us_per_eval_per_core": wall * cores / evals * 1e6,
+    }
     # Steady state: from the end of the first evolution (which includes starting the
     # worker processes) to the end of the last, from the convergence log.
     # Island rows only: a front run's log also has an all-islands "front" row per evolution.
@@ -244,34 +263,53 @@ def measure_baseline(problem, compiled, xs):
             continue
         diffs.append(abs(q[L.Q_DSM] - res["dsm_kms"]))
         obj_rel.append(abs(f[0] - res["objective"]) / max(1.0, abs(f[0])))
-    return {"us_per_eval": wall / len(xs) * 1e6, "first_use_s": first_use, "compared": len(diffs), "points": len(xs),
-            "max_dsm_diff_m_s": 1000 * max(diffs) if diffs else float("nan"),
-            "max_objective_rel_diff": max(obj_rel) if obj_rel else float("nan")}
+    return {
+        "us_per_eval": wall / len(xs) * 1e6,
+        "first_use_s": first_use,
+        "compared": len(diffs),
+        "points": len(xs),
+        "max_dsm_diff_m_s": 1000 * max(diffs) if diffs else float("nan"),
+        "max_objective_rel_diff": max(obj_rel) if obj_rel else float("nan"),
+    }
 
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--points", type=int, default=20000, help="random points for the floor")
-    ap.add_argument("--baseline-points", type=int, default=300,
-                    help="points evaluated by the unit-aware baseline")
+    ap.add_argument(
+        "--baseline-points",
+        type=int,
+        default=300,
+        help="points evaluated by the unit-aware baseline",
+    )
     ap.add_argument("--in-process-evaluations", type=int, default=48000)
     ap.add_argument("--repeats", type=int, default=5)
     ap.add_argument("--smoke", action="store_true", help="tiny sizes: checks that it runs")
     args = ap.parse_args(argv)
     if args.smoke:
-        args.points, args.baseline_points, args.in_process_evaluations, args.repeats = 200, 3, 480, 1
-    print_header("evaluation cost" + (" (smoke: tiny sizes, figures meaningless)" if args.smoke
-                                      else ""))
+        args.points, args.baseline_points, args.in_process_evaluations, args.repeats = (
+            200,
+            3,
+            480,
+            1,
+        )
+    print_header(
+        "evaluation cost" + (" (smoke: tiny sizes, figures meaningless)" if args.smoke else "")
+    )
     problem = load_problem(DEMO)
     compiled = problem.compile()
     compiled_mean = mean_element_twin(problem)
     xs = random_points(compiled, args.points)
-    print(f"demo compiled with: {compiled.ephemeris}; margins "
-          f"{ {k: v for k, v in problem.values['margins'].items() if v > 0.0} }")
+    print(
+        f"demo compiled with: {compiled.ephemeris}; margins "
+        f"{ {k: v for k, v in problem.values['margins'].items() if v > 0.0} }"
+    )
     cores = os.cpu_count() or 1
 
-    print(f"\n1. floor: demo problem, {args.points} random points inside the bounds, "
-          f"best of {args.repeats}")
+    print(
+        f"\n1. floor: demo problem, {args.points} random points inside the bounds, "
+        f"best of {args.repeats}"
+    )
     floor = measure_floor(compiled, xs, args.repeats)
     for key, value in floor.items():
         print(f"  {key:<40} {value:8.2f} us/evaluation")
@@ -285,18 +323,26 @@ def main(argv=None) -> int:
         numba.set_num_threads(1)
         front_floor = best_of(args.repeats, lambda: trajectory.batch_fitness(fxs, front.params))
         numba.set_num_threads(threads)
-        print(f"  {'trade-front problem: batch, 1 thread':<40} "
-              f"{front_floor / args.points * 1e6:8.2f} us/evaluation")
+        print(
+            f"  {'trade-front problem: batch, 1 thread':<40} "
+            f"{front_floor / args.points * 1e6:8.2f} us/evaluation"
+        )
     de, table_mb = measure_de_table(compiled, compiled_mean, xs, args.repeats)
-    print(f"  Earth from JPL DE421 Chebyshev table ({table_mb:.2f} MB appended to p; the "
-          "default) against mean elements, 1 thread, timed alternately:")
+    print(
+        f"  Earth from JPL DE421 Chebyshev table ({table_mb:.2f} MB appended to p; the "
+        "default) against mean elements, 1 thread, timed alternately:"
+    )
     for kind in ("batch", "per call"):
         mean_us, de_us = de[f"mean elements, {kind}"], de[f"DE421 table, {kind}"]
-        print(f"    {kind:<10} mean elements {mean_us:8.2f} us, DE421 table {de_us:8.2f} us/evaluation"
-              f" = {de_us / mean_us:5.2f} x mean elements (target <= 1.3 x)")
+        print(
+            f"    {kind:<10} mean elements {mean_us:8.2f} us, DE421 table {de_us:8.2f} us/evaluation"
+            f" = {de_us / mean_us:5.2f} x mean elements (target <= 1.3 x)"
+        )
 
-    print(f"\n2. algorithms evolving one population in this process, 1 numba thread unless "
-          f"said, {args.in_process_evaluations} evaluations each (random start population)")
+    print(
+        f"\n2. algorithms evolving one population in this process, 1 numba thread unless "
+        f"said, {args.in_process_evaluations} evaluations each (random start population)"
+    )
     for key, value in measure_in_process(compiled, args.in_process_evaluations, 24).items():
         print(f"  {key:<72} {value:8.2f} us/evaluation  {value / floor_us:5.2f} x floor")
 
@@ -305,50 +351,74 @@ def main(argv=None) -> int:
     islands = problem.values["search"]["islands"]
     smoke_opts = ["--generations", "4"] if args.smoke else []
     if not args.smoke:  # worker-process start-up alone would take the smoke's time
-        runs.append(run_rates(f"demo, its settings ({islands} islands)", DEMO,
-                              min(islands, cores)))
+        runs.append(run_rates(f"demo, its settings ({islands} islands)", DEMO, min(islands, cores)))
     runs.append(run_rates("demo, --islands 1", DEMO, 1, "--islands", "1", *smoke_opts))
     if importlib.util.find_spec("leverage.search.fronts") and FRONT_PROBLEM.exists():
-        runs.append(run_rates("trade-front (multi-objective, batch evaluation)", FRONT_PROBLEM,
-                              cores, *(["--generations", "4"] if args.smoke else [])))
+        runs.append(
+            run_rates(
+                "trade-front (multi-objective, batch evaluation)",
+                FRONT_PROBLEM,
+                cores,
+                *(["--generations", "4"] if args.smoke else []),
+            )
+        )
     else:
-        print("  multi-objective: skipped (leverage/fronts.py or problems/trade-front.toml "
-              "not present yet)")
+        print(
+            "  multi-objective: skipped (leverage/fronts.py or problems/trade-front.toml "
+            "not present yet)"
+        )
     for r in runs:
         if r is None:
             continue
-        line = (f"  {r['label']:<48} {r['evaluations']:>8,} evaluations in {r['wall_s']:.2f} s "
-                f"on {r['cores']} core(s): {r['us_per_eval_per_core']:6.2f} us/evaluation/core "
-                f"= {r['us_per_eval_per_core'] / floor_us:5.2f} x floor")
+        line = (
+            f"  {r['label']:<48} {r['evaluations']:>8,} evaluations in {r['wall_s']:.2f} s "
+            f"on {r['cores']} core(s): {r['us_per_eval_per_core']:6.2f} us/evaluation/core "
+            f"= {r['us_per_eval_per_core'] / floor_us:5.2f} x floor"
+        )
         if "steady_us_per_eval_per_core" in r:
             s = r["steady_us_per_eval_per_core"]
-            line += (f"; after the first evolution ({r['first_evolution_s']:.2f} s): "
-                     f"{s:6.2f} us = {s / floor_us:5.2f} x floor")
+            line += (
+                f"; after the first evolution ({r['first_evolution_s']:.2f} s): "
+                f"{s:6.2f} us = {s / floor_us:5.2f} x floor"
+            )
         print(line)
 
-    print(f"\n4. unit-aware baseline (poliastro Orbit/propagate/izzo.lambert, astropy "
-          f"quantities) on the first {args.baseline_points} of the same points")
+    print(
+        f"\n4. unit-aware baseline (poliastro Orbit/propagate/izzo.lambert, astropy "
+        f"quantities) on the first {args.baseline_points} of the same points"
+    )
     if args.smoke:
-        print("  skipped in smoke mode: poliastro compiles its (uncached) numba kernels on "
-              "first use in every process, about 20 s")
+        print(
+            "  skipped in smoke mode: poliastro compiles its (uncached) numba kernels on "
+            "first use in every process, about 20 s"
+        )
         print_footer()
         return 0
     # The baseline's planets come from Standish's elements: compare with that compile.
-    base = measure_baseline(problem, compiled_mean, xs[:args.baseline_points])
+    base = measure_baseline(problem, compiled_mean, xs[: args.baseline_points])
     per_call = floor["trajectory.fitness per call"]
-    print(f"  baseline: {base['us_per_eval']:.0f} us/evaluation, after {base['first_use_s']:.1f} s "
-          "for its first two evaluations (poliastro compiles its uncached kernels)")
-    print(f"  DSM agreement (against the mean-element compile) on {base['compared']}/"
-          f"{base['points']} points solved by both: "
-          f"largest difference {base['max_dsm_diff_m_s']:.4f} m/s "
-          f"({'within' if base['max_dsm_diff_m_s'] <= 1.0 else 'NOT within'} 1 m/s); "
-          f"largest relative objective difference {base['max_objective_rel_diff']:.2e}")
-    print(f"  speed-up: {base['us_per_eval'] / floor_us:,.0f} x (vs the floor, DE421), "
-          f"{base['us_per_eval'] / per_call:,.0f} x (vs one compiled call)", end="")
+    print(
+        f"  baseline: {base['us_per_eval']:.0f} us/evaluation, after {base['first_use_s']:.1f} s "
+        "for its first two evaluations (poliastro compiles its uncached kernels)"
+    )
+    print(
+        f"  DSM agreement (against the mean-element compile) on {base['compared']}/"
+        f"{base['points']} points solved by both: "
+        f"largest difference {base['max_dsm_diff_m_s']:.4f} m/s "
+        f"({'within' if base['max_dsm_diff_m_s'] <= 1.0 else 'NOT within'} 1 m/s); "
+        f"largest relative objective difference {base['max_objective_rel_diff']:.2e}"
+    )
+    print(
+        f"  speed-up: {base['us_per_eval'] / floor_us:,.0f} x (vs the floor, DE421), "
+        f"{base['us_per_eval'] / per_call:,.0f} x (vs one compiled call)",
+        end="",
+    )
     in_run = [r for r in runs[:1] if r is not None]
     if in_run:
-        print(f", {base['us_per_eval'] / in_run[0]['us_per_eval_per_core']:,.0f} x "
-              f"(vs the cost per core in the demo run)")
+        print(
+            f", {base['us_per_eval'] / in_run[0]['us_per_eval_per_core']:,.0f} x "
+            f"(vs the cost per core in the demo run)"
+        )
     else:
         print()
     print_footer()

@@ -7,6 +7,7 @@ first call of the pygmo problem's fitness or batch fitness writes two wall-clock
 first call loads, or on a cold cache compiles, the kernels). The parent process
 compares them with the wall-clock time at which it started this process.
 """
+
 import sys
 import time
 
@@ -27,6 +28,7 @@ def _wrap(method):
         with open(_marker, "w", encoding="utf-8") as fh:
             fh.write(f"{start!r} {time.time()!r}")
         return out
+
     wrapper.__name__ = method.__name__
     wrapper.__doc__ = method.__doc__
     return wrapper

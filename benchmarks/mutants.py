@@ -16,6 +16,7 @@ Usage: python -m benchmarks.mutants [--only NAME ...] [--list] [--smoke] [--keep
   --smoke  one mutant only (the unpowered turn halved, caught by Curtis's Example 8.6 in
            tests/core/test_flyby.py, which compiles two small kernels), plus its clean run
 """
+
 import argparse
 import os
 import re
@@ -29,105 +30,182 @@ from pathlib import Path
 
 from benchmarks.common import ROOT, print_footer, print_header
 
-IGNORE = shutil.ignore_patterns(".git", ".venv", "results", "__pycache__", ".hypothesis",
-                                ".pytest_cache", ".ruff_cache", "*.egg-info", "build")
+IGNORE = shutil.ignore_patterns(
+    ".git",
+    ".venv",
+    "results",
+    "__pycache__",
+    ".hypothesis",
+    ".pytest_cache",
+    ".ruff_cache",
+    "*.egg-info",
+    "build",
+)
 
 
 @dataclass(frozen=True)
 class Mutant:
     name: str
-    path: str      # file, relative to the repository root
-    old: str       # exact text, must occur once
+    path: str  # file, relative to the repository root
+    old: str  # exact text, must occur once
     new: str
-    tests: tuple   # test files or node ids (relative to the root) that should catch it
+    tests: tuple  # test files or node ids (relative to the root) that should catch it
     why: str
 
 
 MUTANTS = (
-    Mutant("alt-margin-from-radius", "leverage/core/trajectory.py",
-           "q[L.Q_MARGIN_ALT_KM] = q[L.Q_ALT] - p[L.P_MIN_ALT_KM]",
-           "q[L.Q_MARGIN_ALT_KM] = q[L.Q_RP] - p[L.P_MIN_ALT_KM]",
-           ("tests/problem/test_target.py",),
-           "flyby altitude margin from the periapsis radius (radius vs altitude)"),
-    Mutant("screen-dsm-doubled", "leverage/problem/screen.py",
-           "d = dv_kms / self.v_b", "d = 2.0 * dv_kms / self.v_b",
-           ("tests/problem/test_screen.py",),
-           "the screen's DSM counted twice (factor 2)"),
-    Mutant("turn-angle-half", "leverage/core/flyby.py",
-           "return 2.0 * np.arcsin(1.0 / hyperbola_ecc(mu, vinf, rp))",
-           "return np.arcsin(1.0 / hyperbola_ecc(mu, vinf, rp))",
-           ("tests/core/test_flyby.py::test_curtis_example_8_6_vinf_and_turn",),
-           "unpowered turn asin(1/e) instead of 2 asin(1/e) (factor 2)"),
-    Mutant("periapsis-is-altitude", "leverage/core/trajectory.py",
-           "rp = p[L.P_BODY_RADIUS_KM] + alt", "rp = alt",
-           ("tests/core/test_trajectory.py",),
-           "free flyby periapsis radius taken as the altitude (radius vs altitude)"),
-    Mutant("launch-angle-degrees", "leverage/core/trajectory.py",
-           "x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG] * _DEG,", "x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG],",
-           ("tests/core/test_trajectory.py",),
-           "launch in-plane angle used in degrees as radians"),
-    Mutant("flyby-mu-of-the-sun", "leverage/core/trajectory.py",
-           "turn = turn_angle(p[L.P_BODY_MU], speed_in, rp)",
-           "turn = turn_angle(p[L.P_MU_SUN], speed_in, rp)",
-           ("tests/core/test_trajectory.py",),
-           "flyby turned with the Sun's GM (wrong mu)"),
-    Mutant("penalty-sign", "leverage/core/penalties.py",
-           "v = -margin / scale", "v = margin / scale",
-           ("tests/core/test_penalties.py",),
-           "violation measured with the wrong sign"),
-    Mutant("penalty-skips-last-margin", "leverage/core/penalties.py",
-           "for k in range(L.N_MARGINS):", "for k in range(L.N_MARGINS - 1):",
-           ("tests/core/test_penalties.py",),
-           "the last margin (arrival window) never penalised"),
-    Mutant("powered-burn-half-well", "leverage/core/flyby.py",
-           "k = 2.0 * mu / rp", "k = mu / rp",
-           ("tests/core/test_powered_flyby.py",),
-           "periapsis speed from v^2 + mu/rp instead of v^2 + 2 mu/rp (factor 2)"),
-    Mutant("powered-turn-one-speed", "leverage/core/flyby.py",
-           "+ np.arcsin(1.0 / hyperbola_ecc(mu, vinf_out, rp)))",
-           "+ np.arcsin(1.0 / hyperbola_ecc(mu, vinf_in, rp)))",
-           ("tests/core/test_powered_flyby.py",),
-           "powered turn with the incoming speed on both halves"),
-    Mutant("dsm-sign", "leverage/core/trajectory.py",
-           "dsm = v1p - v1m", "dsm = v1m - v1p",
-           ("tests/core/test_trajectory.py",),
-           "DSM vector reversed (same size, wrong direction)"),
-    Mutant("gain-sign", "leverage/core/trajectory.py",
-           "q[L.Q_GAIN] = speed_in - q[L.Q_VINF_LAUNCH]",
-           "q[L.Q_GAIN] = q[L.Q_VINF_LAUNCH] - speed_in",
-           ("tests/core/test_trajectory.py",),
-           "v-infinity gain with the wrong sign"),
-    Mutant("lambert-label-swapped", "leverage/core/trajectory.py",
-           "q[L.Q_LOW_PATH] = 1.0 if low else 0.0", "q[L.Q_LOW_PATH] = 0.0 if low else 1.0",
-           ("tests/reports/test_summary.py",),
-           "low-path/high-path label swapped in the record and summary"),
-    Mutant("retrograde-loop-arc", "leverage/core/trajectory.py",
-           "lambert(p[L.P_MU_SUN], r1, r2, t2 - t1, revs, True, low)",
-           "lambert(p[L.P_MU_SUN], r1, r2, t2 - t1, revs, False, low)",
-           ("tests/core/test_trajectory.py",),
-           "DSM-to-flyby Lambert arc solved retrograde"),
-    Mutant("obliquity-in-degrees", "leverage/core/constants.py",
-           "OBLIQUITY_J2000_RAD = 84381.448 / 3600.0 * math.pi / 180.0",
-           "OBLIQUITY_J2000_RAD = 84381.448 / 3600.0",
-           ("tests/core/test_frames.py",),
-           "obliquity of the ecliptic in degrees used as radians"),
-    Mutant("element-rates-per-year", "leverage/core/ephemeris.py",
-           "cent = t / JULIAN_CENTURY_S", "cent = t / (JULIAN_CENTURY_S / 100.0)",
-           ("tests/core/test_ephemeris.py",),
-           "Standish's per-century element rates applied per year"),
-    Mutant("rocket-equation-without-g0", "leverage/core/mass.py",
-           "np.exp(-dv / (G0_KM_S2 * isp_s))", "np.exp(-dv / isp_s)",
-           ("tests/problem/test_vehicle.py",),
-           "rocket equation without g0 (units)"),
-    Mutant("sun-gm-off-by-1e-6", "leverage/astro/bodies.py",
-           "GM_SUN_KM3_S2 = 132_712_440_041.279419",
-           "GM_SUN_KM3_S2 = 132_712_440_041.279419 * (1.0 + 1e-6)",
-           ("tests/astro/test_bodies.py",),
-           "the Sun's GM a millionth off (wrong mu)"),
-    Mutant("dates-in-utc-not-tdb", "leverage/astro/times.py",
-           "t = to_time(value, scale).tdb", "t = to_time(value, scale).utc",
-           ("tests/astro/test_times.py",),
-           "calendar dates counted in UTC instead of TDB (a 69 s time-scale mix-up)"),
+    Mutant(
+        "alt-margin-from-radius",
+        "leverage/core/trajectory.py",
+        "q[L.Q_MARGIN_ALT_KM] = q[L.Q_ALT] - p[L.P_MIN_ALT_KM]",
+        "q[L.Q_MARGIN_ALT_KM] = q[L.Q_RP] - p[L.P_MIN_ALT_KM]",
+        ("tests/problem/test_target.py",),
+        "flyby altitude margin from the periapsis radius (radius vs altitude)",
+    ),
+    Mutant(
+        "screen-dsm-doubled",
+        "leverage/problem/screen.py",
+        "d = dv_kms / self.v_b",
+        "d = 2.0 * dv_kms / self.v_b",
+        ("tests/problem/test_screen.py",),
+        "the screen's DSM counted twice (factor 2)",
+    ),
+    Mutant(
+        "turn-angle-half",
+        "leverage/core/flyby.py",
+        "return 2.0 * np.arcsin(1.0 / hyperbola_ecc(mu, vinf, rp))",
+        "return np.arcsin(1.0 / hyperbola_ecc(mu, vinf, rp))",
+        ("tests/core/test_flyby.py::test_curtis_example_8_6_vinf_and_turn",),
+        "unpowered turn asin(1/e) instead of 2 asin(1/e) (factor 2)",
+    ),
+    Mutant(
+        "periapsis-is-altitude",
+        "leverage/core/trajectory.py",
+        "rp = p[L.P_BODY_RADIUS_KM] + alt",
+        "rp = alt",
+        ("tests/core/test_trajectory.py",),
+        "free flyby periapsis radius taken as the altitude (radius vs altitude)",
+    ),
+    Mutant(
+        "launch-angle-degrees",
+        "leverage/core/trajectory.py",
+        "x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG] * _DEG,",
+        "x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG],",
+        ("tests/core/test_trajectory.py",),
+        "launch in-plane angle used in degrees as radians",
+    ),
+    Mutant(
+        "flyby-mu-of-the-sun",
+        "leverage/core/trajectory.py",
+        "turn = turn_angle(p[L.P_BODY_MU], speed_in, rp)",
+        "turn = turn_angle(p[L.P_MU_SUN], speed_in, rp)",
+        ("tests/core/test_trajectory.py",),
+        "flyby turned with the Sun's GM (wrong mu)",
+    ),
+    Mutant(
+        "penalty-sign",
+        "leverage/core/penalties.py",
+        "v = -margin / scale",
+        "v = margin / scale",
+        ("tests/core/test_penalties.py",),
+        "violation measured with the wrong sign",
+    ),
+    Mutant(
+        "penalty-skips-last-margin",
+        "leverage/core/penalties.py",
+        "for k in range(L.N_MARGINS):",
+        "for k in range(L.N_MARGINS - 1):",
+        ("tests/core/test_penalties.py",),
+        "the last margin (arrival window) never penalised",
+    ),
+    Mutant(
+        "powered-burn-half-well",
+        "leverage/core/flyby.py",
+        "k = 2.0 * mu / rp",
+        "k = mu / rp",
+        ("tests/core/test_powered_flyby.py",),
+        "periapsis speed from v^2 + mu/rp instead of v^2 + 2 mu/rp (factor 2)",
+    ),
+    Mutant(
+        "powered-turn-one-speed",
+        "leverage/core/flyby.py",
+        "1.0 / hyperbola_ecc(mu, vinf_out, rp)\n    )",
+        "1.0 / hyperbola_ecc(mu, vinf_in, rp)\n    )",
+        ("tests/core/test_powered_flyby.py",),
+        "powered turn with the incoming speed on both halves",
+    ),
+    Mutant(
+        "dsm-sign",
+        "leverage/core/trajectory.py",
+        "dsm = v1p - v1m",
+        "dsm = v1m - v1p",
+        ("tests/core/test_trajectory.py",),
+        "DSM vector reversed (same size, wrong direction)",
+    ),
+    Mutant(
+        "gain-sign",
+        "leverage/core/trajectory.py",
+        "q[L.Q_GAIN] = speed_in - q[L.Q_VINF_LAUNCH]",
+        "q[L.Q_GAIN] = q[L.Q_VINF_LAUNCH] - speed_in",
+        ("tests/core/test_trajectory.py",),
+        "v-infinity gain with the wrong sign",
+    ),
+    Mutant(
+        "lambert-label-swapped",
+        "leverage/core/trajectory.py",
+        "q[L.Q_LOW_PATH] = 1.0 if low else 0.0",
+        "q[L.Q_LOW_PATH] = 0.0 if low else 1.0",
+        ("tests/reports/test_summary.py",),
+        "low-path/high-path label swapped in the record and summary",
+    ),
+    Mutant(
+        "retrograde-loop-arc",
+        "leverage/core/trajectory.py",
+        "lambert(p[L.P_MU_SUN], r1, r2, t2 - t1, revs, True, low)",
+        "lambert(p[L.P_MU_SUN], r1, r2, t2 - t1, revs, False, low)",
+        ("tests/core/test_trajectory.py",),
+        "DSM-to-flyby Lambert arc solved retrograde",
+    ),
+    Mutant(
+        "obliquity-in-degrees",
+        "leverage/core/constants.py",
+        "OBLIQUITY_J2000_RAD = 84381.448 / 3600.0 * math.pi / 180.0",
+        "OBLIQUITY_J2000_RAD = 84381.448 / 3600.0",
+        ("tests/core/test_frames.py",),
+        "obliquity of the ecliptic in degrees used as radians",
+    ),
+    Mutant(
+        "element-rates-per-year",
+        "leverage/core/ephemeris.py",
+        "cent = t / JULIAN_CENTURY_S",
+        "cent = t / (JULIAN_CENTURY_S / 100.0)",
+        ("tests/core/test_ephemeris.py",),
+        "Standish's per-century element rates applied per year",
+    ),
+    Mutant(
+        "rocket-equation-without-g0",
+        "leverage/core/mass.py",
+        "np.exp(-dv / (G0_KM_S2 * isp_s))",
+        "np.exp(-dv / isp_s)",
+        ("tests/problem/test_vehicle.py",),
+        "rocket equation without g0 (units)",
+    ),
+    Mutant(
+        "sun-gm-off-by-1e-6",
+        "leverage/astro/bodies.py",
+        "GM_SUN_KM3_S2 = 132_712_440_041.279419",
+        "GM_SUN_KM3_S2 = 132_712_440_041.279419 * (1.0 + 1e-6)",
+        ("tests/astro/test_bodies.py",),
+        "the Sun's GM a millionth off (wrong mu)",
+    ),
+    Mutant(
+        "dates-in-utc-not-tdb",
+        "leverage/astro/times.py",
+        "t = to_time(value, scale).tdb",
+        "t = to_time(value, scale).utc",
+        ("tests/astro/test_times.py",),
+        "calendar dates counted in UTC instead of TDB (a 69 s time-scale mix-up)",
+    ),
 )
 SMOKE = "turn-angle-half"
 
@@ -143,17 +221,29 @@ def apply(repo: Path, mutant: Mutant) -> None:
     text = path.read_text(encoding="utf-8")
     count = text.count(mutant.old)
     if count != 1:
-        raise SystemExit(f"mutant {mutant.name}: the text to replace occurs {count} times in "
-                         f"{mutant.path} (the source changed; update benchmarks/mutants.py)")
+        raise SystemExit(
+            f"mutant {mutant.name}: the text to replace occurs {count} times in "
+            f"{mutant.path} (the source changed; update benchmarks/mutants.py)"
+        )
     path.write_text(text.replace(mutant.old, mutant.new), encoding="utf-8")
 
 
 def run_tests(repo: Path, tests, cache: Path) -> tuple[int, str, float]:
     """(pytest exit code, first failing test id or '', wall seconds) in the copy."""
-    env = dict(os.environ, NUMBA_CACHE_DIR=str(cache), PYTHONPATH=str(repo),
-               PYTHONDONTWRITEBYTECODE="1")
-    cmd = [sys.executable, "-m", "pytest", "-x", "-q", "-p", "no:cacheprovider",
-           "--hypothesis-seed=0", *tests]
+    env = dict(
+        os.environ, NUMBA_CACHE_DIR=str(cache), PYTHONPATH=str(repo), PYTHONDONTWRITEBYTECODE="1"
+    )
+    cmd = [
+        sys.executable,
+        "-m",
+        "pytest",
+        "-x",
+        "-q",
+        "-p",
+        "no:cacheprovider",
+        "--hypothesis-seed=0",
+        *tests,
+    ]
     start = time.perf_counter()
     proc = subprocess.run(cmd, cwd=repo, env=env, capture_output=True, text=True)
     wall = time.perf_counter() - start
@@ -210,8 +300,10 @@ def main(argv=None) -> int:
         print()
         print(f"{'mutant':<28} {'file':<30} {'result':<9} caught by")
         for m, verdict, detail, _ in rows:
-            print(f"{m.name:<28} {m.path.removeprefix('leverage/'):<30} {verdict:<9} "
-                  f"{detail if verdict == 'caught' else '-'}")
+            print(
+                f"{m.name:<28} {m.path.removeprefix('leverage/'):<30} {verdict:<9} "
+                f"{detail if verdict == 'caught' else '-'}"
+            )
         caught = sum(1 for _, v, _, _ in rows if v == "caught")
         print(f"caught {caught} of {len(rows)}")
         print_footer()

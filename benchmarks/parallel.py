@@ -21,6 +21,7 @@ work on the machine slows both sides and shrinks the speed-up.
 Usage: python -m benchmarks.parallel [--repeats 3] [--slice-days 30] [--seeds 2]
        [--generations 2000] [--smoke]
 """
+
 import argparse
 import resource
 import subprocess
@@ -39,9 +40,24 @@ def children_cpu_s() -> float:
 
 def sweep_wall(out, slice_days, seeds, workers, extra) -> tuple:
     """(wall s, CPU s) of one ``leverage sweep`` process and its workers."""
-    cmd = [sys.executable, "-m", "leverage", "sweep", str(DEMO), "--slice-days",
-           str(slice_days), "--seeds", str(seeds), "--workers", str(workers), "--out", str(out),
-           "--force", "--quiet", *extra]
+    cmd = [
+        sys.executable,
+        "-m",
+        "leverage",
+        "sweep",
+        str(DEMO),
+        "--slice-days",
+        str(slice_days),
+        "--seeds",
+        str(seeds),
+        "--workers",
+        str(workers),
+        "--out",
+        str(out),
+        "--force",
+        "--quiet",
+        *extra,
+    ]
     cpu0 = children_cpu_s()
     start = time.perf_counter()
     proc = subprocess.run(cmd, capture_output=True, text=True, cwd=ROOT)
@@ -57,8 +73,10 @@ def table_of(out) -> str:
 
 def report(label, one, two):
     m1, m2 = median(one), median(two)
-    print(f"  {label:<44} 1 worker {m1:7.2f} s   2 workers {m2:7.2f} s   "
-          f"speed-up {m1 / m2:5.2f}x   (min {min(one):.2f} / {min(two):.2f} s)")
+    print(
+        f"  {label:<44} 1 worker {m1:7.2f} s   2 workers {m2:7.2f} s   "
+        f"speed-up {m1 / m2:5.2f}x   (min {min(one):.2f} / {min(two):.2f} s)"
+    )
     sys.stdout.flush()
 
 
@@ -74,8 +92,11 @@ def main(argv=None) -> int:
     repeats = 1 if args.smoke else args.repeats
     slice_days = 180.0 if args.smoke else args.slice_days
     seeds = 1 if args.smoke else args.seeds
-    extra = (["--generations", "20", "--population", "8"] if args.smoke
-             else ["--generations", str(args.generations)])
+    extra = (
+        ["--generations", "20", "--population", "8"]
+        if args.smoke
+        else ["--generations", str(args.generations)]
+    )
     print_header("speed-up from 1 to 2 workers")
 
     with tempfile.TemporaryDirectory(prefix="leverage-parallel-") as tmp:
@@ -90,8 +111,10 @@ def main(argv=None) -> int:
 
 def measure_sweep(tmp, slice_days, seeds, extra, repeats):
     """Whole `leverage sweep` processes with 1 and 2 workers."""
-    print(f"\nsweep of the demo window: slices of {slice_days:g} days, {seeds} seed(s) "
-          f"each, {' '.join(extra)}, {repeats} repeat(s); whole process, median")
+    print(
+        f"\nsweep of the demo window: slices of {slice_days:g} days, {seeds} seed(s) "
+        f"each, {' '.join(extra)}, {repeats} repeat(s); whole process, median"
+    )
     times = {1: [], 2: []}
     cores = {1: [], 2: []}
     for _ in range(repeats):
@@ -101,8 +124,10 @@ def measure_sweep(tmp, slice_days, seeds, extra, repeats):
             cores[workers].append(cpu / wall)
     same = table_of(tmp / "s1") == table_of(tmp / "s2")
     report("sweep", times[1], times[2])
-    print(f"  cores used (CPU s / wall s, median): 1 worker {median(cores[1]):.2f}, "
-          f"2 workers {median(cores[2]):.2f}")
+    print(
+        f"  cores used (CPU s / wall s, median): 1 worker {median(cores[1]):.2f}, "
+        f"2 workers {median(cores[2]):.2f}"
+    )
     print(f"  same table with 1 and 2 workers: {'yes' if same else 'NO'}")
 
 
@@ -113,8 +138,10 @@ def measure_runs(tmp, repeats, smoke):
         sizes = [("smoke size", ["--generations", "20", "--population", "8"])]
     else:
         sizes.append(("4000 generations", ["--generations", "4000"]))
-    print(f"\nleverage run of the demo, 2 islands, {repeats} repeat(s); "
-          "process wall time and search time, median")
+    print(
+        f"\nleverage run of the demo, 2 islands, {repeats} repeat(s); "
+        "process wall time and search time, median"
+    )
     for label, options in sizes:
         walls = {1: [], 2: []}
         search = {1: [], 2: []}
@@ -123,8 +150,9 @@ def measure_runs(tmp, repeats, smoke):
         for _ in range(repeats):
             for workers in (1, 2):
                 cpu0 = children_cpu_s()
-                res = leverage_run(DEMO, tmp / f"r{workers}", "--islands", "2",
-                                   "--workers", str(workers), *options)
+                res = leverage_run(
+                    DEMO, tmp / f"r{workers}", "--islands", "2", "--workers", str(workers), *options
+                )
                 if res["best"] is None:
                     raise RuntimeError(res["stderr"][-400:])
                 walls[workers].append(res["process_wall_s"])
@@ -133,10 +161,13 @@ def measure_runs(tmp, repeats, smoke):
                 answers[workers] = res["best"]["decision_vector"]["values"]
         report(f"run, {label}: process", walls[1], walls[2])
         report(f"run, {label}: search", search[1], search[2])
-        print(f"  cores used by the whole process (median): 1 worker {median(cores[1]):.2f}, "
-              f"2 workers {median(cores[2]):.2f}")
-        print(f"  same champion with 1 and 2 workers: "
-              f"{'yes' if answers[1] == answers[2] else 'NO'}")
+        print(
+            f"  cores used by the whole process (median): 1 worker {median(cores[1]):.2f}, "
+            f"2 workers {median(cores[2]):.2f}"
+        )
+        print(
+            f"  same champion with 1 and 2 workers: {'yes' if answers[1] == answers[2] else 'NO'}"
+        )
 
 
 if __name__ == "__main__":

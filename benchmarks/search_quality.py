@@ -16,6 +16,7 @@ Usage: python -m benchmarks.search_quality [--problems demo,earth-3yr] [--algori
        [--seeds 20] [--population N] [--generations N] [--islands N] [--file-settings]
        [--smoke]
 """
+
 import argparse
 import json
 import sys
@@ -32,8 +33,9 @@ TOLERANCE = 0.001  # objective units (km/s): 1 m/s
 
 def one_run(path, seed, algorithm, options, target):
     with tempfile.TemporaryDirectory(prefix="leverage-quality-") as tmp:
-        res = leverage_run(path, Path(tmp) / "out", "--seed", seed, "--algorithm", algorithm,
-                           *options)
+        res = leverage_run(
+            path, Path(tmp) / "out", "--seed", seed, "--algorithm", algorithm, *options
+        )
     best = res["best"]
     if best is None or "run" not in best:
         return {"ok": False, "error": res["stderr"].strip()[-200:]}
@@ -49,10 +51,17 @@ def one_run(path, seed, algorithm, options, target):
         if reach is None and hit:
             reach = best["run"]["wall_time_s"]
     holds = (best.get("verification") or {}).get("holds") is True
-    return {"ok": True, "objective": objective, "feasible": bool(best["feasible"]), "hit": hit,
-            "holds": holds,
-            "reach_s": reach if hit else None, "wall_s": best["run"]["wall_time_s"],
-            "process_wall_s": res["process_wall_s"], "evaluations": best["run"]["evaluations"]}
+    return {
+        "ok": True,
+        "objective": objective,
+        "feasible": bool(best["feasible"]),
+        "hit": hit,
+        "holds": holds,
+        "reach_s": reach if hit else None,
+        "wall_s": best["run"]["wall_time_s"],
+        "process_wall_s": res["process_wall_s"],
+        "evaluations": best["run"]["evaluations"],
+    }
 
 
 def main(argv=None) -> int:
@@ -63,8 +72,11 @@ def main(argv=None) -> int:
     ap.add_argument("--population", type=int)
     ap.add_argument("--generations", type=int)
     ap.add_argument("--islands", type=int)
-    ap.add_argument("--file-settings", action="store_true",
-                    help="each problem file's own [search] values instead of the defaults")
+    ap.add_argument(
+        "--file-settings",
+        action="store_true",
+        help="each problem file's own [search] values instead of the defaults",
+    )
     ap.add_argument("--smoke", action="store_true", help="tiny: demo, 2 seeds, 1 evolution")
     args = ap.parse_args(argv)
     if not args.file_settings:
@@ -80,51 +92,67 @@ def main(argv=None) -> int:
     for name in ("population", "generations", "islands"):
         if getattr(args, name) is not None:
             options += [f"--{name}", getattr(args, name)]
-    print_header("search quality" + (" (smoke: tiny sizes, figures meaningless)" if args.smoke
-                                     else ""))
+    print_header(
+        "search quality" + (" (smoke: tiny sizes, figures meaningless)" if args.smoke else "")
+    )
     known = json.loads(BEST_KNOWN.read_text()) if BEST_KNOWN.exists() else {}
     source = "each problem file's [search] values" if args.file_settings else "the defaults"
-    print(f"settings: {source}, {' '.join(map(str, options)) or 'no overrides'}"
-          + f"; seeds 1..{args.seeds}; hit = feasible and within {TOLERANCE * 1000:.0f} m/s "
-          "of the best-known objective")
+    print(
+        f"settings: {source}, {' '.join(map(str, options)) or 'no overrides'}"
+        + f"; seeds 1..{args.seeds}; hit = feasible and within {TOLERANCE * 1000:.0f} m/s "
+        "of the best-known objective"
+    )
     summary = []
     for problem in args.problems.split(","):
         path = REFERENCES[problem]
         entry = known.get(problem)
         target = entry["objective"] if entry else None
-        print(f"\n{problem} ({path.name}): best-known objective "
-              + (f"{target:.6f}" if target is not None else "unknown (run benchmarks.best_known)"))
-        print(f"  {'algorithm':<9} {'hits':>6} {'verified':>8} {'median s to hit':>16} "
-              f"{'median run s':>13} "
-              f"{'median process s':>17} {'median evals':>13} {'worst miss m/s':>15}")
+        print(
+            f"\n{problem} ({path.name}): best-known objective "
+            + (f"{target:.6f}" if target is not None else "unknown (run benchmarks.best_known)")
+        )
+        print(
+            f"  {'algorithm':<9} {'hits':>6} {'verified':>8} {'median s to hit':>16} "
+            f"{'median run s':>13} "
+            f"{'median process s':>17} {'median evals':>13} {'worst miss m/s':>15}"
+        )
         for algorithm in args.algorithms.split(","):
-            runs = [one_run(path, seed, algorithm, options, target)
-                    for seed in range(1, args.seeds + 1)]
+            runs = [
+                one_run(path, seed, algorithm, options, target) for seed in range(1, args.seeds + 1)
+            ]
             good = [r for r in runs if r["ok"]]
             hits = [r for r in good if r["hit"]]
             misses = [1000 * (r["objective"] - target) for r in good if target is not None]
             better = [m for m in misses if m < -1000 * TOLERANCE]
             verified = [r for r in good if r["holds"]]
-            row = {"problem": problem, "algorithm": algorithm, "hits": len(hits),
-                   "verified": len(verified),
-                   "runs": len(runs),
-                   "median_reach_s": median([r["reach_s"] for r in hits]),
-                   "median_wall_s": median([r["wall_s"] for r in good]),
-                   "median_process_s": median([r["process_wall_s"] for r in good]),
-                   "median_evaluations": median([r["evaluations"] for r in good]),
-                   "worst_miss_m_s": max(misses) if misses else float("nan")}
+            row = {
+                "problem": problem,
+                "algorithm": algorithm,
+                "hits": len(hits),
+                "verified": len(verified),
+                "runs": len(runs),
+                "median_reach_s": median([r["reach_s"] for r in hits]),
+                "median_wall_s": median([r["wall_s"] for r in good]),
+                "median_process_s": median([r["process_wall_s"] for r in good]),
+                "median_evaluations": median([r["evaluations"] for r in good]),
+                "worst_miss_m_s": max(misses) if misses else float("nan"),
+            }
             summary.append(row)
-            print(f"  {algorithm:<9} {len(hits):>3}/{len(runs):<2} "
-                  f"{len(verified):>5}/{len(runs):<2} {row['median_reach_s']:>16.2f} "
-                  f"{row['median_wall_s']:>13.2f} {row['median_process_s']:>17.2f} "
-                  f"{row['median_evaluations']:>13,.0f} {row['worst_miss_m_s']:>15.1f}",
-                  flush=True)
+            print(
+                f"  {algorithm:<9} {len(hits):>3}/{len(runs):<2} "
+                f"{len(verified):>5}/{len(runs):<2} {row['median_reach_s']:>16.2f} "
+                f"{row['median_wall_s']:>13.2f} {row['median_process_s']:>17.2f} "
+                f"{row['median_evaluations']:>13,.0f} {row['worst_miss_m_s']:>15.1f}",
+                flush=True,
+            )
             for r in runs:
                 if not r["ok"]:
                     print(f"    a run failed: {r['error']}")
             if better:
-                print(f"    note: {len(better)} run(s) beat the best-known answer by more than "
-                      f"1 m/s (up to {-min(better):.1f} m/s): rerun benchmarks.best_known denser")
+                print(
+                    f"    note: {len(better)} run(s) beat the best-known answer by more than "
+                    f"1 m/s (up to {-min(better):.1f} m/s): rerun benchmarks.best_known denser"
+                )
     print_footer()
     return 0
 

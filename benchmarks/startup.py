@@ -16,6 +16,7 @@ kernel compiles. ``--new-venv`` also builds a fresh virtual environment with
 
 Usage: python -m benchmarks.startup [--repeats 5] [--cold 1] [--new-venv] [--smoke]
 """
+
 import argparse
 import os
 import shutil
@@ -27,7 +28,7 @@ from pathlib import Path
 
 from benchmarks.common import DEMO, ROOT, median, print_footer, print_header
 
-IMPORT_COMMAND = ("import leverage.cli as c; list(c.command_modules())")
+IMPORT_COMMAND = "import leverage.cli as c; list(c.command_modules())"
 
 
 def timed(cmd, env=None) -> float:
@@ -35,8 +36,9 @@ def timed(cmd, env=None) -> float:
     proc = subprocess.run(cmd, capture_output=True, text=True, env=env, cwd=ROOT)
     wall = time.perf_counter() - start
     if proc.returncode not in (0, 3):
-        raise RuntimeError(f"{' '.join(map(str, cmd))} failed ({proc.returncode}): "
-                           f"{proc.stderr.strip()[-400:]}")
+        raise RuntimeError(
+            f"{' '.join(map(str, cmd))} failed ({proc.returncode}): {proc.stderr.strip()[-400:]}"
+        )
     return wall
 
 
@@ -44,9 +46,22 @@ def first_evaluation(python, islands, env=None) -> tuple:
     """(s to the end of the first evaluation, s to the end) of a one-generation demo run."""
     with tempfile.TemporaryDirectory(prefix="leverage-start-") as tmp:
         marker = Path(tmp) / "first"
-        cmd = [python, "-m", "benchmarks.first_evaluation", str(marker), "run", str(DEMO),
-               "--out", str(Path(tmp) / "out"), "--force", "--quiet", "--generations", "1",
-               "--islands", str(islands)]
+        cmd = [
+            python,
+            "-m",
+            "benchmarks.first_evaluation",
+            str(marker),
+            "run",
+            str(DEMO),
+            "--out",
+            str(Path(tmp) / "out"),
+            "--force",
+            "--quiet",
+            "--generations",
+            "1",
+            "--islands",
+            str(islands),
+        ]
         t0 = time.time()
         total = timed(cmd, env)
         first = float(marker.read_text().split()[1]) - t0
@@ -57,8 +72,7 @@ def measure(python, env, repeats, label, two_islands=True):
     """Print and return the start-up figures of ``repeats`` runs (median and min)."""
     rows = {
         "python -c pass": [timed([python, "-c", "pass"], env) for _ in range(repeats)],
-        "import the command": [timed([python, "-c", IMPORT_COMMAND], env)
-                               for _ in range(repeats)],
+        "import the command": [timed([python, "-c", IMPORT_COMMAND], env) for _ in range(repeats)],
     }
     firsts, totals, firsts2, totals2 = [], [], [], []
     for _ in range(repeats):
@@ -93,8 +107,10 @@ def cold_run(python, label):
     env, folder = cold_env()
     try:
         first, total = first_evaluation(python, 1, env)
-        print(f"  {label}: to first evaluation {first:.2f} s, whole process {total:.2f} s "
-          "(one generation, then pictures and verification)")
+        print(
+            f"  {label}: to first evaluation {first:.2f} s, whole process {total:.2f} s "
+            "(one generation, then pictures and verification)"
+        )
         sys.stdout.flush()
         return first, total
     finally:
@@ -108,12 +124,16 @@ def new_venv_cold():
     try:
         start = time.perf_counter()
         subprocess.run([base, "-m", "venv", str(folder)], check=True, capture_output=True)
-        proc = subprocess.run([str(folder / "bin" / "pip"), "install", "-q", "-e", str(ROOT)],
-                              capture_output=True, text=True)
+        proc = subprocess.run(
+            [str(folder / "bin" / "pip"), "install", "-q", "-e", str(ROOT)],
+            capture_output=True,
+            text=True,
+        )
         build = time.perf_counter() - start
         if proc.returncode != 0:
-            print(f"  new venv: pip install failed after {build:.0f} s: "
-                  f"{proc.stderr.strip()[-300:]}")
+            print(
+                f"  new venv: pip install failed after {build:.0f} s: {proc.stderr.strip()[-300:]}"
+            )
             return
         print(f"  new venv: created and installed in {build:.0f} s (pip downloads included)")
         cold_run(str(folder / "bin" / "python"), "new venv, empty numba cache")
@@ -125,14 +145,18 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeats", type=int, default=5, help="warm repetitions")
     ap.add_argument("--cold", type=int, default=1, help="cold starts (each compiles everything)")
-    ap.add_argument("--new-venv", action="store_true",
-                    help="also build a new venv (downloads the dependencies) and start it cold")
+    ap.add_argument(
+        "--new-venv",
+        action="store_true",
+        help="also build a new venv (downloads the dependencies) and start it cold",
+    )
     ap.add_argument("--smoke", action="store_true", help="one warm repetition, no cold start")
     args = ap.parse_args(argv)
     if args.smoke:
         args.repeats, args.cold, args.new_venv = 1, 0, False
-    print_header("start-up" + (" (smoke: one repetition, figures meaningless)" if args.smoke
-                               else ""))
+    print_header(
+        "start-up" + (" (smoke: one repetition, figures meaningless)" if args.smoke else "")
+    )
     python = sys.executable
     # Warm the user's cache first (a no-op when it is already warm).
     first_evaluation(python, 1)

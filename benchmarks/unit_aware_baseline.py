@@ -13,6 +13,7 @@ comparable. Frame: heliocentric ecliptic J2000; epochs TDB.
 Used only as the slow reference of ``benchmarks/eval_cost.py``; targets with a
 final leg are not covered.
 """
+
 import warnings
 
 import numpy as np
@@ -32,9 +33,16 @@ OBLIQUITY = (84381.448 * u.arcsec).to(u.rad)  # IAU 1976, the ecliptic-of-J2000 
 CENTURY = 36525.0 * u.day
 # Same normalising scales as leverage.core.penalties.MARGIN_SCALES (repeated here on purpose:
 # this file stands for code written without leverage).
-SCALES = {"alt": 100.0 * u.km, "turn": 0.1 * u.rad, "c3": 1.0 * u.km**2 / u.s**2,
-          "dla": 1.0 * u.deg, "dsm": 0.1 * u.km / u.s, "vinf_out": 0.1 * u.km / u.s,
-          "inc": 1.0 * u.deg, "aphelion": 0.1 * u.AU}
+SCALES = {
+    "alt": 100.0 * u.km,
+    "turn": 0.1 * u.rad,
+    "c3": 1.0 * u.km**2 / u.s**2,
+    "dla": 1.0 * u.deg,
+    "dsm": 0.1 * u.km / u.s,
+    "vinf_out": 0.1 * u.km / u.s,
+    "inc": 1.0 * u.deg,
+    "aphelion": 0.1 * u.AU,
+}
 
 
 class Setting:
@@ -83,9 +91,17 @@ def planet_orbit(row, epoch) -> Orbit:
     nu = (nu + np.pi * u.rad) % (2 * np.pi * u.rad) - np.pi * u.rad
     mean_motion = (row[9] * u.deg / CENTURY).to(u.rad / u.s).value / u.s
     centre = Body(None, (mean_motion**2 * a**3).to(u.km**3 / u.s**2), "Sun (Standish mean motion)")
-    return Orbit.from_classical(centre, a, ecc, inc, node.to(u.rad) % (2 * np.pi * u.rad),
-                                argp.to(u.rad) % (2 * np.pi * u.rad), nu, epoch=epoch,
-                                plane=Planes.EARTH_ECLIPTIC)
+    return Orbit.from_classical(
+        centre,
+        a,
+        ecc,
+        inc,
+        node.to(u.rad) % (2 * np.pi * u.rad),
+        argp.to(u.rad) % (2 * np.pi * u.rad),
+        nu,
+        epoch=epoch,
+        plane=Planes.EARTH_ECLIPTIC,
+    )
 
 
 def _unit(v):
@@ -125,9 +141,12 @@ def evaluate(x, s: Setting) -> dict:
     normal = _unit(np.cross(r0, vb0))
     out = np.cross(along, normal)
     az, el = x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG] * u.deg, x[L.X_LAUNCH_OUT_OF_PLANE_ANGLE_DEG] * u.deg
-    vinf0 = x[L.X_LAUNCH_VINF_KM_S] * u.km / u.s * (np.cos(el) * np.cos(az) * along
-                                            + np.cos(el) * np.sin(az) * out
-                                            + np.sin(el) * normal)
+    vinf0 = (
+        x[L.X_LAUNCH_VINF_KM_S]
+        * u.km
+        / u.s
+        * (np.cos(el) * np.cos(az) * along + np.cos(el) * np.sin(az) * out + np.sin(el) * normal)
+    )
     c3 = vinf0 @ vinf0
     eq = _to_body_equator(vinf0, s)
     dla = np.arcsin(eq[2] / np.linalg.norm(eq)).to(u.rad)
@@ -138,12 +157,13 @@ def evaluate(x, s: Setting) -> dict:
     r2, vb2 = planet2.r, planet2.v
     best = None
     for revs in range(s.rev_min, s.rev_max + 1):
-        for low in ((True,) if revs == 0 else (True, False)):
+        for low in (True,) if revs == 0 else (True, False):
             try:
                 with warnings.catch_warnings():
                     warnings.simplefilter("ignore")
-                    v1_after, v2 = izzo.lambert(Sun.k, r1, r2, (t2 - t1).to(u.s), M=revs,
-                                                prograde=True, lowpath=low)
+                    v1_after, v2 = izzo.lambert(
+                        Sun.k, r1, r2, (t2 - t1).to(u.s), M=revs, prograde=True, lowpath=low
+                    )
             except Exception:  # no solution with this many revolutions
                 continue
             dsm = np.linalg.norm(v1_after - v1_before).to(u.km / u.s)
@@ -158,8 +178,12 @@ def evaluate(x, s: Setting) -> dict:
             outgoing = Orbit.from_vectors(Sun, r2, v_out, epoch=t2, plane=Planes.EARTH_ECLIPTIC)
             vinf_out = np.linalg.norm(v_out - vb2)
             gain = speed - x[L.X_LAUNCH_VINF_KM_S] * u.km / u.s
-            margins = {"alt": alt - s.min_alt, "turn": turn_max - turn, "c3": s.c3_max - c3,
-                       "dla": min(dla - s.dla_min, s.dla_max - dla)}
+            margins = {
+                "alt": alt - s.min_alt,
+                "turn": turn_max - turn,
+                "c3": s.c3_max - c3,
+                "dla": min(dla - s.dla_min, s.dla_max - dla),
+            }
             if np.isfinite(s.dsm_budget):
                 margins["dsm"] = s.dsm_budget - dsm
             if s.req_vinf > 0:
@@ -168,9 +192,12 @@ def evaluate(x, s: Setting) -> dict:
                 margins["inc"] = outgoing.inc - s.req_inc
             if s.req_aphelion > 0 and outgoing.ecc < 1:
                 margins["aphelion"] = outgoing.r_a - s.req_aphelion
-            objective = (s.w_dsm * dsm.value - s.w_gain * gain.to_value(u.km / u.s)
-                         - s.w_inc * outgoing.inc.to_value(u.deg)
-                         + _penalty(margins, s.penalty_weight))
+            objective = (
+                s.w_dsm * dsm.value
+                - s.w_gain * gain.to_value(u.km / u.s)
+                - s.w_inc * outgoing.inc.to_value(u.deg)
+                + _penalty(margins, s.penalty_weight)
+            )
             if best is None or objective < best["objective"]:
                 best = {"dsm_kms": dsm.value, "objective": objective}
     return best

@@ -7,6 +7,7 @@ The Python interface (``leverage.api``) is here too: ``load_problem``, ``solve``
 ``open_result``, ``Design`` and ``ProblemError``. They load on first use, so that
 ``import leverage`` and the commands that do not search stay quick.
 """
+
 from leverage.about import CAUTION, __version__
 
 _API = ("load_problem", "solve", "open_result", "Design")

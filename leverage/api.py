@@ -82,13 +82,26 @@ class Design:
     def __repr__(self) -> str:
         d = self.record["derived"]
         where = f", folder={str(self.folder)!r}" if self.folder else ""
-        return (f"Design({self.record['problem']['name']!r}, feasible={self.feasible}, "
-                f"dsm={d['dsm']['value']:.4f} km/s, c3={d['c3']['value']:.3f} km^2/s^2"
-                f"{where})")
+        return (
+            f"Design({self.record['problem']['name']!r}, feasible={self.feasible}, "
+            f"dsm={d['dsm']['value']:.4f} km/s, c3={d['c3']['value']:.3f} km^2/s^2"
+            f"{where})"
+        )
 
 
-def solve(problem, *, seed=None, generations=None, islands=None, population=None,
-          algorithm=None, out=None, workers=1, progress=False, after=False) -> Design:
+def solve(
+    problem,
+    *,
+    seed=None,
+    generations=None,
+    islands=None,
+    population=None,
+    algorithm=None,
+    out=None,
+    workers=1,
+    progress=False,
+    after=False,
+) -> Design:
     """Search ``problem`` (a Problem, a path or TOML text) and return the best design.
 
     The keyword arguments override the problem's ``[search]`` keys. ``out`` names a
@@ -101,18 +114,31 @@ def solve(problem, *, seed=None, generations=None, islands=None, population=None
     """
     if not isinstance(problem, Problem):
         problem = load_problem(problem)
-    overrides = {"seed": seed, "generations": generations, "islands": islands,
-                 "population": population, "algorithm": algorithm}
+    overrides = {
+        "seed": seed,
+        "generations": generations,
+        "islands": islands,
+        "population": population,
+        "algorithm": algorithm,
+    }
     settings = settings_from(problem, overrides)
     evolver = local_evolver(settings.islands, workers)
     progress_lines = Progress(settings.evolutions, enabled=bool(progress))
     if out is not None:
-        outcome = run(problem, settings, Path(out), progress_lines, echo=_quiet,
-                      evolver=evolver, after=after)
+        outcome = run(
+            problem, settings, Path(out), progress_lines, echo=_quiet, evolver=evolver, after=after
+        )
         return Design(outcome.record, Path(out)) if outcome.record else _not_started()
     with tempfile.TemporaryDirectory(prefix="leverage-") as folder:
-        outcome = run(problem, settings, Path(folder), progress_lines, echo=_quiet,
-                      evolver=evolver, after=False)
+        outcome = run(
+            problem,
+            settings,
+            Path(folder),
+            progress_lines,
+            echo=_quiet,
+            evolver=evolver,
+            after=False,
+        )
     return Design(outcome.record) if outcome.record else _not_started()
 
 

@@ -6,10 +6,11 @@ would not take a file (disk full, a read-only or missing folder); it names the p
 and the free space there. Every message is one printable line: control characters
 are escaped and a long value is cut (``printable``, ``shown_value``).
 """
+
 import shutil
 from pathlib import Path
 
-MAX_VALUE_CHARS = 80     # a value shown in a message is cut to this many characters
+MAX_VALUE_CHARS = 80  # a value shown in a message is cut to this many characters
 MAX_MESSAGE_CHARS = 600  # and a whole message to this many
 
 
@@ -37,8 +38,10 @@ def shown_value(value) -> str:
     """A value as a message shows it: its repr, at most ``MAX_VALUE_CHARS`` characters."""
     if isinstance(value, str) and len(value) > MAX_VALUE_CHARS:
         # No repr of a megabyte just to cut it; say how long the value really is.
-        return f"{printable(repr(value[:MAX_VALUE_CHARS]))[:MAX_VALUE_CHARS]}... " \
-               f"({len(value):,} characters in all)"
+        return (
+            f"{printable(repr(value[:MAX_VALUE_CHARS]))[:MAX_VALUE_CHARS]}... "
+            f"({len(value):,} characters in all)"
+        )
     try:
         text = repr(value)
     except RecursionError:
@@ -54,8 +57,9 @@ class ProblemError(Exception):
         self.key = key
         self.value = value
         self.reason = reason
-        where = f"{printable(source, 200)}: {printable(key, 200)}" if key \
-            else printable(source, 200)
+        where = (
+            f"{printable(source, 200)}: {printable(key, 200)}" if key else printable(source, 200)
+        )
         shown = "" if value is _NO_VALUE else f" = {shown_value(value)}"
         super().__init__(f"{where}{shown}: {printable(reason, MAX_MESSAGE_CHARS)}")
 
@@ -82,11 +86,14 @@ class WriteFault(Exception):
 
     def __init__(self, path, reason, note: str = ""):
         self.path = str(path)
-        self.reason = reason.strerror if isinstance(reason, OSError) and reason.strerror \
-            else str(reason)
+        self.reason = (
+            reason.strerror if isinstance(reason, OSError) and reason.strerror else str(reason)
+        )
         self.note = note
-        text = f"cannot write {printable(self.path, 200)} ({printable(self.reason, 200)}; " \
-               f"{free_space(path)})"
+        text = (
+            f"cannot write {printable(self.path, 200)} ({printable(self.reason, 200)}; "
+            f"{free_space(path)})"
+        )
         if note:
             text += f"; {printable(note, MAX_MESSAGE_CHARS)}"
         super().__init__(text)

@@ -3,6 +3,7 @@
 Files are written atomically: to a temporary name in the same folder, fsync'd, then
 renamed, so a crash or Ctrl-C leaves the old file or the new one, never a partial one.
 """
+
 import json
 import math
 import os
@@ -67,8 +68,11 @@ def _finite_float(text):
 def read_json(path) -> dict:
     """A JSON file as written by ``write_json``: NaN, Infinity and overflowing numbers are
     refused (ValueError), and so is nesting too deep to read (RecursionError)."""
-    return json.loads(Path(path).read_text(encoding="utf-8"),
-                      parse_constant=_no_constant, parse_float=_finite_float)
+    return json.loads(
+        Path(path).read_text(encoding="utf-8"),
+        parse_constant=_no_constant,
+        parse_float=_finite_float,
+    )
 
 
 def load_refined(folder) -> dict | None:
@@ -88,18 +92,24 @@ def load_record(folder) -> dict:
         raise ProblemError(str(folder), "", NO_VALUE, "no best.json here: not a result folder")
     try:
         if path.stat().st_size > MAX_RECORD_BYTES:
-            raise ProblemError(str(path), "", NO_VALUE,
-                               f"larger than {MAX_RECORD_BYTES:,} bytes: not a design record")
+            raise ProblemError(
+                str(path),
+                "",
+                NO_VALUE,
+                f"larger than {MAX_RECORD_BYTES:,} bytes: not a design record",
+            )
         record = read_json(path)
     except RecursionError:
-        raise ProblemError(str(path), "", NO_VALUE,
-                           "unreadable JSON (nested too deeply)") from None
+        raise ProblemError(str(path), "", NO_VALUE, "unreadable JSON (nested too deeply)") from None
     except (ValueError, OSError) as exc:
         raise ProblemError(str(path), "", NO_VALUE, f"unreadable JSON ({exc})") from None
     if not isinstance(record, dict):
-        raise ProblemError(str(path), "", NO_VALUE,
-                           f"not a design record (a JSON {type(record).__name__}, "
-                           "not an object)")
+        raise ProblemError(
+            str(path),
+            "",
+            NO_VALUE,
+            f"not a design record (a JSON {type(record).__name__}, not an object)",
+        )
     return record
 
 
@@ -122,9 +132,14 @@ def check_writable(folder, create: bool = True) -> Path:
     for parent in [folder, *folder.parents]:
         if parent.exists():
             if not parent.is_dir():
-                raise ProblemError(str(folder), "", NO_VALUE,
-                                   "is a file, not a folder" if parent == folder else
-                                   f"lies below {parent}, which is a file, not a folder")
+                raise ProblemError(
+                    str(folder),
+                    "",
+                    NO_VALUE,
+                    "is a file, not a folder"
+                    if parent == folder
+                    else f"lies below {parent}, which is a file, not a folder",
+                )
             break
     try:
         if create:
@@ -138,8 +153,7 @@ def check_writable(folder, create: bool = True) -> Path:
             os.close(fd)
             os.unlink(probe)
     except OSError as exc:
-        raise WriteFault(exc.filename or folder, exc,
-                         "nothing was done; pick a folder that can be written") from None
+        raise WriteFault(
+            exc.filename or folder, exc, "nothing was done; pick a folder that can be written"
+        ) from None
     return folder
-
-

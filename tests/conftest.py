@@ -3,6 +3,7 @@
 Optimizer tests are marked ``slow`` and run at a small size by default (and in CI);
 ``pytest --full-size`` runs them at the problem files' own settings.
 """
+
 from pathlib import Path
 
 import pytest
@@ -12,8 +13,12 @@ PROBLEMS = ROOT / "problems"
 
 
 def pytest_addoption(parser):
-    parser.addoption("--full-size", action="store_true", default=False,
-                     help="run optimizer tests at the problem files' own sizes")
+    parser.addoption(
+        "--full-size",
+        action="store_true",
+        default=False,
+        help="run optimizer tests at the problem files' own sizes",
+    )
 
 
 @pytest.fixture
@@ -39,7 +44,18 @@ def demo_result(tmp_path_factory) -> Path:
     from leverage.cli import main
 
     out = tmp_path_factory.mktemp("demo_result") / "run"
-    code = main(["run", str(PROBLEMS / "demo.toml"), "--out", str(out), "--generations", "50",
-                 "--islands", "1", "--quiet"])
+    code = main(
+        [
+            "run",
+            str(PROBLEMS / "demo.toml"),
+            "--out",
+            str(out),
+            "--generations",
+            "50",
+            "--islands",
+            "1",
+            "--quiet",
+        ]
+    )
     assert code in (0, 3), f"demo run failed with exit code {code}"
     return out

@@ -5,6 +5,7 @@ the end, exits 0 and prints its sections; they assert nothing about timings (spe
 reported by the benchmarks themselves, never tested). The 1800 s subprocess timeout only
 guards against a hang (measured 2-17 s each on an idle machine).
 """
+
 import subprocess
 import sys
 from pathlib import Path
@@ -15,8 +16,13 @@ ROOT = Path(__file__).resolve().parent.parent
 
 
 def smoke(module: str) -> str:
-    proc = subprocess.run([sys.executable, "-m", f"benchmarks.{module}", "--smoke"], cwd=ROOT,
-                          capture_output=True, text=True, timeout=1800)
+    proc = subprocess.run(
+        [sys.executable, "-m", f"benchmarks.{module}", "--smoke"],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=1800,
+    )
     assert proc.returncode == 0, proc.stderr[-2000:]
     assert "load average at end" in proc.stdout
     return proc.stdout
@@ -63,3 +69,13 @@ def test_mutants_smoke():
     out = smoke("mutants")
     assert "unmutated copy, 1 test file(s) or test(s): exit 0" in out
     assert "turn-angle-half" in out and "caught 1 of 1" in out
+
+
+def test_every_mutant_finds_its_text_once():
+    """The mutation script replaces exact source text: a reformat or a model change that
+    moves it must update the mutant (benchmarks/mutants.py stops on 0 or 2+ matches)."""
+    from benchmarks.mutants import MUTANTS
+
+    counts = {m.name: (ROOT / m.path).read_text(encoding="utf-8").count(m.old) for m in MUTANTS}
+    assert all(n == 1 for n in counts.values()), counts
+    assert len(MUTANTS) >= 12

@@ -17,6 +17,7 @@ How the faults are made:
 - corrupted files: bytes flipped, keys removed, NaN, 1e308, deep nesting, garbage.
 Problem files refused on sight are in tests/problem/bad_problems/ (test_problem.py).
 """
+
 import errno
 import json
 import os
@@ -63,8 +64,10 @@ def result(demo_result, tmp_path) -> Path:
 
 # ---------------------------------------------------------------- where results go
 
-@pytest.mark.parametrize("name", ["../../escaped", "/tmp/x/run", "a\x00b", "n" * 300,
-                                  "..", "\x1b[31mred"])
+
+@pytest.mark.parametrize(
+    "name", ["../../escaped", "/tmp/x/run", "a\x00b", "n" * 300, "..", "\x1b[31mred"]
+)
 def test_default_folder_stays_in_results(name):
     out = default_out(name)
     assert out.parent == Path("results")
@@ -72,10 +75,13 @@ def test_default_folder_stays_in_results(name):
     assert all(ch.isprintable() for ch in out.name) and len(out.name) <= 100
 
 
-@pytest.mark.parametrize("out, code, fragment", [
-    ("/proc/leverage-test/run", EXIT_CANNOT_WRITE, "cannot write /proc/leverage-test"),
-    ("{file}/run", EXIT_BAD_INPUT, "which is a file, not a folder"),
-])
+@pytest.mark.parametrize(
+    "out, code, fragment",
+    [
+        ("/proc/leverage-test/run", EXIT_CANNOT_WRITE, "cannot write /proc/leverage-test"),
+        ("{file}/run", EXIT_BAD_INPUT, "which is a file, not a folder"),
+    ],
+)
 def test_unusable_out_is_one_line_before_any_work(out, code, fragment, tmp_path, capsys):
     (tmp_path / "file").write_text("x")
     out = out.format(file=tmp_path / "file")
@@ -88,8 +94,12 @@ class ReadOnly:
 
     def __init__(self, folder, monkeypatch):
         self.folder = str(folder)
-        ok = subprocess.run(["mount", "--bind", "-o", "ro", self.folder, self.folder],
-                            capture_output=True).returncode == 0
+        ok = (
+            subprocess.run(
+                ["mount", "--bind", "-o", "ro", self.folder, self.folder], capture_output=True
+            ).returncode
+            == 0
+        )
         self.mode = "bind mount" if ok else "monkeypatch"
         if not ok:
             real = tempfile.mkstemp
@@ -98,6 +108,7 @@ class ReadOnly:
                 if dir is not None and str(dir).startswith(self.folder):
                     raise OSError(errno.EROFS, os.strerror(errno.EROFS), str(dir))
                 return real(*args, dir=dir, **kw)
+
             monkeypatch.setattr(tempfile, "mkstemp", refuse)
 
     def undo(self):
@@ -105,13 +116,17 @@ class ReadOnly:
             subprocess.run(["umount", self.folder], check=True)
 
 
-@pytest.mark.parametrize("command", [["plot"], ["verify"], ["export", "--format", "csv"],
-                                     ["run", str(DEMO), "--resume"]])
-def test_read_only_result_folder_is_one_line_before_any_work(command, result, monkeypatch,
-                                                             capsys):
+@pytest.mark.parametrize(
+    "command", [["plot"], ["verify"], ["export", "--format", "csv"], ["run", str(DEMO), "--resume"]]
+)
+def test_read_only_result_folder_is_one_line_before_any_work(command, result, monkeypatch, capsys):
     import leverage.cli.verify as cli_verify
-    monkeypatch.setattr(cli_verify, "verify_record",
-                        lambda *a, **k: pytest.fail("verified before checking the folder"))
+
+    monkeypatch.setattr(
+        cli_verify,
+        "verify_record",
+        lambda *a, **k: pytest.fail("verified before checking the folder"),
+    )
     before = sorted(p.name for p in result.iterdir())
     ro = ReadOnly(result, monkeypatch)
     try:
@@ -137,10 +152,13 @@ def test_out_in_read_only_folder(tmp_path, monkeypatch, capsys):
 
 # ---------------------------------------------------------------- locking
 
+
 def test_second_writer_into_a_locked_folder_is_refused(result, capsys):
     with folder_lock(result):
-        for command in (["run", str(DEMO), "--out", str(result), "--force", *SMALL],
-                        ["plot", str(result)]):
+        for command in (
+            ["run", str(DEMO), "--out", str(result), "--force", *SMALL],
+            ["plot", str(result)],
+        ):
             assert main(command) == EXIT_BAD_INPUT
             line = one_line(capsys)
             assert "in use by another leverage process" in line and str(os.getpid()) in line
@@ -148,6 +166,7 @@ def test_second_writer_into_a_locked_folder_is_refused(result, capsys):
 
 
 # ---------------------------------------------------------------- damaged files
+
 
 def test_checkpoint_with_flipped_bytes_is_refused(result, capsys):
     path = result / checkpoint.FILE_NAME
@@ -175,17 +194,21 @@ def _nested(depth):
     return "[" * depth + "]" * depth
 
 
-@pytest.mark.parametrize("damage, fragment", [
-    ("nan", "non-finite"), ("huge", "not a state of a design"), ("deep", "nested too deeply"),
-    ("list", "not a design record")])
-@pytest.mark.parametrize("command", [["plot"], ["verify"], ["export", "--format", "oem"],
-                                     ["show"]])
+@pytest.mark.parametrize(
+    "damage, fragment",
+    [
+        ("nan", "non-finite"),
+        ("huge", "not a state of a design"),
+        ("deep", "nested too deeply"),
+        ("list", "not a design record"),
+    ],
+)
+@pytest.mark.parametrize("command", [["plot"], ["verify"], ["export", "--format", "oem"], ["show"]])
 def test_damaged_best_json_is_one_line(damage, fragment, command, result, capsys):
     path = result / "best.json"
     record = json.loads(path.read_text())
     if damage == "nan":
-        text = path.read_text().replace(json.dumps(record["events"][0]["position_km"][0]),
-                                        "NaN", 1)
+        text = path.read_text().replace(json.dumps(record["events"][0]["position_km"][0]), "NaN", 1)
     elif damage == "huge":
         record["events"][0]["position_km"] = [1e308, 1e308, 1e308]
         text = json.dumps(record)
@@ -210,6 +233,7 @@ def test_garbled_convergence_log_is_one_line(result, capsys):
 
 def test_debug_shows_the_traceback_and_bugs_are_one_line(result, monkeypatch, capsys):
     import leverage.cli.show as show
+
     monkeypatch.setattr(show, "render", lambda record: 1 / 0)
     monkeypatch.setattr(show, "load_record", lambda folder: {})
     assert main(["show", str(result)]) == EXIT_INTERNAL
@@ -230,9 +254,11 @@ def test_printed_control_characters_are_escaped(result, capsys):
 
 # ---------------------------------------------------------------- disk full (subprocesses)
 
+
 def _limit(nbytes):
     def set_limit():
         resource.setrlimit(resource.RLIMIT_FSIZE, (nbytes, resource.RLIM_INFINITY))
+
     return set_limit
 
 
@@ -244,8 +270,13 @@ def test_disk_full_during_pictures_keeps_the_design_and_no_partial_png(tmp_path)
     out = tmp_path / "run"
     driver = tmp_path / "fill.py"
     driver.write_text(FILL_AT_PICTURES.format(root=str(ROOT)))
-    proc = subprocess.run([sys.executable, str(driver), "run", str(DEMO), "--out", str(out),
-                           *SMALL], env=ENV, capture_output=True, text=True, timeout=120)
+    proc = subprocess.run(
+        [sys.executable, str(driver), "run", str(DEMO), "--out", str(out), *SMALL],
+        env=ENV,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert proc.returncode == EXIT_CANNOT_WRITE, proc.stderr
     assert "Traceback" not in proc.stderr
     last = proc.stderr.strip().splitlines()[-1]
@@ -262,7 +293,9 @@ sys.path.insert(0, {root!r})
 from leverage.cli import main
 """
 
-FILL_AT_PICTURES = DRIVER_HEAD + """
+FILL_AT_PICTURES = (
+    DRIVER_HEAD
+    + """
 from leverage.run import afterrun
 real = afterrun.pictures_and_verification
 def pictures_and_verification(*args, **kwargs):
@@ -272,9 +305,12 @@ def pictures_and_verification(*args, **kwargs):
 afterrun.pictures_and_verification = pictures_and_verification
 sys.exit(main(sys.argv[1:]))
 """
+)
 
 
-FILL_MID_SEARCH = DRIVER_HEAD + """
+FILL_MID_SEARCH = (
+    DRIVER_HEAD
+    + """
 from leverage.search import checkpoint
 real = checkpoint.Checkpointer.save
 count = [0]
@@ -286,6 +322,7 @@ def save(self, search, final=False):
 checkpoint.Checkpointer.save = save
 sys.exit(main(sys.argv[1:]))
 """
+)
 
 
 def test_disk_full_during_the_search_writes_the_best_design_and_resumes(tmp_path):
@@ -293,8 +330,13 @@ def test_disk_full_during_the_search_writes_the_best_design_and_resumes(tmp_path
     driver = tmp_path / "fill.py"
     driver.write_text(FILL_MID_SEARCH.format(root=str(ROOT)))
     args = [str(DEMO), "--out", str(out), "--workers", "1", "--generations", "250", "--quiet"]
-    proc = subprocess.run([sys.executable, str(driver), "run", *args], env=ENV,
-                          capture_output=True, text=True, timeout=120)
+    proc = subprocess.run(
+        [sys.executable, str(driver), "run", *args],
+        env=ENV,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert proc.returncode == EXIT_CANNOT_WRITE, proc.stderr
     assert "Traceback" not in proc.stderr
     last = proc.stderr.strip().splitlines()[-1]
@@ -302,9 +344,13 @@ def test_disk_full_during_the_search_writes_the_best_design_and_resumes(tmp_path
     record = json.loads((out / "best.json").read_text())
     assert record["status"] == "interrupted"
     assert checkpoint.load(out)["state"].evolution == 2
-    proc = subprocess.run([sys.executable, "-m", "leverage", "run", str(DEMO), "--resume",
-                           str(out), "--quiet"], env=ENV, capture_output=True, text=True,
-                          timeout=120)
+    proc = subprocess.run(
+        [sys.executable, "-m", "leverage", "run", str(DEMO), "--resume", str(out), "--quiet"],
+        env=ENV,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert proc.returncode in (0, 3), proc.stderr
     record = json.loads((out / "best.json").read_text())
     assert record["status"] == "complete" and record["run"]["resumed_from_evolution"] == 2
@@ -312,7 +358,9 @@ def test_disk_full_during_the_search_writes_the_best_design_and_resumes(tmp_path
 
 # ---------------------------------------------------------------- signals at every phase
 
-HOLD_AT = DRIVER_HEAD + """
+HOLD_AT = (
+    DRIVER_HEAD
+    + """
 phase = os.environ["HOLD_PHASE"]
 def hold(real):
     def held(*args, **kwargs):
@@ -336,12 +384,21 @@ elif phase == "export":
     ex.export = hold(ex.export)
 sys.exit(main(sys.argv[1:]))
 """
+)
 
 
-@pytest.mark.parametrize("phase, sig", [
-    ("search", signal.SIGTERM), ("polish", signal.SIGTERM), ("pictures", signal.SIGTERM),
-    ("pictures", signal.SIGINT), ("verification", signal.SIGTERM),
-    ("verification", signal.SIGINT), ("export", signal.SIGTERM)])
+@pytest.mark.parametrize(
+    "phase, sig",
+    [
+        ("search", signal.SIGTERM),
+        ("polish", signal.SIGTERM),
+        ("pictures", signal.SIGTERM),
+        ("pictures", signal.SIGINT),
+        ("verification", signal.SIGTERM),
+        ("verification", signal.SIGINT),
+        ("export", signal.SIGTERM),
+    ],
+)
 def test_signal_at_every_phase_is_exit_130_and_one_line(phase, sig, demo_result, tmp_path):
     driver = tmp_path / "hold.py"
     driver.write_text(HOLD_AT.format(root=str(ROOT)))
@@ -352,8 +409,13 @@ def test_signal_at_every_phase_is_exit_130_and_one_line(phase, sig, demo_result,
     else:
         gens = "100000" if phase == "search" else "100"
         argv = ["run", str(DEMO), "--out", str(out), "--workers", "1", "--generations", gens]
-    proc = subprocess.Popen([sys.executable, str(driver), *argv], env={**ENV, "HOLD_PHASE": phase},
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    proc = subprocess.Popen(
+        [sys.executable, str(driver), *argv],
+        env={**ENV, "HOLD_PHASE": phase},
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
     marker = "evolution 2/" if phase == "search" else f"HOLDING {phase}"
     seen = []
     deadline = time.monotonic() + 60
@@ -371,8 +433,9 @@ def test_signal_at_every_phase_is_exit_130_and_one_line(phase, sig, demo_result,
     last = err.strip().splitlines()[-1]
     assert "interrupted" in last and last.count("\n") == 0
     if phase in ("pictures", "verification"):
-        assert last.startswith(f"leverage: interrupted ({signal.Signals(sig).name}): during "
-                               f"the {phase}")
+        assert last.startswith(
+            f"leverage: interrupted ({signal.Signals(sig).name}): during the {phase}"
+        )
         assert json.loads((out / "best.json").read_text())["status"] == "complete"
     if phase in ("search", "polish"):
         assert json.loads((out / "best.json").read_text())["status"] == "interrupted"

@@ -47,6 +47,7 @@ Memory (measured, ``table_bytes``): ten years of the Earth from DE421 or DE423 i
 914 granules x 3 components x 13 coefficients = 0.285 MB; of Venus, Mars, Jupiter or
 Neptune 229 x 3 x 11 = 0.061 MB.
 """
+
 import datetime as _dt
 import importlib
 from pathlib import Path
@@ -75,10 +76,21 @@ J2000_JD = 2451545.0
 DAY_S = 86400.0
 PACKAGES = {"de421": 421, "de423": 423}
 # NAIF codes (NAIF IDs required reading): system barycentres 1..8, Earth 399, Sun 10.
-NAIF_IDS = {"mercury": 1, "venus": 2, "earth": 399, "mars": 4, "jupiter": 5, "saturn": 6,
-            "uranus": 7, "neptune": 8}
-_NAMES_BY_NAIF = {**{v: k for k, v in NAIF_IDS.items()},
-                  **{100 * v + 99: k for k, v in NAIF_IDS.items() if v < 10}, 3: "earth-moon"}
+NAIF_IDS = {
+    "mercury": 1,
+    "venus": 2,
+    "earth": 399,
+    "mars": 4,
+    "jupiter": 5,
+    "saturn": 6,
+    "uranus": 7,
+    "neptune": 8,
+}
+_NAMES_BY_NAIF = {
+    **{v: k for k, v in NAIF_IDS.items()},
+    **{100 * v + 99: k for k, v in NAIF_IDS.items() if v < 10},
+    3: "earth-moon",
+}
 
 _c, _s = np.cos(OBLIQUITY_J2000_RAD), np.sin(OBLIQUITY_J2000_RAD)
 # ICRF (mean equator and equinox of J2000) -> ecliptic J2000, applied to column vectors.
@@ -88,7 +100,7 @@ ICRF_TO_ECLIPTIC = np.array([[1.0, 0.0, 0.0], [0.0, _c, _s], [0.0, -_s, _c]])
 class DeTable(NamedTuple):
     """A KIND_CHEBYSHEV header (its CHEB_TABLE slot still 0) and its flat table."""
 
-    header: np.ndarray        # EPHEMERIS_SIZE slots, see core.ephemeris
+    header: np.ndarray  # EPHEMERIS_SIZE slots, see core.ephemeris
     coefficients: np.ndarray  # (granules * 3 * ncoef,) float64, km
 
 
@@ -136,8 +148,9 @@ def _span_text(a_s, b_s) -> str:
 def _planet_key(body_name: str, source: str) -> str:
     key = body_name.strip().lower()
     if key not in NAIF_IDS:
-        raise ProblemError(source, "", body_name,
-                           f"no DE table for this body; known: {', '.join(NAIF_IDS)}")
+        raise ProblemError(
+            source, "", body_name, f"no DE table for this body; known: {', '.join(NAIF_IDS)}"
+        )
     return key
 
 
@@ -148,21 +161,28 @@ def _packaged_terms(module_name: str, body: str):
     try:
         module = importlib.import_module(module_name)
     except ImportError:
-        raise ProblemError(module_name, "", NO_VALUE,
-                           f"ephemeris package not installed (pip install {module_name})") \
-            from None
+        raise ProblemError(
+            module_name,
+            "",
+            NO_VALUE,
+            f"ephemeris package not installed (pip install {module_name})",
+        ) from None
     eph = Ephemeris(module)
 
     def series(name):
         c = eph.load(name)
         granule_days = (eph.jomega - eph.jalpha) / c.shape[0]
-        return _Series(c, (eph.jalpha - J2000_JD) * DAY_S, granule_days * DAY_S,
-                       f"{module_name} {name}")
+        return _Series(
+            c, (eph.jalpha - J2000_JD) * DAY_S, granule_days * DAY_S, f"{module_name} {name}"
+        )
 
     sun = series("sun")
     if body == "earth":
-        terms = [(1.0, series("earthmoon")), (-1.0 / (1.0 + eph.EMRAT), series("moon")),
-                 (-1.0, sun)]
+        terms = [
+            (1.0, series("earthmoon")),
+            (-1.0 / (1.0 + eph.EMRAT), series("moon")),
+            (-1.0, sun),
+        ]
     else:
         terms = [(1.0, series(body)), (-1.0, sun)]
     return terms, NAIF_IDS[body], PACKAGES[module_name]
@@ -185,10 +205,12 @@ def _spk_terms(path: str, body: str, t_start_s: float, t_end_s: float):
         else:
             bary = NAIF_IDS[body]
             centre = 100 * bary + 99
-            chain, naif = ([(0, bary), (bary, centre)], centre) if (bary, centre) in pairs \
+            chain, naif = (
+                ([(0, bary), (bary, centre)], centre)
+                if (bary, centre) in pairs
                 else ([(0, bary)], bary)
-        terms = [(1.0, _spk_series(kernel, pair, path, body, t_start_s, t_end_s))
-                 for pair in chain]
+            )
+        terms = [(1.0, _spk_series(kernel, pair, path, body, t_start_s, t_end_s)) for pair in chain]
         terms.append((-1.0, _spk_series(kernel, (0, 10), path, body, t_start_s, t_end_s)))
         de_number = 0
         text = kernel.segments[0].source.decode("ascii", "replace")
@@ -208,17 +230,29 @@ def _spk_series(kernel, pair, path, body, t_start_s, t_end_s) -> _Series:
     covering = [s for s in segments if s.start_second <= t_start_s and s.end_second >= t_end_s]
     if not covering:
         spans = ", ".join(_span_text(s.start_second, s.end_second) for s in segments)
-        raise ProblemError(path, "", body,
-                           f"{_span_text(t_start_s, t_end_s)} is outside segment {pair[0]} -> "
-                           f"{pair[1]} ({spans})")
+        raise ProblemError(
+            path,
+            "",
+            body,
+            f"{_span_text(t_start_s, t_end_s)} is outside segment {pair[0]} -> {pair[1]} ({spans})",
+        )
     seg = covering[-1]
     if seg.data_type not in (2, 3):
-        raise ProblemError(path, "", body, f"segment {pair[0]} -> {pair[1]} is SPK type "
-                           f"{seg.data_type}; only Chebyshev types 2 and 3 are read")
+        raise ProblemError(
+            path,
+            "",
+            body,
+            f"segment {pair[0]} -> {pair[1]} is SPK type "
+            f"{seg.data_type}; only Chebyshev types 2 and 3 are read",
+        )
     start_jd, granule_days, coef = seg.load_array()  # coef: (components, granules, n)
     c = np.ascontiguousarray(np.transpose(coef[:3], (1, 0, 2)))  # type 3: positions only
-    return _Series(c, (start_jd - J2000_JD) * DAY_S, granule_days * DAY_S,
-                   f"{Path(path).name} {pair[0]}->{pair[1]}")
+    return _Series(
+        c,
+        (start_jd - J2000_JD) * DAY_S,
+        granule_days * DAY_S,
+        f"{Path(path).name} {pair[0]}->{pair[1]}",
+    )
 
 
 def _combine(terms, t_start_s, t_end_s, source: str):
@@ -229,23 +263,35 @@ def _combine(terms, t_start_s, t_end_s, source: str):
         ratio = ser.granule_s / g
         shift = (ser.start_s - fine.start_s) / g
         if abs(ratio - round(ratio)) > 1e-9 or abs(shift - round(shift)) > 1e-9:
-            raise ProblemError(source, "", NO_VALUE,
-                               f"granules of {ser.label} and {fine.label} do not nest; "
-                               "cannot combine them into one table")
+            raise ProblemError(
+                source,
+                "",
+                NO_VALUE,
+                f"granules of {ser.label} and {fine.label} do not nest; "
+                "cannot combine them into one table",
+            )
     cover_start = max(s.start_s for _, s in terms)
     cover_end = min(s.end_s for _, s in terms)
     if not (t_start_s >= cover_start and t_end_s <= cover_end and t_start_s < t_end_s):
-        raise ProblemError(source, "", NO_VALUE,
-                           f"{_span_text(t_start_s, t_end_s)} is outside the ephemeris span "
-                           f"{_span_text(cover_start, cover_end)}")
+        raise ProblemError(
+            source,
+            "",
+            NO_VALUE,
+            f"{_span_text(t_start_s, t_end_s)} is outside the ephemeris span "
+            f"{_span_text(cover_start, cover_end)}",
+        )
     k0 = int(np.floor((t_start_s - fine.start_s) / g))
     k1 = int(np.ceil((t_end_s - fine.start_s) / g))
     n_gran = k1 - k0
     start = fine.start_s + k0 * g
     if start < cover_start or start + n_gran * g > cover_end:  # ends off the granule grid
-        raise ProblemError(source, "", NO_VALUE,
-                           f"{_span_text(t_start_s, t_end_s)} rounded out to whole granules "
-                           f"leaves the ephemeris span {_span_text(cover_start, cover_end)}")
+        raise ProblemError(
+            source,
+            "",
+            NO_VALUE,
+            f"{_span_text(t_start_s, t_end_s)} rounded out to whole granules "
+            f"leaves the ephemeris span {_span_text(cover_start, cover_end)}",
+        )
     n = max(s.c.shape[2] for _, s in terms)
     theta = np.pi * (np.arange(n) + 0.5) / n
     nodes = np.cos(theta)  # Chebyshev-Gauss nodes on [-1, 1]
@@ -279,9 +325,12 @@ def build_table(source, body_name: str, t_start_s: float, t_end_s: float) -> DeT
     elif source.lower().endswith(".bsp") or Path(source).exists():
         terms, naif, de_number = _spk_terms(source, body, t_start_s, t_end_s)
     else:
-        raise ProblemError(source, "", NO_VALUE,
-                           f"unknown ephemeris source; use {', '.join(PACKAGES)} or a path "
-                           "to an SPK .bsp file")
+        raise ProblemError(
+            source,
+            "",
+            NO_VALUE,
+            f"unknown ephemeris source; use {', '.join(PACKAGES)} or a path to an SPK .bsp file",
+        )
     coef, start, granule = _combine(terms, float(t_start_s), float(t_end_s), label)
     header = np.zeros(EPHEMERIS_SIZE)
     header[0] = KIND_CHEBYSHEV
@@ -326,8 +375,9 @@ def _body_in_header(header) -> str | None:
     return None
 
 
-def with_de_ephemeris(p, source, t_start_s: float, t_end_s: float, body: str | None = None,
-                      target: str | None = None) -> np.ndarray:
+def with_de_ephemeris(
+    p, source, t_start_s: float, t_end_s: float, body: str | None = None, target: str | None = None
+) -> np.ndarray:
     """A new parameter array: ``p`` with the flyby body (and a planet target) on DE tables.
 
     The fixed slots of ``p`` are kept; any tables already appended are dropped and
@@ -336,7 +386,7 @@ def with_de_ephemeris(p, source, t_start_s: float, t_end_s: float, body: str | N
     DE table). A target that is not a planet (osculating elements) is left as it is.
     Evaluations outside [t_start_s, t_end_s] (rounded out to whole granules) fail.
     """
-    base = np.array(p[:L.N_PARAMS], dtype=float)
+    base = np.array(p[: L.N_PARAMS], dtype=float)
     label = Path(str(source)).name
     slots = [(L.P_BODY_EPH, body, "flyby body")]
     if base[L.P_HAS_TARGET] == 1.0:
@@ -344,16 +394,17 @@ def with_de_ephemeris(p, source, t_start_s: float, t_end_s: float, body: str | N
     tables = []
     offset = L.N_PARAMS
     for slot, name, role in slots:
-        header = base[slot:slot + EPHEMERIS_SIZE]
+        header = base[slot : slot + EPHEMERIS_SIZE]
         name = name or _body_in_header(header)
         if name is None:
             if role == "target":
                 continue  # a small body on its own elements
-            raise ProblemError(label, "", NO_VALUE,
-                               f"the {role} of this parameter array is not a known planet")
+            raise ProblemError(
+                label, "", NO_VALUE, f"the {role} of this parameter array is not a known planet"
+            )
         table = build_table(source, name, t_start_s, t_end_s)
         table.header[CHEB_TABLE] = offset
-        base[slot:slot + EPHEMERIS_SIZE] = table.header
+        base[slot : slot + EPHEMERIS_SIZE] = table.header
         tables.append(table.coefficients)
         offset += table.coefficients.size
     return np.concatenate([base, *tables])

@@ -17,6 +17,7 @@ rotated from the ICRF axes to the ecliptic J2000 by the obliquity 84381.448 arcs
 the mean equator and equinox of J2000; the ~0.02 arcsec frame bias between them is
 ignored. Epochs are TDB seconds past J2000.
 """
+
 from pathlib import Path
 
 import numpy as np
@@ -68,8 +69,9 @@ class SpkEphemeris:
         try:
             self.kernel = SPK.open(self.path)
         except Exception as exc:  # jplephem raises ValueError/struct errors on bad files
-            raise ProblemError(self.path, "", NO_VALUE,
-                               f"not a readable SPK kernel ({exc})") from None
+            raise ProblemError(
+                self.path, "", NO_VALUE, f"not a readable SPK kernel ({exc})"
+            ) from None
         self.pairs = set(self.kernel.pairs)
         self.name = f"JPL SPK kernel {Path(self.path).name} (jplephem)"
 
@@ -94,8 +96,9 @@ class SpkEphemeris:
             raise ProblemError(self.path, "", body, "no NAIF code known for this body")
         missing = [p for p in path if p not in self.pairs]
         if missing:
-            raise ProblemError(self.path, "", body,
-                               f"kernel has no segment {missing[0][0]} -> {missing[0][1]}")
+            raise ProblemError(
+                self.path, "", body, f"kernel has no segment {missing[0][0]} -> {missing[0][1]}"
+            )
         return path
 
     def barycentric(self, body: str, t_tdb_s):
@@ -107,10 +110,12 @@ class SpkEphemeris:
         for pair in self.chain(body):
             try:
                 pos, vel = self.kernel[pair].compute_and_differentiate(
-                    np.full(t.shape, J2000_JD), t / DAY_S)
+                    np.full(t.shape, J2000_JD), t / DAY_S
+                )
             except OutOfRangeError as exc:
-                raise ProblemError(self.path, "", body, f"epoch outside the kernel: {exc}") \
-                    from None
+                raise ProblemError(
+                    self.path, "", body, f"epoch outside the kernel: {exc}"
+                ) from None
             r += np.asarray(pos).T.reshape(-1, 3)
             v += np.asarray(vel).T.reshape(-1, 3) / DAY_S  # km/day -> km/s
         return r, v
@@ -154,8 +159,7 @@ class PackagedEphemeris:
         except Exception as exc:  # jplephem: DateError outside the span, KeyError for names
             raise ProblemError(self.name, "", body, f"cannot evaluate ({exc})") from None
         # jplephem's packaged reader gives km and km/day, rows x, y, z.
-        return (np.asarray(r).T.reshape(-1, 3),
-                np.asarray(v).T.reshape(-1, 3) / DAY_S)
+        return (np.asarray(r).T.reshape(-1, 3), np.asarray(v).T.reshape(-1, 3) / DAY_S)
 
 
 def heliocentric_ecliptic(source, body: str, t_tdb_s):

@@ -3,6 +3,7 @@
 J2000 is 2000-01-01 12:00:00 TDB (JD 2451545.0 TDB). Calendar input is UTC unless
 it names another astropy scale; leap seconds and TT-TDB come from astropy/ERFA.
 """
+
 import warnings
 from datetime import date, datetime
 
@@ -20,7 +21,6 @@ warnings.filterwarnings("ignore", category=iers.IERSStaleWarning)
 # ERFA calls dates past the leap-second table's horizon "dubious"; UTC there simply
 # assumes no new leap second, which is all a preliminary design can assume.
 warnings.filterwarnings("ignore", message=".*dubious year.*")
-
 
 
 def to_time(value, scale: str = "utc") -> Time:

@@ -8,6 +8,7 @@ anything printed are escaped (``leverage.errors.printable``), so a name or a rec
 cannot drive the terminal. SIGINT and SIGTERM end any command with exit 130 and one
 line (a run or sweep takes over both signals while it searches).
 """
+
 import argparse
 import errno
 import importlib
@@ -22,15 +23,15 @@ from leverage.errors import NO_VALUE, ProblemError, WriteFault, free_space, prin
 
 # Exit codes of every command (README "Exit codes").
 EXIT_OK = 0
-EXIT_FAILED = 1          # a sweep whose runs failed
-EXIT_BAD_INPUT = 2       # problem file, command line, result folder or checkpoint refused
+EXIT_FAILED = 1  # a sweep whose runs failed
+EXIT_BAD_INPUT = 2  # problem file, command line, result folder or checkpoint refused
 EXIT_INFEASIBLE = 3
-EXIT_NOT_VERIFIED = 4    # holds in the search model, breaks a stated limit in the verification
-EXIT_CANNOT_WRITE = 5    # disk full, a folder not writable: the machine refused a file
-EXIT_NOT_CONVERGED = 6   # leverage refine: the n-body design misses a condition
-EXIT_UNREACHABLE = 7     # leverage check: the feasibility screen says the goal is unreachable
-EXIT_INTERNAL = 70       # a bug in leverage (one line; --debug for the traceback)
-EXIT_INTERRUPTED = 130   # SIGINT or SIGTERM
+EXIT_NOT_VERIFIED = 4  # holds in the search model, breaks a stated limit in the verification
+EXIT_CANNOT_WRITE = 5  # disk full, a folder not writable: the machine refused a file
+EXIT_NOT_CONVERGED = 6  # leverage refine: the n-body design misses a condition
+EXIT_UNREACHABLE = 7  # leverage check: the feasibility screen says the goal is unreachable
+EXIT_INTERNAL = 70  # a bug in leverage (one line; --debug for the traceback)
+EXIT_INTERRUPTED = 130  # SIGINT or SIGTERM
 
 EXIT_CODES_HELP = (
     "exit codes: 0 done (a run: its design holds in the search model and the "
@@ -40,7 +41,8 @@ EXIT_CODES_HELP = (
     "verify); 5 a file could not be written (disk full, folder not writable; the best "
     "design so far is kept where possible); 6 refine did not converge (the attempt is "
     "kept, marked so); 7 check: the feasibility screen finds the goal unreachable; 70 an internal error (please report; --debug shows the "
-    "traceback); 130 interrupted (SIGINT or SIGTERM; what was written is kept).")
+    "traceback); 130 interrupted (SIGINT or SIGTERM; what was written is kept)."
+)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -62,11 +64,16 @@ def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(
         prog="leverage",
         description="Search v-infinity leveraging trajectories (launch, one deep-space "
-                    "maneuver, return flyby) in a patched-conic model. Preliminary designs "
-                    "only.", epilog=EXIT_CODES_HELP)
+        "maneuver, return flyby) in a patched-conic model. Preliminary designs "
+        "only.",
+        epilog=EXIT_CODES_HELP,
+    )
     parser.add_argument("--version", action="version", version=f"leverage {__version__}")
-    parser.add_argument("--debug", action="store_true",
-                        help="show the Python traceback of a failure (also LEVERAGE_DEBUG=1)")
+    parser.add_argument(
+        "--debug",
+        action="store_true",
+        help="show the Python traceback of a failure (also LEVERAGE_DEBUG=1)",
+    )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
     for module in command_modules():
@@ -84,9 +91,13 @@ class _Printable:
 
     def write(self, text):
         if any(ord(ch) < 0x20 or 0x7F <= ord(ch) < 0xA0 for ch in text if ch not in "\t\n\r"):
-            text = "\n".join("\r".join("\t".join(printable(part) for part in piece.split("\t"))
-                                       for piece in line.split("\r"))
-                             for line in text.split("\n"))
+            text = "\n".join(
+                "\r".join(
+                    "\t".join(printable(part) for part in piece.split("\t"))
+                    for piece in line.split("\r")
+                )
+                for line in text.split("\n")
+            )
         return self._stream.write(text)
 
     def __getattr__(self, name):
@@ -130,15 +141,23 @@ def print_warnings(problem) -> None:
     """One stderr line per value of the problem file that looks like a slip of units
     (``Problem.warnings``, from ``leverage.problem.plausibility``)."""
     for slip in getattr(problem, "warnings", ()):
-        print(f"leverage: warning: {printable(problem.source, 200)}: {printable(slip, 600)}",
-              file=sys.stderr)
+        print(
+            f"leverage: warning: {printable(problem.source, 200)}: {printable(slip, 600)}",
+            file=sys.stderr,
+        )
 
 
 def _os_error_line(exc: OSError) -> str:
     where = exc.filename or "a file"
     reason = exc.strerror or str(exc)
-    if exc.errno in (errno.ENOSPC, errno.EFBIG, errno.EDQUOT, errno.EROFS, errno.EACCES,
-                     errno.EPERM):
+    if exc.errno in (
+        errno.ENOSPC,
+        errno.EFBIG,
+        errno.EDQUOT,
+        errno.EROFS,
+        errno.EACCES,
+        errno.EPERM,
+    ):
         return f"cannot write {printable(where, 200)} ({reason}; {free_space(where)})"
     return f"{printable(where, 200)}: {printable(reason, 200)}"
 
@@ -175,8 +194,12 @@ def _main(argv, debug: bool, signals) -> int:
     except MemoryError:
         return _fail(debug, "out of memory", EXIT_CANNOT_WRITE)
     except Exception as exc:  # a bug: still one line, the traceback on request
-        return _fail(debug, f"internal error ({type(exc).__name__}: {printable(exc, 200)}); "
-                            "please report it; --debug shows the traceback", EXIT_INTERNAL)
+        return _fail(
+            debug,
+            f"internal error ({type(exc).__name__}: {printable(exc, 200)}); "
+            "please report it; --debug shows the traceback",
+            EXIT_INTERNAL,
+        )
 
 
 def _fail(debug: bool, line: str, code: int) -> int:

@@ -1,4 +1,5 @@
 """Command-line values checked with the same rules as problem-file keys."""
+
 from leverage.problem.load import convert
 from leverage.problem.schema import keys_by_section
 

@@ -1,4 +1,5 @@
 """leverage plot RESULT_DIR: (re)draw the pictures of a result folder."""
+
 from pathlib import Path
 
 from leverage.fileio import check_writable, load_record
@@ -8,10 +9,13 @@ from leverage.run.lock import folder_lock
 
 
 def add_parser(sub):
-    p = sub.add_parser("plot", help="draw the pictures of a result folder",
-                       description="Write trajectory.png and convergence.png into RESULT_DIR, "
-                                   "plus front.png when it has front.csv and launch_window.png "
-                                   "when it has a launch-window sweep table.")
+    p = sub.add_parser(
+        "plot",
+        help="draw the pictures of a result folder",
+        description="Write trajectory.png and convergence.png into RESULT_DIR, "
+        "plus front.png when it has front.csv and launch_window.png "
+        "when it has a launch-window sweep table.",
+    )
     p.add_argument("results", help="result folder (with best.json)")
     return p
 

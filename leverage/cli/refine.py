@@ -5,6 +5,7 @@ Exit codes: 0 converged; 2 bad input (one line); 6 not converged (one line namin
 condition still missed and by how much; the best attempt is written to refined/ marked
 "not converged"); 130 interrupted (refined/ left as it was).
 """
+
 import sys
 import time
 from pathlib import Path
@@ -24,23 +25,33 @@ from . import EXIT_NOT_CONVERGED
 
 def add_parser(sub):
     p = sub.add_parser(
-        "refine", help="converge a result's design with the Sun, planets and Moon as point "
-                       "masses (n-body) and write RESULT_DIR/refined/",
+        "refine",
+        help="converge a result's design with the Sun, planets and Moon as point "
+        "masses (n-body) and write RESULT_DIR/refined/",
         description="Refine the best design of RESULT_DIR in an n-body model (point masses at "
-                    "JPL DE421 states, REBOUND IAS15, cross-checked with scipy DOP853): "
-                    "multiple shooting from the departure periapsis through the flyby "
-                    "periapsis, least burns subject to the problem's limits measured on the "
-                    "integrated trajectory. Writes refined.json, summary.txt, states.oem and "
-                    "trajectory.png into RESULT_DIR/refined/ (all at once). Exit status: 0 "
-                    "converged, 2 bad input, 6 not converged (the best attempt is still "
-                    "written, marked \"not converged\"), 130 interrupted (nothing written).")
+        "JPL DE421 states, REBOUND IAS15, cross-checked with scipy DOP853): "
+        "multiple shooting from the departure periapsis through the flyby "
+        "periapsis, least burns subject to the problem's limits measured on the "
+        "integrated trajectory. Writes refined.json, summary.txt, states.oem and "
+        "trajectory.png into RESULT_DIR/refined/ (all at once). Exit status: 0 "
+        "converged, 2 bad input, 6 not converged (the best attempt is still "
+        'written, marked "not converged"), 130 interrupted (nothing written).',
+    )
     p.add_argument("results", help="result folder (with best.json and problem.toml)")
-    p.add_argument("--parking-altitude-km", type=float, default=None,
-                   help="altitude of the departure hyperbola's periapsis above the "
-                        "equatorial radius (km; default: the problem's [launch] "
-                        "parking_altitude_km, 200 unless set; common practice 185-200)")
-    p.add_argument("--max-steps", type=int, default=25,
-                   help="most trust-region optimisation steps (default 25)")
+    p.add_argument(
+        "--parking-altitude-km",
+        type=float,
+        default=None,
+        help="altitude of the departure hyperbola's periapsis above the "
+        "equatorial radius (km; default: the problem's [launch] "
+        "parking_altitude_km, 200 unless set; common practice 185-200)",
+    )
+    p.add_argument(
+        "--max-steps",
+        type=int,
+        default=25,
+        help="most trust-region optimisation steps (default 25)",
+    )
     return p
 
 
@@ -51,19 +62,25 @@ def _say(line):
 def main(args) -> int:
     folder = Path(args.results)
     if args.parking_altitude_km is not None and not 0.0 < args.parking_altitude_km < 100_000.0:
-        raise ProblemError("command line", "--parking-altitude-km", args.parking_altitude_km,
-                           "must be between 0 and 100000 km")
+        raise ProblemError(
+            "command line",
+            "--parking-altitude-km",
+            args.parking_altitude_km,
+            "must be between 0 and 100000 km",
+        )
     check_folder(folder)
     record = load_record(folder)
     check_record(record, str(folder / "best.json"))
     limits = read_limits(folder)
-    parking_km = (limits.parking_altitude_km if args.parking_altitude_km is None
-                  else args.parking_altitude_km)
+    parking_km = (
+        limits.parking_altitude_km if args.parking_altitude_km is None else args.parking_altitude_km
+    )
     started = time.monotonic()
     try:
         de = De421()
-        refiner = Refiner(record, limits, de, Ias15(de), parking_km,
-                          progress=lambda line: _say(f"refine: {line}"))
+        refiner = Refiner(
+            record, limits, de, Ias15(de), parking_km, progress=lambda line: _say(f"refine: {line}")
+        )
         best, missed = refiner.solve(max_outer=args.max_steps)
         _say("refine: cross-checking with DOP853")
         check = cross_check(refiner, best)
@@ -72,18 +89,18 @@ def main(args) -> int:
         arcs = report.refined_arcs(refiner, best)
         out = report.write_folder(folder, report.files(rec, record, arcs))
     except KeyboardInterrupt:
-        print(f"leverage refine: interrupted; {folder / 'refined'} left as it was",
-              file=sys.stderr)
+        print(f"leverage refine: interrupted; {folder / 'refined'} left as it was", file=sys.stderr)
         return 130
     except (ValueError, RuntimeError) as exc:
         print(f"leverage refine: {folder}: {exc}", file=sys.stderr)
         return 2
     if missed is not None:
-        print(f"leverage refine: not converged: {missed}; best attempt in {out}",
-              file=sys.stderr)
+        print(f"leverage refine: not converged: {missed}; best attempt in {out}", file=sys.stderr)
         return EXIT_NOT_CONVERGED
     q = rec["derived"]
-    print(f"converged in {refiner.iterations} iterations, {wall:.0f} s: DSM "
-          f"{q['dsm']['patched_conic']:.4f} -> {q['dsm']['value']:.4f} km/s; "
-          f"written to {out}")
+    print(
+        f"converged in {refiner.iterations} iterations, {wall:.0f} s: DSM "
+        f"{q['dsm']['patched_conic']:.4f} -> {q['dsm']['value']:.4f} km/s; "
+        f"written to {out}"
+    )
     return 0

@@ -1,4 +1,5 @@
 """leverage show RESULT_DIR [RESULT_DIR ...]: the summary of a run, or several side by side."""
+
 from pathlib import Path
 
 from leverage.errors import NO_VALUE, ProblemError
@@ -8,10 +9,13 @@ from leverage.reports.summary import refined_line, render
 
 
 def add_parser(sub):
-    p = sub.add_parser("show", help="print the summary of a result folder, or compare several",
-                       description="One folder: print its summary. Several: lay them side by "
-                                   "side (goal, key numbers, margins, evaluations, wall time, "
-                                   "problem-file settings that differ).")
+    p = sub.add_parser(
+        "show",
+        help="print the summary of a result folder, or compare several",
+        description="One folder: print its summary. Several: lay them side by "
+        "side (goal, key numbers, margins, evaluations, wall time, "
+        "problem-file settings that differ).",
+    )
     p.add_argument("results", nargs="+", help="result folder(s)")
     return p
 
@@ -21,14 +25,19 @@ def main(args) -> int:
         # Several folders: one side-by-side table (leverage.compare).
         records = [load_record(folder) for folder in args.results]
         try:
-            text = compare.render(args.results, records,
-                                  [load_refined(folder) for folder in args.results])
+            text = compare.render(
+                args.results, records, [load_refined(folder) for folder in args.results]
+            )
         except (KeyError, TypeError, ValueError, AttributeError) as exc:
-            bad = next((f for f, r in zip(args.results, records) if not _renders(r)),
-                       args.results[0])
-            raise ProblemError(str(Path(bad) / "best.json"), "", NO_VALUE,
-                               f"not a leverage result record ({type(exc).__name__}: {exc})"
-                               ) from None
+            bad = next(
+                (f for f, r in zip(args.results, records) if not _renders(r)), args.results[0]
+            )
+            raise ProblemError(
+                str(Path(bad) / "best.json"),
+                "",
+                NO_VALUE,
+                f"not a leverage result record ({type(exc).__name__}: {exc})",
+            ) from None
         print(text)
         return 0
     for folder in args.results:
@@ -36,9 +45,12 @@ def main(args) -> int:
         try:
             text = render(record)
         except (KeyError, TypeError, ValueError, AttributeError) as exc:
-            raise ProblemError(str(Path(folder) / "best.json"), "", NO_VALUE,
-                               f"not a leverage result record ({type(exc).__name__}: {exc})"
-                               ) from None
+            raise ProblemError(
+                str(Path(folder) / "best.json"),
+                "",
+                NO_VALUE,
+                f"not a leverage result record ({type(exc).__name__}: {exc})",
+            ) from None
         print(text)
         print(refined_line(load_refined(folder)))
     return 0

@@ -11,6 +11,7 @@ loads, not the files of the functions it calls; keying the folder on every kerne
 source means an edit anywhere in core (or an upgrade) never loads stale machine
 code. Set NUMBA_CACHE_DIR to choose the folder yourself.
 """
+
 import hashlib
 import os
 import sys

@@ -10,6 +10,7 @@
 - ``PLANET_NAMES``: the eight planets, Sun outward (IAU 2006 Resolution B5).
 - ``G0_KM_S2``: standard gravity 9.80665 m/s^2 (3rd CGPM 1901, exact), in km/s^2.
 """
+
 import math
 
 AU_KM = 149_597_870.700

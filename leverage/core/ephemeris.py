@@ -21,6 +21,7 @@ Three encodings of a body's motion, each described by ``EPHEMERIS_SIZE`` slots
 Time is TDB seconds past J2000 (2000-01-01 12:00 TDB); Standish's T_eph is treated
 as TDB, which his stated accuracy allows.
 """
+
 import numpy as np
 from numba import njit
 
@@ -33,14 +34,14 @@ KIND_OSCULATING = 1.0
 KIND_CHEBYSHEV = 2.0
 
 # Header slots of KIND_CHEBYSHEV (offsets from the header's first slot).
-CHEB_TABLE = 1       # index in p of the first coefficient of the table
-CHEB_GRANULES = 2    # number of granules (equal time intervals) in the table
-CHEB_NCOEF = 3       # Chebyshev coefficients per component and granule
-CHEB_T_START = 4     # start of the first granule, s TDB past J2000
-CHEB_GRANULE_S = 5   # granule length, s
-CHEB_T_END = 6       # end of the last granule, s TDB past J2000
-CHEB_NAIF_ID = 7     # the body (NAIF code: 399 Earth, 1..8 system barycentres); for reports
-CHEB_DE_NUMBER = 8   # DE number of the source (421, 423, ...; 0 if unknown); for reports
+CHEB_TABLE = 1  # index in p of the first coefficient of the table
+CHEB_GRANULES = 2  # number of granules (equal time intervals) in the table
+CHEB_NCOEF = 3  # Chebyshev coefficients per component and granule
+CHEB_T_START = 4  # start of the first granule, s TDB past J2000
+CHEB_GRANULE_S = 5  # granule length, s
+CHEB_T_END = 6  # end of the last granule, s TDB past J2000
+CHEB_NAIF_ID = 7  # the body (NAIF code: 399 Earth, 1..8 system barycentres); for reports
+CHEB_DE_NUMBER = 8  # DE number of the source (421, 423, ...; 0 if unknown); for reports
 
 _DEG = np.pi / 180.0
 
@@ -190,4 +191,4 @@ def body_state_in(p, slot, t):
     ``p[slot]`` (any kind; heliocentric ecliptic J2000). NaN outside a table's span."""
     if p[slot] == KIND_CHEBYSHEV:
         return chebyshev_state(p, slot, t)
-    return body_state(p[slot:slot + EPHEMERIS_SIZE], t)
+    return body_state(p[slot : slot + EPHEMERIS_SIZE], t)

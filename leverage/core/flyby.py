@@ -9,6 +9,7 @@ asymptote, T = unit(S x k) for a reference pole k, R = S x T). The B-plane angle
 theta is measured from T toward R; the aim point B points along
 cos(theta) T + sin(theta) R, and gravity turns the velocity toward -B.
 """
+
 import numpy as np
 from numba import njit
 
@@ -102,8 +103,9 @@ _RP_RTOL = 1e-12
 @njit(cache=True)
 def powered_turn(mu, vinf_in, vinf_out, rp):
     """Turn (rad) of a powered flyby with periapsis rp (km): asin(1/e_in) + asin(1/e_out)."""
-    return (np.arcsin(1.0 / hyperbola_ecc(mu, vinf_in, rp))
-            + np.arcsin(1.0 / hyperbola_ecc(mu, vinf_out, rp)))
+    return np.arcsin(1.0 / hyperbola_ecc(mu, vinf_in, rp)) + np.arcsin(
+        1.0 / hyperbola_ecc(mu, vinf_out, rp)
+    )
 
 
 @njit(cache=True)

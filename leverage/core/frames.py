@@ -4,6 +4,7 @@ Ecliptic J2000 <-> Earth mean equator and equinox of J2000 (EME2000): a rotation
 about x by the J2000 obliquity 84381.448 arcsec (IAU 1976 value, the one JPL uses
 for its "ecliptic of J2000" frame; Standish's elements are referred to it).
 """
+
 import numpy as np
 from numba import njit
 
@@ -53,8 +54,13 @@ def launch_asymptote(vinf_ecliptic, pole_ra, pole_dec):
     """
     eq = ecliptic_to_equatorial(vinf_ecliptic)
     if abs(pole_dec - 0.5 * np.pi) > 1e-12:
-        z = np.array([np.cos(pole_dec) * np.cos(pole_ra),
-                      np.cos(pole_dec) * np.sin(pole_ra), np.sin(pole_dec)])
+        z = np.array(
+            [
+                np.cos(pole_dec) * np.cos(pole_ra),
+                np.cos(pole_dec) * np.sin(pole_ra),
+                np.sin(pole_dec),
+            ]
+        )
         x = np.array([-np.sin(pole_ra), np.cos(pole_ra), 0.0])
         y = np.cross(z, x)
         eq = np.array([eq @ x, eq @ y, eq @ z])
@@ -87,8 +93,11 @@ def direction_from_angles(along, out, normal, in_plane, out_of_plane):
     """Unit vector at ``in_plane`` from ``along`` toward ``out`` and elevated by
     ``out_of_plane`` toward ``normal`` (rad)."""
     ce = np.cos(out_of_plane)
-    return (ce * np.cos(in_plane)) * along + (ce * np.sin(in_plane)) * out \
+    return (
+        (ce * np.cos(in_plane)) * along
+        + (ce * np.sin(in_plane)) * out
         + np.sin(out_of_plane) * normal
+    )
 
 
 @njit(cache=True)

@@ -10,6 +10,7 @@ loops forever when its hyperbolic starting guess is NaN (its Stumpff series neve
 ends on NaN), stops at an absolute 1e-7 step in the universal anomaly and evaluates
 the Lagrange coefficients one iterate behind, ~1e-8 relative error on hyperbolas.)
 """
+
 import numpy as np
 from numba import njit
 from poliastro.core.elements import coe2rv, rv2coe
@@ -46,8 +47,9 @@ def eccentric_from_mean(mean_anomaly, ecc):
 @njit(cache=True)
 def true_from_eccentric(e_anom, ecc):
     """True anomaly (rad) from eccentric anomaly (rad), elliptic orbits."""
-    return 2.0 * np.arctan2(np.sqrt(1.0 + ecc) * np.sin(0.5 * e_anom),
-                            np.sqrt(1.0 - ecc) * np.cos(0.5 * e_anom))
+    return 2.0 * np.arctan2(
+        np.sqrt(1.0 + ecc) * np.sin(0.5 * e_anom), np.sqrt(1.0 - ecc) * np.cos(0.5 * e_anom)
+    )
 
 
 @njit(cache=True)
@@ -126,8 +128,9 @@ def propagate(mu, r0, v0, tof):
     if tof == 0.0:
         return r0.copy(), v0.copy(), True
     r0n = np.sqrt(r0 @ r0)
-    if not (np.isfinite(tof) and np.isfinite(r0n) and np.all(np.isfinite(v0))
-            and r0n > 0.0 and mu > 0.0):
+    if not (
+        np.isfinite(tof) and np.isfinite(r0n) and np.all(np.isfinite(v0)) and r0n > 0.0 and mu > 0.0
+    ):
         return r, v, False
     sqrt_mu = np.sqrt(mu)
     sigma0 = (r0 @ v0) / sqrt_mu
@@ -148,7 +151,8 @@ def propagate(mu, r0, v0, tof):
         if alpha < 0.0:
             sign_t = 1.0 if t > 0.0 else -1.0
             arg = (-2.0 * mu * alpha * t) / (
-                r0 @ v0 + sign_t * np.sqrt(-mu / alpha) * (1.0 - r0n * alpha))
+                r0 @ v0 + sign_t * np.sqrt(-mu / alpha) * (1.0 - r0n * alpha)
+            )
             if arg > 0.0 and np.isfinite(arg):
                 guess = sign_t * np.sqrt(-1.0 / alpha) * np.log(arg)
                 if np.isfinite(guess) and guess * t > 0.0:
@@ -157,8 +161,9 @@ def propagate(mu, r0, v0, tof):
         hi = max(0.0, chi)
         for _ in range(200):
             f_end, _r = _universal_time(chi, r0n, sigma0, alpha)
-            past = (not np.isfinite(f_end)) or (f_end >= sqrt_mu * t if t > 0.0
-                                                else f_end <= sqrt_mu * t)
+            past = (not np.isfinite(f_end)) or (
+                f_end >= sqrt_mu * t if t > 0.0 else f_end <= sqrt_mu * t
+            )
             if past:
                 break
             if t > 0.0:

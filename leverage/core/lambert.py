@@ -6,6 +6,7 @@ reachable: ``revs`` full revolutions (M), and for M >= 1 the two roots selected 
 ``low_path``. Units: km, s, km/s. Never raises: a failure (collinear points, no
 solution with M revolutions in that time, non-convergence) returns ok=False.
 """
+
 import numpy as np
 from numba import njit
 from poliastro.core.iod import izzo as _izzo

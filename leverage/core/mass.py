@@ -7,6 +7,7 @@ search sees a continuous objective. Mass after a burn follows Tsiolkovsky's rock
 equation m_final = m0 exp(-dv / (g0 Isp)), with g0 the standard acceleration of
 gravity 9.80665 m/s^2 (3rd CGPM, 1901).
 """
+
 import numpy as np
 from numba import njit
 

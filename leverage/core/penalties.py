@@ -5,6 +5,7 @@ holds. The penalty of a margin m with scale s is v + v^2 with v = max(0, -m)/s:
 zero exactly when the limit holds, continuous, and growing with the violation so
 that a search started in the infeasible region can climb out.
 """
+
 import numpy as np
 from numba import njit
 
@@ -15,21 +16,23 @@ NAN_PENALTY = 1.0e3
 SMALLEST_PENALTY = 2.2250738585072014e-308  # smallest normal float64: "violated, barely"
 
 # Normalising scale of each margin, in its unit (order as Q_MARGIN_* slots).
-MARGIN_SCALES = np.array([
-    100.0,                      # flyby altitude, km
-    0.1,                        # turn angle, rad
-    1.0,                        # C3, km^2/s^2
-    np.radians(1.0),            # DLA, rad
-    0.1,                        # DSM budget, km/s
-    0.1,                        # required outgoing v-infinity, km/s
-    np.radians(1.0),            # required inclination, rad
-    0.1 * AU_KM,     # required aphelion, km
-    1.0,                        # Lambert solved (0 / -1)
-    0.1,                        # v-infinity match of an unpowered flyby, km/s
-    0.1,                        # arrival v-infinity, km/s
-    1.0,                        # launch C3 inside the launch-vehicle table, km^2/s^2
-    1.0,                        # arrival inside the arrival window, days
-])
+MARGIN_SCALES = np.array(
+    [
+        100.0,  # flyby altitude, km
+        0.1,  # turn angle, rad
+        1.0,  # C3, km^2/s^2
+        np.radians(1.0),  # DLA, rad
+        0.1,  # DSM budget, km/s
+        0.1,  # required outgoing v-infinity, km/s
+        np.radians(1.0),  # required inclination, rad
+        0.1 * AU_KM,  # required aphelion, km
+        1.0,  # Lambert solved (0 / -1)
+        0.1,  # v-infinity match of an unpowered flyby, km/s
+        0.1,  # arrival v-infinity, km/s
+        1.0,  # launch C3 inside the launch-vehicle table, km^2/s^2
+        1.0,  # arrival inside the arrival window, days
+    ]
+)
 
 
 @njit(cache=True)

@@ -16,6 +16,7 @@ delivered mass is the injected mass at the launch C3 times the rocket-equation
 factor of every burn. Limits become penalties (see ``penalties``); margins are kept
 in ``q``.
 """
+
 import numpy as np
 from numba import njit, prange
 
@@ -82,8 +83,11 @@ def objectives(q, p, f):
         return
     pen = q[L.Q_PENALTY]
     if f.shape[0] == 1:
-        value = (p[L.P_W_DSM] * q[L.Q_TOTAL_DV] - p[L.P_W_GAIN] * q[L.Q_GAIN]
-                 - p[L.P_W_INC] * q[L.Q_OUT_INC] / _DEG)
+        value = (
+            p[L.P_W_DSM] * q[L.Q_TOTAL_DV]
+            - p[L.P_W_GAIN] * q[L.Q_GAIN]
+            - p[L.P_W_INC] * q[L.Q_OUT_INC] / _DEG
+        )
         # Weights of quantities that may be absent (nan) are only applied when set.
         if p[L.P_W_ARRIVAL] > 0.0:
             value += p[L.P_W_ARRIVAL] * q[L.Q_VINF_ARRIVAL]
@@ -103,8 +107,13 @@ def _launch(x, p, q):
     t1 = t0 + x[L.X_DSM_FRACTION] * t_loop
     r0, vb0 = body_state_in(p, L.P_BODY_EPH, t0)  # NaN off a table: propagate fails
     along, out, normal = velocity_frame(r0, vb0)
-    u = direction_from_angles(along, out, normal, x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG] * _DEG,
-                              x[L.X_LAUNCH_OUT_OF_PLANE_ANGLE_DEG] * _DEG)
+    u = direction_from_angles(
+        along,
+        out,
+        normal,
+        x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG] * _DEG,
+        x[L.X_LAUNCH_OUT_OF_PLANE_ANGLE_DEG] * _DEG,
+    )
     vinf0 = x[L.X_LAUNCH_VINF_KM_S] * u
     v0 = vb0 + vinf0
     c3, dla, rla = launch_asymptote(vinf0, p[L.P_POLE_RA], p[L.P_POLE_DEC])
@@ -128,12 +137,15 @@ def _launch(x, p, q):
 @njit(cache=True)
 def _no_target_requirements(p, q):
     """Margins of the outgoing-condition requirements (inf where none is set)."""
-    q[L.Q_MARGIN_VINF_OUT_KMS] = (q[L.Q_VINF_OUT] - p[L.P_REQ_VINF_OUT_KMS]
-                                  if p[L.P_REQ_VINF_OUT_KMS] > 0.0 else np.inf)
-    q[L.Q_MARGIN_INC_RAD] = (q[L.Q_OUT_INC] - p[L.P_REQ_INC_RAD]
-                             if p[L.P_REQ_INC_RAD] > 0.0 else np.inf)
-    q[L.Q_MARGIN_APHELION_KM] = (q[L.Q_OUT_APO] - p[L.P_REQ_APHELION_KM]
-                                 if p[L.P_REQ_APHELION_KM] > 0.0 else np.inf)
+    q[L.Q_MARGIN_VINF_OUT_KMS] = (
+        q[L.Q_VINF_OUT] - p[L.P_REQ_VINF_OUT_KMS] if p[L.P_REQ_VINF_OUT_KMS] > 0.0 else np.inf
+    )
+    q[L.Q_MARGIN_INC_RAD] = (
+        q[L.Q_OUT_INC] - p[L.P_REQ_INC_RAD] if p[L.P_REQ_INC_RAD] > 0.0 else np.inf
+    )
+    q[L.Q_MARGIN_APHELION_KM] = (
+        q[L.Q_OUT_APO] - p[L.P_REQ_APHELION_KM] if p[L.P_REQ_APHELION_KM] > 0.0 else np.inf
+    )
 
 
 @njit(cache=True)
@@ -155,8 +167,9 @@ def _target_leg(x, p, q, r2):
     q[L.Q_VINF_ARRIVAL] = vinf_arr
     q[L.Q_ARRIVAL_DV] = vinf_arr if p[L.P_ARRIVAL_BURN] == 1.0 else 0.0
     q[L.Q_MARGIN_ARRIVAL_VINF_KMS] = p[L.P_ARRIVAL_VINF_MAX_KMS] - vinf_arr
-    q[L.Q_MARGIN_ARRIVAL_DAYS] = min(t3 - p[L.P_ARRIVAL_OPEN_S],
-                                     p[L.P_ARRIVAL_CLOSE_S] - t3) / DAY_S
+    q[L.Q_MARGIN_ARRIVAL_DAYS] = (
+        min(t3 - p[L.P_ARRIVAL_OPEN_S], p[L.P_ARRIVAL_CLOSE_S] - t3) / DAY_S
+    )
     _put(q, L.Q_R_ARRIVAL, r3)
     _put(q, L.Q_V_ARRIVAL, v_arr)
     _put(q, L.Q_V_TARGET_ARRIVAL, v3_body)
@@ -253,8 +266,9 @@ def _target_flyby(p, q, vinf_in, vinf_out):
     q[L.Q_ALT] = rp - p[L.P_BODY_RADIUS_KM]
     q[L.Q_BPLANE] = bplane_angle_of(vinf_in, vinf_out, _ECLIPTIC_POLE)
     q[L.Q_FLYBY_DV] = periapsis_burn(mu_b, speed_in, speed_out, max(rp, rp_min)) if powered else 0.0
-    q[L.Q_MARGIN_VINF_MATCH_KMS] = (np.inf if powered else
-                                    p[L.P_VINF_MATCH_TOL_KMS] - abs(speed_out - speed_in))
+    q[L.Q_MARGIN_VINF_MATCH_KMS] = (
+        np.inf if powered else p[L.P_VINF_MATCH_TOL_KMS] - abs(speed_out - speed_in)
+    )
 
 
 @njit(cache=True)
@@ -269,8 +283,9 @@ def _finish(p, q, r2, v_out):
     q[L.Q_TOTAL_DV] = q[L.Q_DSM] + q[L.Q_FLYBY_DV] + q[L.Q_ARRIVAL_DV]
     rows = int(p[L.P_LV_ROWS])
     if rows > 0:
-        m0, margin = injected_mass(q[L.Q_C3], p[L.P_LV_C3:L.P_LV_C3 + rows],
-                                   p[L.P_LV_MASS:L.P_LV_MASS + rows], rows)
+        m0, margin = injected_mass(
+            q[L.Q_C3], p[L.P_LV_C3 : L.P_LV_C3 + rows], p[L.P_LV_MASS : L.P_LV_MASS + rows], rows
+        )
         q[L.Q_M_INJECTED] = m0
         q[L.Q_M_DELIVERED] = m0 * mass_ratio(q[L.Q_TOTAL_DV], p[L.P_ISP_S])
         q[L.Q_MARGIN_LV_C3] = margin

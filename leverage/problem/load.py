@@ -5,6 +5,7 @@ Data path: problem file -> ``load_problem`` (a validated ``Problem``) ->
 the compiled fitness). Every refusal is a ``ProblemError`` whose text is one line
 naming the file, the key and the value.
 """
+
 import calendar
 import datetime as _dt
 import difflib
@@ -36,7 +37,7 @@ class Problem:
     name: str = ""
     body: bodies.Body = None
     extra: dict = field(default_factory=dict)
-    target: Target | None = None          # [target] section, if any
+    target: Target | None = None  # [target] section, if any
     vehicle: LaunchVehicle | None = None  # [vehicle] section, if any
     # Values that look like a slip of units (problem.plausibility): warnings, not refusals.
     warnings: list = field(default_factory=list)
@@ -71,13 +72,18 @@ class CompiledProblem:
 
 # ---------------------------------------------------------------- reading
 
+
 def read_toml(path) -> tuple[str, dict]:
     """(text, table) of a TOML file; ProblemError with one line on failure."""
     source = str(path)
     try:
         if Path(path).is_file() and Path(path).stat().st_size > sense.MAX_PROBLEM_BYTES:
-            raise ProblemError(source, "", NO_VALUE, f"larger than {sense.MAX_PROBLEM_BYTES:,} "
-                               "bytes: not a problem file")
+            raise ProblemError(
+                source,
+                "",
+                NO_VALUE,
+                f"larger than {sense.MAX_PROBLEM_BYTES:,} bytes: not a problem file",
+            )
         with open(path, encoding="utf-8", newline="") as fh:  # line ends as they are
             text = fh.read()
     except FileNotFoundError:
@@ -92,21 +98,32 @@ def read_toml(path) -> tuple[str, dict]:
 def parse_toml(source: str, text: str) -> dict:
     """The table of TOML text; ProblemError naming ``source`` when it is not TOML."""
     if len(text) > sense.MAX_PROBLEM_BYTES:
-        raise ProblemError(source, "", NO_VALUE, f"{len(text):,} characters long; a problem "
-                           f"file may hold at most {sense.MAX_PROBLEM_BYTES:,}")
+        raise ProblemError(
+            source,
+            "",
+            NO_VALUE,
+            f"{len(text):,} characters long; a problem "
+            f"file may hold at most {sense.MAX_PROBLEM_BYTES:,}",
+        )
     lone_cr = re.search("\r(?!\n)", text)
     if lone_cr:
-        line = text[:lone_cr.start()].count("\n") + 1
-        raise ProblemError(source, "", NO_VALUE, f"not valid TOML: a lone carriage return "
-                           f"(line {line}); TOML lines end in LF or CR LF")
+        line = text[: lone_cr.start()].count("\n") + 1
+        raise ProblemError(
+            source,
+            "",
+            NO_VALUE,
+            f"not valid TOML: a lone carriage return (line {line}); TOML lines end in LF or CR LF",
+        )
     try:
         return tomli.loads(text)
     except tomli.TOMLDecodeError as exc:
-        raise ProblemError(source, "", NO_VALUE,
-                           f"not valid TOML: {exc}{_toml_hint(text, exc)}") from None
+        raise ProblemError(
+            source, "", NO_VALUE, f"not valid TOML: {exc}{_toml_hint(text, exc)}"
+        ) from None
     except RecursionError:
-        raise ProblemError(source, "", NO_VALUE,
-                           "not a problem file: arrays or tables nested too deeply") from None
+        raise ProblemError(
+            source, "", NO_VALUE, "not a problem file: arrays or tables nested too deeply"
+        ) from None
 
 
 _DATE_LIKE = re.compile(r"(\d{4})-(\d{2})-(\d{2})")
@@ -123,8 +140,10 @@ def _calendar_slip(text: str) -> str | None:
         return f"an impossible calendar date (the format is right, but there is no month {month})"
     last = calendar.monthrange(year, month)[1]
     if not 1 <= day <= last:
-        return (f"an impossible calendar date (the format is right, but "
-                f"{calendar.month_name[month]} {year} has {last} days)")
+        return (
+            f"an impossible calendar date (the format is right, but "
+            f"{calendar.month_name[month]} {year} has {last} days)"
+        )
     return None
 
 
@@ -137,8 +156,9 @@ def _toml_hint(text: str, exc) -> str:
     token = re.match(r"[^\s,\]}#]*", text[pos:]).group(0)
     msg = getattr(exc, "msg", "")
     if msg == "Invalid value" and re.match(r"[A-Za-z_]", token):
-        return (f"; text values need quotes: write \"{token}\"" if token
-                else "; text values need quotes")
+        return (
+            f'; text values need quotes: write "{token}"' if token else "; text values need quotes"
+        )
     if msg == "Invalid date or datetime":
         slip = _calendar_slip(token)
         if slip:
@@ -177,8 +197,9 @@ def _date(source, key, value):
         slip = _calendar_slip(text)
         if slip:
             raise ProblemError(source, key.path, value, slip) from None
-        raise ProblemError(source, key.path, value,
-                           "expected a date like 2031-01-01 or 2031-01-01T12:00:00") from None
+        raise ProblemError(
+            source, key.path, value, "expected a date like 2031-01-01 or 2031-01-01T12:00:00"
+        ) from None
     if parsed.tzinfo is not None:
         # astropy takes no UTC offset: hand it the same instant as naive UTC.
         text = parsed.astimezone(_dt.timezone.utc).replace(tzinfo=None).isoformat()
@@ -224,13 +245,15 @@ def convert(source: str, key, value):
             if not 0 <= value <= 10:
                 raise ProblemError(source, key.path, value, "must be from 0 to 10")
             return [value, value]
-        if (isinstance(value, list) and len(value) == 2
-                and all(isinstance(v, int) and not isinstance(v, bool) for v in value)):
+        if (
+            isinstance(value, list)
+            and len(value) == 2
+            and all(isinstance(v, int) and not isinstance(v, bool) for v in value)
+        ):
             if not (0 <= value[0] <= value[1] <= 10):
                 raise ProblemError(source, key.path, value, "expected 0 <= min <= max <= 10")
             return list(value)
-        raise ProblemError(source, key.path, value,
-                           'expected a whole number, [min, max] or "any"')
+        raise ProblemError(source, key.path, value, 'expected a whole number, [min, max] or "any"')
     if kind == "numbers":
         if not isinstance(value, list) or len(value) < 2:
             raise ProblemError(source, key.path, value, "expected a list of two or more numbers")
@@ -238,10 +261,14 @@ def convert(source: str, key, value):
             _within(source, key, _number(source, key, v), value)
         return [float(v) for v in value]
     if kind == "names":
-        if (not isinstance(value, list) or not value
-                or not all(isinstance(v, str) and v.strip().lower() in key.choices for v in value)):
-            raise ProblemError(source, key.path, value,
-                               f"expected a list of names from {', '.join(key.choices)}")
+        if (
+            not isinstance(value, list)
+            or not value
+            or not all(isinstance(v, str) and v.strip().lower() in key.choices for v in value)
+        ):
+            raise ProblemError(
+                source, key.path, value, f"expected a list of names from {', '.join(key.choices)}"
+            )
         names = [v.strip().lower() for v in value]
         if len(set(names)) != len(names):
             raise ProblemError(source, key.path, value, "names a quantity twice")
@@ -255,19 +282,27 @@ def validate(source: str, table: dict, schema: dict | None = None) -> dict:
     for section, content in table.items():
         if section not in schema and not isinstance(content, dict):
             home = _sections_holding(schema, section)
-            where = (f"it belongs in {' or '.join(home)}" if home
-                     else f"sections: {', '.join(schema)}")
+            where = (
+                f"it belongs in {' or '.join(home)}" if home else f"sections: {', '.join(schema)}"
+            )
             raise ProblemError(source, section, content, f"key outside any section; {where}")
         if section not in schema:
-            raise ProblemError(source, f"[{section}]", NO_VALUE,
-                               f"unknown section{_did_you_mean(section, schema)}; "
-                               f"known: {', '.join(schema)}")
+            raise ProblemError(
+                source,
+                f"[{section}]",
+                NO_VALUE,
+                f"unknown section{_did_you_mean(section, schema)}; known: {', '.join(schema)}",
+            )
         if not isinstance(content, dict):
             raise ProblemError(source, section, content, "expected a [section] table")
         for name in content:
             if name not in schema[section]:
-                raise ProblemError(source, f"[{section}] {name}", content[name],
-                                   _unknown_key(schema, section, name))
+                raise ProblemError(
+                    source,
+                    f"[{section}] {name}",
+                    content[name],
+                    _unknown_key(schema, section, name),
+                )
     values = {}
     for section, keys in schema.items():
         if section in OPTIONAL_SECTIONS and section not in table:
@@ -292,7 +327,7 @@ def _sections_holding(schema: dict, name: str) -> list[str]:
 
 
 def _did_you_mean(name: str, known) -> str:
-    """"; did you mean X?" for the closest known name (difflib), or ""."""
+    """ "; did you mean X?" for the closest known name (difflib), or ""."""
     close = difflib.get_close_matches(name, list(known), n=1, cutoff=0.6)
     return f"; did you mean [{close[0]}]?" if close else ""
 
@@ -316,12 +351,16 @@ def _unknown_key(schema: dict, section: str, name: str) -> str:
 # The spans each ephemeris source is used within (UTC dates, inclusive): Standish's Table 1
 # elements are fitted for 1800-2050; DE421 is used for 1900-2050 and DE423 for 1800-2200
 # (the spans their JPL releases state; the packaged files reach a little further).
-EPHEMERIS_SPANS_UTC = {"mean_elements": ("1800-01-01", "2050-12-31"),
-                       "de421": ("1900-01-01", "2050-12-31"),
-                       "de423": ("1800-01-01", "2200-01-01")}
-EPHEMERIS_NAMES = {"mean_elements": "Standish mean elements (JPL, Table 1)",
-                   "de421": "JPL DE421 (de421 package, read with jplephem)",
-                   "de423": "JPL DE423 (de423 package, read with jplephem)"}
+EPHEMERIS_SPANS_UTC = {
+    "mean_elements": ("1800-01-01", "2050-12-31"),
+    "de421": ("1900-01-01", "2050-12-31"),
+    "de423": ("1800-01-01", "2200-01-01"),
+}
+EPHEMERIS_NAMES = {
+    "mean_elements": "Standish mean elements (JPL, Table 1)",
+    "de421": "JPL DE421 (de421 package, read with jplephem)",
+    "de423": "JPL DE423 (de423 package, read with jplephem)",
+}
 
 
 def _span_days(values: dict, with_target: bool = True) -> tuple:
@@ -340,27 +379,43 @@ def _check_margins(source: str, values: dict) -> None:
     m, goal, target = values["margins"], values["goal"], values.get("target")
     needs = {
         "dsm_km_s": ("[goal] dsm_budget_km_s", goal["dsm_budget_km_s"] is not None),
-        "outgoing_vinf_km_s": ("[goal] min_outgoing_vinf_km_s",
-                               goal["min_outgoing_vinf_km_s"] > 0.0),
-        "outgoing_inclination_deg": ("[goal] min_outgoing_inclination_deg",
-                                     goal["min_outgoing_inclination_deg"] > 0.0),
-        "outgoing_aphelion_au": ("[goal] min_outgoing_aphelion_au",
-                                 goal["min_outgoing_aphelion_au"] > 0.0),
-        "arrival_vinf_km_s": ("[target] max_arrival_vinf_km_s",
-                              target is not None and target["max_arrival_vinf_km_s"] is not None),
+        "outgoing_vinf_km_s": (
+            "[goal] min_outgoing_vinf_km_s",
+            goal["min_outgoing_vinf_km_s"] > 0.0,
+        ),
+        "outgoing_inclination_deg": (
+            "[goal] min_outgoing_inclination_deg",
+            goal["min_outgoing_inclination_deg"] > 0.0,
+        ),
+        "outgoing_aphelion_au": (
+            "[goal] min_outgoing_aphelion_au",
+            goal["min_outgoing_aphelion_au"] > 0.0,
+        ),
+        "arrival_vinf_km_s": (
+            "[target] max_arrival_vinf_km_s",
+            target is not None and target["max_arrival_vinf_km_s"] is not None,
+        ),
     }
     for name, (limit, is_set) in needs.items():
         if m[name] > 0.0 and not is_set:
-            raise ProblemError(source, f"[margins] {name}", m[name],
-                               f"no {limit} to keep a margin from")
+            raise ProblemError(
+                source, f"[margins] {name}", m[name], f"no {limit} to keep a margin from"
+            )
     launch = values["launch"]
     if launch["min_dla_deg"] + m["dla_deg"] > launch["max_dla_deg"] - m["dla_deg"]:
-        raise ProblemError(source, "[margins] dla_deg", m["dla_deg"],
-                           f"leaves no DLA band inside {launch['min_dla_deg']:g}.."
-                           f"{launch['max_dla_deg']:g} deg")
+        raise ProblemError(
+            source,
+            "[margins] dla_deg",
+            m["dla_deg"],
+            f"leaves no DLA band inside {launch['min_dla_deg']:g}..{launch['max_dla_deg']:g} deg",
+        )
     if m["c3_km2_s2"] >= launch["max_c3_km2_s2"]:
-        raise ProblemError(source, "[margins] c3_km2_s2", m["c3_km2_s2"],
-                           f"is not below [launch] max_c3_km2_s2 ({launch['max_c3_km2_s2']:g})")
+        raise ProblemError(
+            source,
+            "[margins] c3_km2_s2",
+            m["c3_km2_s2"],
+            f"is not below [launch] max_c3_km2_s2 ({launch['max_c3_km2_s2']:g})",
+        )
 
 
 def _resolve_ephemeris(source: str, values: dict) -> None:
@@ -380,33 +435,50 @@ def _resolve_ephemeris(source: str, values: dict) -> None:
 
     if asked == "spk":
         if not eph["spk_file"]:
-            raise ProblemError(source, "[ephemeris] spk_file", NO_VALUE,
-                               "missing: source = \"spk\" needs the path of a .bsp file")
+            raise ProblemError(
+                source,
+                "[ephemeris] spk_file",
+                NO_VALUE,
+                'missing: source = "spk" needs the path of a .bsp file',
+            )
         path = Path(eph["spk_file"]).expanduser()
         if not path.is_absolute() and source not in ("<text>", ""):
             path = Path(source).resolve().parent / path
         if not path.is_file():
-            raise ProblemError(source, "[ephemeris] spk_file", eph["spk_file"],
-                               f"no such file ({path})")
+            raise ProblemError(
+                source, "[ephemeris] spk_file", eph["spk_file"], f"no such file ({path})"
+            )
         eph["spk_file"] = str(path)
         eph["used"] = "spk"
         return
     if eph["spk_file"]:
-        raise ProblemError(source, "[ephemeris] spk_file", eph["spk_file"],
-                           f"only used with source = \"spk\" (source is {asked!r})")
+        raise ProblemError(
+            source,
+            "[ephemeris] spk_file",
+            eph["spk_file"],
+            f'only used with source = "spk" (source is {asked!r})',
+        )
     if asked == "auto":
         choice = next((n for n in ("de421", "de423") if fits(n)), None)
         if choice is None:
-            raise ProblemError(source, "[ephemeris] source", asked,
-                               f"the problem's dates ({dates}, {legs}) leave every bundled DE "
-                               "span (DE421 1900-2050, "
-                               "DE423 1800-2200); name an SPK file or ask for mean_elements")
+            raise ProblemError(
+                source,
+                "[ephemeris] source",
+                asked,
+                f"the problem's dates ({dates}, {legs}) leave every bundled DE "
+                "span (DE421 1900-2050, "
+                "DE423 1800-2200); name an SPK file or ask for mean_elements",
+            )
         eph["used"] = choice
         return
     if not fits(asked):
         span = " .. ".join(EPHEMERIS_SPANS_UTC[asked])
-        raise ProblemError(source, "[ephemeris] source", asked,
-                           f"the problem's dates ({dates}, {legs}) leave its span ({span})")
+        raise ProblemError(
+            source,
+            "[ephemeris] source",
+            asked,
+            f"the problem's dates ({dates}, {legs}) leave its span ({span})",
+        )
     eph["used"] = asked
 
 
@@ -415,14 +487,26 @@ def _check_relations(source: str, values: dict, body: bodies.Body) -> None:
     t_open = times.tdb_seconds(launch["window_open_utc"])
     t_close = times.tdb_seconds(launch["window_close_utc"])
     if t_close < t_open:
-        raise ProblemError(source, "[launch] window_close_utc", launch["window_close_utc"],
-                           f"is before window_open_utc ({launch['window_open_utc']})")
+        raise ProblemError(
+            source,
+            "[launch] window_close_utc",
+            launch["window_close_utc"],
+            f"is before window_open_utc ({launch['window_open_utc']})",
+        )
     if launch["min_c3_km2_s2"] > launch["max_c3_km2_s2"]:
-        raise ProblemError(source, "[launch] min_c3_km2_s2", launch["min_c3_km2_s2"],
-                           f"is above max_c3_km2_s2 ({launch['max_c3_km2_s2']:g})")
+        raise ProblemError(
+            source,
+            "[launch] min_c3_km2_s2",
+            launch["min_c3_km2_s2"],
+            f"is above max_c3_km2_s2 ({launch['max_c3_km2_s2']:g})",
+        )
     if launch["min_dla_deg"] > launch["max_dla_deg"]:
-        raise ProblemError(source, "[launch] min_dla_deg", launch["min_dla_deg"],
-                           f"is above max_dla_deg ({launch['max_dla_deg']:g})")
+        raise ProblemError(
+            source,
+            "[launch] min_dla_deg",
+            launch["min_dla_deg"],
+            f"is above max_dla_deg ({launch['max_dla_deg']:g})",
+        )
     if loop["revolutions"] == "any":
         loop["revolutions"] = [0, loop["max_revolutions"]]
     if flyby["min_altitude_km"] is None:
@@ -430,20 +514,33 @@ def _check_relations(source: str, values: dict, body: bodies.Body) -> None:
     if flyby["max_altitude_km"] is None:
         flyby["max_altitude_km"] = max(flyby["min_altitude_km"], 10.0 * body.equatorial_radius_km)
     if flyby["max_altitude_km"] < flyby["min_altitude_km"]:
-        raise ProblemError(source, "[flyby] max_altitude_km", flyby["max_altitude_km"],
-                           f"is below min_altitude_km ({flyby['min_altitude_km']:g})")
+        raise ProblemError(
+            source,
+            "[flyby] max_altitude_km",
+            flyby["max_altitude_km"],
+            f"is below min_altitude_km ({flyby['min_altitude_km']:g})",
+        )
     if goal["kind"] == "max_gain" and goal["dsm_budget_km_s"] is None:
-        raise ProblemError(source, "[goal] dsm_budget_km_s", NO_VALUE,
-                           "missing: a max_gain goal needs a DSM budget (km/s)")
+        raise ProblemError(
+            source,
+            "[goal] dsm_budget_km_s",
+            NO_VALUE,
+            "missing: a max_gain goal needs a DSM budget (km/s)",
+        )
     if goal["kind"] == "min_dsm":
         for name in ("gain_weight", "inclination_weight_per_deg"):
             if goal[name]:
-                raise ProblemError(source, f"[goal] {name}", goal[name],
-                                   "not used by kind = \"min_dsm\" (state requirements as "
-                                   "min_outgoing_* keys, or use max_gain or weighted)")
+                raise ProblemError(
+                    source,
+                    f"[goal] {name}",
+                    goal[name],
+                    'not used by kind = "min_dsm" (state requirements as '
+                    "min_outgoing_* keys, or use max_gain or weighted)",
+                )
     if goal["kind"] != "weighted" and goal["dsm_weight"] is not None:
-        raise ProblemError(source, "[goal] dsm_weight", goal["dsm_weight"],
-                           "only used with kind = \"weighted\"")
+        raise ProblemError(
+            source, "[goal] dsm_weight", goal["dsm_weight"], 'only used with kind = "weighted"'
+        )
 
 
 def load_problem(path) -> Problem:
@@ -469,8 +566,7 @@ def _problem(source: str, text: str, table: dict, stem: str) -> Problem:
         slip = next((s for s in slips if s.key == exc.key), None)
         if slip is None:
             raise
-        raise ProblemError(exc.source, exc.key, exc.value,
-                           f"{exc.reason} ({slip.hint})") from None
+        raise ProblemError(exc.source, exc.key, exc.value, f"{exc.reason} ({slip.hint})") from None
     problem.warnings = slips
     return problem
 
@@ -478,10 +574,14 @@ def _problem(source: str, text: str, table: dict, stem: str) -> Problem:
 def _checked_problem(source: str, text: str, values: dict, stem: str) -> Problem:
     body = bodies.planet(values["body"]["name"])
     _check_relations(source, values, body)
-    target = (target_from_values(source, values["target"])
-              if values.get("target") is not None else None)
-    vehicle = (vehicle_from_values(source, values["vehicle"])
-               if values.get("vehicle") is not None else None)
+    target = (
+        target_from_values(source, values["target"]) if values.get("target") is not None else None
+    )
+    vehicle = (
+        vehicle_from_values(source, values["vehicle"])
+        if values.get("vehicle") is not None
+        else None
+    )
     _check_trade_relations(source, values, target, vehicle)
     sense.check_text(source, values)
     _resolve_ephemeris(source, values)
@@ -490,8 +590,15 @@ def _checked_problem(source: str, text: str, values: dict, stem: str) -> Problem
     span = EPHEMERIS_SPANS_UTC.get(values["ephemeris"]["used"], ("1800-01-01", "2200-01-01"))
     sense.check_physics(source, values, body, span)
     name = values["study"]["name"] or stem
-    return Problem(source=source, text=text, values=values, name=name, body=body,
-                   target=target, vehicle=vehicle)
+    return Problem(
+        source=source,
+        text=text,
+        values=values,
+        name=name,
+        body=body,
+        target=target,
+        vehicle=vehicle,
+    )
 
 
 def _check_trade_relations(source: str, values: dict, target, vehicle) -> None:
@@ -507,25 +614,42 @@ def _check_trade_relations(source: str, values: dict, target, vehicle) -> None:
     if kind == "max_delivered_mass" and vehicle is None:
         raise ProblemError(source, "[goal] kind", kind, "needs a [vehicle] section")
     if goal["arrival_vinf_weight"] > 0.0 and target is None:
-        raise ProblemError(source, "[goal] arrival_vinf_weight", goal["arrival_vinf_weight"],
-                           "needs a [target] section")
+        raise ProblemError(
+            source,
+            "[goal] arrival_vinf_weight",
+            goal["arrival_vinf_weight"],
+            "needs a [target] section",
+        )
     if front:
         objectives = goal["objectives"]
         if not 2 <= len(objectives) <= L.MAX_OBJ:
-            raise ProblemError(source, "[goal] objectives", objectives,
-                               f"a front trades 2 to {L.MAX_OBJ} quantities")
+            raise ProblemError(
+                source,
+                "[goal] objectives",
+                objectives,
+                f"a front trades 2 to {L.MAX_OBJ} quantities",
+            )
         if "total_dv" in objectives and goal["dsm_budget_km_s"] is None:
-            raise ProblemError(source, "[goal] dsm_budget_km_s", NO_VALUE,
-                               "missing: a front with total_dv needs a DSM budget (km/s), the "
-                               "hypervolume reference")
-        if "arrival_vinf" in objectives and (target is None
-                                             or values["target"]["max_arrival_vinf_km_s"] is None):
-            raise ProblemError(source, "[goal] objectives", objectives,
-                               "arrival_vinf needs [target] max_arrival_vinf_km_s (the "
-                               "hypervolume reference)")
+            raise ProblemError(
+                source,
+                "[goal] dsm_budget_km_s",
+                NO_VALUE,
+                "missing: a front with total_dv needs a DSM budget (km/s), the "
+                "hypervolume reference",
+            )
+        if "arrival_vinf" in objectives and (
+            target is None or values["target"]["max_arrival_vinf_km_s"] is None
+        ):
+            raise ProblemError(
+                source,
+                "[goal] objectives",
+                objectives,
+                "arrival_vinf needs [target] max_arrival_vinf_km_s (the hypervolume reference)",
+            )
         if "delivered_mass" in objectives and vehicle is None:
-            raise ProblemError(source, "[goal] objectives", objectives,
-                               "delivered_mass needs a [vehicle] section")
+            raise ProblemError(
+                source, "[goal] objectives", objectives, "delivered_mass needs a [vehicle] section"
+            )
     if target is not None:
         arrival_window_s(source, values["target"])
 
@@ -533,14 +657,17 @@ def _check_trade_relations(source: str, values: dict, target, vehicle) -> None:
 def check_algorithm(source: str, key: str, algorithm: str, front: bool, population: int) -> None:
     """Refuse a single-objective algorithm for a front goal and the other way round."""
     if front and algorithm not in FRONT_ALGORITHMS:
-        raise ProblemError(source, key, algorithm,
-                           f"a front goal needs one of {', '.join(FRONT_ALGORITHMS)}")
+        raise ProblemError(
+            source, key, algorithm, f"a front goal needs one of {', '.join(FRONT_ALGORITHMS)}"
+        )
     if not front and algorithm in FRONT_ALGORITHMS:
-        raise ProblemError(source, key, algorithm,
-                           "is multi-objective; use it with [goal] kind = \"front\"")
+        raise ProblemError(
+            source, key, algorithm, 'is multi-objective; use it with [goal] kind = "front"'
+        )
     if algorithm == "nsga2" and (population % 4 or population < 8):
-        raise ProblemError(source, "[search] population", population,
-                           "nsga2 needs a multiple of 4, at least 8")
+        raise ProblemError(
+            source, "[search] population", population, "nsga2 needs a multiple of 4, at least 8"
+        )
 
 
 # ---------------------------------------------------------------- compiling
@@ -572,36 +699,45 @@ def compile_problem(problem: Problem) -> CompiledProblem:
     p[L.P_REQ_APHELION_KM] = goal["min_outgoing_aphelion_au"] * bodies.AU_KM
     kind = goal["kind"]
     p[L.P_W_DSM] = {"min_dsm": 1.0, "max_gain": 0.0}.get(
-        kind, goal["dsm_weight"] if goal["dsm_weight"] is not None else 1.0)  # 0 is a weight
-    p[L.P_W_GAIN] = 0.0 if kind == "min_dsm" else (goal["gain_weight"] if goal["gain_weight"]
-                                                   is not None else 1.0)
+        kind, goal["dsm_weight"] if goal["dsm_weight"] is not None else 1.0
+    )  # 0 is a weight
+    p[L.P_W_GAIN] = (
+        0.0
+        if kind == "min_dsm"
+        else (goal["gain_weight"] if goal["gain_weight"] is not None else 1.0)
+    )
     p[L.P_W_INC] = 0.0 if kind == "min_dsm" else goal["inclination_weight_per_deg"]
     p[L.P_PENALTY_WEIGHT] = goal["penalty_weight"]
     p[L.P_N_OBJ] = 1
-    p[L.P_BODY_EPH:L.P_BODY_EPH + len(body.ephemeris_array())] = body.ephemeris_array()
+    p[L.P_BODY_EPH : L.P_BODY_EPH + len(body.ephemeris_array())] = body.ephemeris_array()
     p[L.P_ARRIVAL_VINF_MAX_KMS] = math.inf
-    lower = np.array([
-        times.tdb_days(launch["window_open_utc"]),
-        math.sqrt(launch["min_c3_km2_s2"]),
-        launch["in_plane_angle_deg"][0],
-        launch["out_of_plane_angle_deg"][0],
-        loop["duration_days"][0],
-        loop["dsm_fraction"][0],
-        flyby["min_altitude_km"],
-        flyby["bplane_angle_deg"][0],
-    ])
-    upper = np.array([
-        times.tdb_days(launch["window_close_utc"]),
-        math.sqrt(launch["max_c3_km2_s2"]),
-        launch["in_plane_angle_deg"][1],
-        launch["out_of_plane_angle_deg"][1],
-        loop["duration_days"][1],
-        loop["dsm_fraction"][1],
-        flyby["max_altitude_km"],
-        flyby["bplane_angle_deg"][1],
-    ])
-    compiled = CompiledProblem(params=p, lower=lower, upper=upper, names=list(X_NAMES),
-                               units=list(X_UNITS), n_obj=1)
+    lower = np.array(
+        [
+            times.tdb_days(launch["window_open_utc"]),
+            math.sqrt(launch["min_c3_km2_s2"]),
+            launch["in_plane_angle_deg"][0],
+            launch["out_of_plane_angle_deg"][0],
+            loop["duration_days"][0],
+            loop["dsm_fraction"][0],
+            flyby["min_altitude_km"],
+            flyby["bplane_angle_deg"][0],
+        ]
+    )
+    upper = np.array(
+        [
+            times.tdb_days(launch["window_close_utc"]),
+            math.sqrt(launch["max_c3_km2_s2"]),
+            launch["in_plane_angle_deg"][1],
+            launch["out_of_plane_angle_deg"][1],
+            loop["duration_days"][1],
+            loop["dsm_fraction"][1],
+            flyby["max_altitude_km"],
+            flyby["bplane_angle_deg"][1],
+        ]
+    )
+    compiled = CompiledProblem(
+        params=p, lower=lower, upper=upper, names=list(X_NAMES), units=list(X_UNITS), n_obj=1
+    )
     _compile_trade(problem, compiled)
     compiled.limits = stated_limits(problem)
     _tighten_by_margins(problem, compiled.params)
@@ -624,28 +760,36 @@ def stated_limits(problem: Problem) -> dict:
     if goal["dsm_budget_km_s"] is not None:
         limits["dsm_budget"] = (goal["dsm_budget_km_s"], "km/s", m["dsm_km_s"])
     for name, key, unit, margin in (
-            ("min_outgoing_vinf", "min_outgoing_vinf_km_s", "km/s", "outgoing_vinf_km_s"),
-            ("min_outgoing_inclination", "min_outgoing_inclination_deg", "deg",
-             "outgoing_inclination_deg"),
-            ("min_outgoing_aphelion", "min_outgoing_aphelion_au", "au",
-             "outgoing_aphelion_au")):
+        ("min_outgoing_vinf", "min_outgoing_vinf_km_s", "km/s", "outgoing_vinf_km_s"),
+        (
+            "min_outgoing_inclination",
+            "min_outgoing_inclination_deg",
+            "deg",
+            "outgoing_inclination_deg",
+        ),
+        ("min_outgoing_aphelion", "min_outgoing_aphelion_au", "au", "outgoing_aphelion_au"),
+    ):
         if goal[key] > 0.0:
             limits[name] = (goal[key], unit, m[margin])
     t = v.get("target")
     if t is not None:
         if t["max_arrival_vinf_km_s"] is not None:
-            limits["max_arrival_vinf"] = (t["max_arrival_vinf_km_s"], "km/s",
-                                          m["arrival_vinf_km_s"])
+            limits["max_arrival_vinf"] = (
+                t["max_arrival_vinf_km_s"],
+                "km/s",
+                m["arrival_vinf_km_s"],
+            )
         if t["flyby"] != "powered":
             limits["vinf_match"] = (t["vinf_match_tolerance_km_s"], "km/s", 0.0)
         if t["arrival_open_utc"] is not None or t["arrival_close_utc"] is not None:
-            limits["arrival_window"] = ([t["arrival_open_utc"], t["arrival_close_utc"]],
-                                        "UTC", 0.0)
+            limits["arrival_window"] = ([t["arrival_open_utc"], t["arrival_close_utc"]], "UTC", 0.0)
     if problem.vehicle is not None:
         c3 = v["vehicle"]["c3_km2_s2"]
         limits["vehicle_c3_table"] = ([min(c3), max(c3)], "km^2/s^2", 0.0)
-    return {name: {"limit": limit, "unit": unit, "required_margin": float(margin)}
-            for name, (limit, unit, margin) in limits.items()}
+    return {
+        name: {"limit": limit, "unit": unit, "required_margin": float(margin)}
+        for name, (limit, unit, margin) in limits.items()
+    }
 
 
 def _tighten_by_margins(problem: Problem, p: np.ndarray) -> None:
@@ -680,20 +824,31 @@ def _use_ephemeris(problem: Problem, compiled: CompiledProblem) -> None:
     target = problem.target.name.lower() if problem.target is not None else None
     try:
         compiled.params = with_de_ephemeris(
-            compiled.params, source, start, end, body=problem.body.name.lower(),
-            target=target if target in bodies.PLANETS else None)
+            compiled.params,
+            source,
+            start,
+            end,
+            body=problem.body.name.lower(),
+            target=target if target in bodies.PLANETS else None,
+        )
     except ProblemError as exc:
         key = "[ephemeris] spk_file" if used == "spk" else "[ephemeris] source"
-        raise ProblemError(problem.source, key, eph["spk_file"] if used == "spk" else used,
-                           exc.reason) from None
-    compiled.ephemeris = (EPHEMERIS_NAMES.get(used) or
-                          f"JPL SPK file {eph['spk_file']} (read with jplephem)")
+        raise ProblemError(
+            problem.source, key, eph["spk_file"] if used == "spk" else used, exc.reason
+        ) from None
+    compiled.ephemeris = (
+        EPHEMERIS_NAMES.get(used) or f"JPL SPK file {eph['spk_file']} (read with jplephem)"
+    )
     compiled.ephemeris_file = eph["spk_file"] if used == "spk" else None
 
 
-OBJECTIVE_CODES = {"total_dv": L.OBJ_TOTAL_DV, "gain": L.OBJ_GAIN,
-                   "inclination": L.OBJ_INCLINATION, "arrival_vinf": L.OBJ_ARRIVAL_VINF,
-                   "delivered_mass": L.OBJ_MASS}
+OBJECTIVE_CODES = {
+    "total_dv": L.OBJ_TOTAL_DV,
+    "gain": L.OBJ_GAIN,
+    "inclination": L.OBJ_INCLINATION,
+    "arrival_vinf": L.OBJ_ARRIVAL_VINF,
+    "delivered_mass": L.OBJ_MASS,
+}
 
 
 def _compile_trade(problem: Problem, compiled: CompiledProblem) -> None:
@@ -704,7 +859,7 @@ def _compile_trade(problem: Problem, compiled: CompiledProblem) -> None:
     if target is not None:
         t = problem.values["target"]
         p[L.P_HAS_TARGET] = 1.0
-        p[L.P_TARGET_EPH:L.P_TARGET_EPH + target.ephemeris.size] = target.ephemeris
+        p[L.P_TARGET_EPH : L.P_TARGET_EPH + target.ephemeris.size] = target.ephemeris
         p[L.P_TARGET_MU] = target.gm_km3_s2
         limit = t["max_arrival_vinf_km_s"]
         p[L.P_ARRIVAL_VINF_MAX_KMS] = math.inf if limit is None else limit
@@ -714,10 +869,10 @@ def _compile_trade(problem: Problem, compiled: CompiledProblem) -> None:
         p[L.P_ARRIVAL_OPEN_S], p[L.P_ARRIVAL_CLOSE_S] = arrival_window_s(problem.source, t)
         # The leg fixes the flyby geometry: x[6] becomes the leg duration, x[7] goes.
         n = L.N_X_TARGET
-        compiled.lower = np.append(compiled.lower[:n - 1], t["leg_duration_days"][0])
-        compiled.upper = np.append(compiled.upper[:n - 1], t["leg_duration_days"][1])
+        compiled.lower = np.append(compiled.lower[: n - 1], t["leg_duration_days"][0])
+        compiled.upper = np.append(compiled.upper[: n - 1], t["leg_duration_days"][1])
         compiled.names = list(L.X_NAMES_TARGET)
-        compiled.units = compiled.units[:n - 1] + ["days"]
+        compiled.units = compiled.units[: n - 1] + ["days"]
     p[L.P_W_ARRIVAL] = goal["arrival_vinf_weight"]
     if problem.vehicle is not None:
         problem.vehicle.pack(p)
@@ -727,5 +882,5 @@ def _compile_trade(problem: Problem, compiled: CompiledProblem) -> None:
     if goal["kind"] == "front":
         codes = [OBJECTIVE_CODES[name] for name in goal["objectives"]]
         p[L.P_N_OBJ] = len(codes)
-        p[L.P_OBJ_CODES:L.P_OBJ_CODES + len(codes)] = codes
+        p[L.P_OBJ_CODES : L.P_OBJ_CODES + len(codes)] = codes
         compiled.n_obj = len(codes)

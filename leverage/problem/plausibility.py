@@ -18,13 +18,14 @@ on the ``Problem`` (``Problem.warnings``) and only ``leverage.cli`` prints them.
 refusal of the same key (``load``) carries the slip's hint too, since a slip often
 breaks a limit of sense first (a loop of 2 days cannot leave the sphere of influence).
 """
+
 import math
 from dataclasses import dataclass
 
 from leverage.problem.schema import KEYS
 
 MAX_SPEED_KM_S = 50.0
-MAX_C3_KM2_S2 = MAX_SPEED_KM_S ** 2
+MAX_C3_KM2_S2 = MAX_SPEED_KM_S**2
 MAX_YEARS_AS_DAYS = 10.0
 DAYS_PER_YEAR = 365.25
 RADIAN_TOLERANCE = 0.005
@@ -78,16 +79,22 @@ def _slip(key, value) -> str | None:
         return f"over {MAX_SPEED_KM_S:g} km/s; typed in m/s? {big:g} m/s is {big / 1000:g} km/s"
     if name.endswith("_km2_s2") and max(numbers) > MAX_C3_KM2_S2:
         big = max(numbers)
-        return (f"over {MAX_C3_KM2_S2:g} km^2/s^2; typed in m^2/s^2? {big:g} m^2/s^2 is "
-                f"{big / 1e6:g} km^2/s^2")
+        return (
+            f"over {MAX_C3_KM2_S2:g} km^2/s^2; typed in m^2/s^2? {big:g} m^2/s^2 is "
+            f"{big / 1e6:g} km^2/s^2"
+        )
     if (key.section, name) in _DAY_KEYS and max(numbers) <= MAX_YEARS_AS_DAYS:
         days = ", ".join(f"{v * DAYS_PER_YEAR:.0f}" for v in numbers)
-        return (f"at most {MAX_YEARS_AS_DAYS:g} days; typed in years? {_shown(value)} years "
-                f"is [{days}] days")
+        return (
+            f"at most {MAX_YEARS_AS_DAYS:g} days; typed in years? {_shown(value)} years "
+            f"is [{days}] days"
+        )
     if name.endswith("_deg") and any(_looks_like_radians(v) for v in numbers):
         rad = next(v for v in numbers if _looks_like_radians(v))
-        return (f"{rad:g} looks like radians, the key is in degrees; {rad:g} rad is "
-                f"{math.degrees(rad):.4g} deg")
+        return (
+            f"{rad:g} looks like radians, the key is in degrees; {rad:g} rad is "
+            f"{math.degrees(rad):.4g} deg"
+        )
     return None
 
 

@@ -19,6 +19,7 @@ within that turn is tried. Launch declination limits, the timing of the return
 "not ruled out": the search can still need more DSM than the estimate, and a goal
 within a few tenths of a km/s of the edge deserves a run rather than a verdict.
 """
+
 import math
 from dataclasses import dataclass, field
 
@@ -27,21 +28,21 @@ import numpy as np
 from leverage.astro import bodies
 from leverage.core.flyby import tisserand, turn_angle
 
-DV_MAX_KMS = 3.0      # largest DSM the screen looks at
+DV_MAX_KMS = 3.0  # largest DSM the screen looks at
 DV_STEP_KMS = 0.02
-_N_VINF = 5           # launch v-infinity samples between the C3 limits
-_N_PUMP = 25          # launch directions in the orbit plane, 0..180 deg from the body's velocity
-_N_CONE = 6           # outgoing directions: angles from the incoming one, 0..largest turn
-_N_CLOCK = 24         # ... and clock angles around it
+_N_VINF = 5  # launch v-infinity samples between the C3 limits
+_N_PUMP = 25  # launch directions in the orbit plane, 0..180 deg from the body's velocity
+_N_CONE = 6  # outgoing directions: angles from the incoming one, 0..largest turn
+_N_CLOCK = 24  # ... and clock angles around it
 
 
 @dataclass
 class Requirement:
     name: str
     unit: str
-    required: float      # in ``unit``
+    required: float  # in ``unit``
     best: float = -math.inf  # best reached within the DSM budget, in ``unit``
-    at_least: bool = True    # True: value must be >= required; False: <=
+    at_least: bool = True  # True: value must be >= required; False: <=
 
     def shortfall(self) -> float:
         """How far the best estimate falls short, in ``unit`` (0 if it does not)."""
@@ -51,36 +52,46 @@ class Requirement:
 
 @dataclass
 class ScreenResult:
-    verdict: str                   # "reachable", "unreachable" or "no requirement"
-    budget_kms: float | None       # DSM budget screened against (None: none given)
-    min_dsm_kms: float | None      # smallest DSM meeting every requirement (None: not found)
-    best_gain_kms: float           # largest v-infinity gain within the budget
+    verdict: str  # "reachable", "unreachable" or "no requirement"
+    budget_kms: float | None  # DSM budget screened against (None: none given)
+    min_dsm_kms: float | None  # smallest DSM meeting every requirement (None: not found)
+    best_gain_kms: float  # largest v-infinity gain within the budget
     requirements: list = field(default_factory=list)
     notes: list = field(default_factory=list)
 
     def lines(self) -> list[str]:
         """Human-readable lines for ``leverage check``."""
-        out = ["feasibility screen (circular coplanar body orbit, Tisserand's parameter, one "
-               "tangential DSM at an apsis, turn limit at the minimum periapsis; see "
-               "leverage/screen.py)"]
-        budget = (f"DSM budget {self.budget_kms:.3f} km/s" if self.budget_kms is not None
-                  else f"no DSM budget (looked up to {DV_MAX_KMS:.1f} km/s)")
+        out = [
+            "feasibility screen (circular coplanar body orbit, Tisserand's parameter, one "
+            "tangential DSM at an apsis, turn limit at the minimum periapsis; see "
+            "leverage/screen.py)"
+        ]
+        budget = (
+            f"DSM budget {self.budget_kms:.3f} km/s"
+            if self.budget_kms is not None
+            else f"no DSM budget (looked up to {DV_MAX_KMS:.1f} km/s)"
+        )
         out.append(f"  verdict: {self.verdict.upper()}  ({budget})")
         for r in self.requirements:
             sign = ">=" if r.at_least else "<="
             best = "none" if not math.isfinite(r.best) else f"{r.best:.3f}"
             gap = r.shortfall()
             state = "ok" if gap == 0.0 else f"short by {gap:.3f} {r.unit}"
-            out.append(f"  {r.name:<28} required {sign} {r.required:.3f} {r.unit}; "
-                       f"best estimate {best} {r.unit}: {state}")
+            out.append(
+                f"  {r.name:<28} required {sign} {r.required:.3f} {r.unit}; "
+                f"best estimate {best} {r.unit}: {state}"
+            )
         if self.min_dsm_kms is not None:
-            out.append(f"  smallest DSM meeting every requirement: about {self.min_dsm_kms:.2f} km/s"
-                       " (an estimate; phasing may need more)")
+            out.append(
+                f"  smallest DSM meeting every requirement: about {self.min_dsm_kms:.2f} km/s"
+                " (an estimate; phasing may need more)"
+            )
         elif self.requirements:
             out.append(f"  no DSM up to {DV_MAX_KMS:.1f} km/s meets every requirement")
         if self.budget_kms is not None:
-            out.append("  largest v-infinity gain within the budget: about "
-                       f"{self.best_gain_kms:.2f} km/s")
+            out.append(
+                f"  largest v-infinity gain within the budget: about {self.best_gain_kms:.2f} km/s"
+            )
         out += [f"  note: {n}" for n in self.notes]
         return out
 
@@ -93,8 +104,12 @@ class _Model:
         self.a_b = body.mean_elements[0] * bodies.AU_KM
         self.v_b = math.sqrt(bodies.GM_SUN_KM3_S2 / self.a_b)
         launch, flyby = problem.values["launch"], problem.values["flyby"]
-        self.v_launch = np.linspace(math.sqrt(launch["min_c3_km2_s2"]),
-                                    math.sqrt(launch["max_c3_km2_s2"]), _N_VINF) / self.v_b
+        self.v_launch = (
+            np.linspace(
+                math.sqrt(launch["min_c3_km2_s2"]), math.sqrt(launch["max_c3_km2_s2"]), _N_VINF
+            )
+            / self.v_b
+        )
         self.pump = np.linspace(0.0, math.pi, _N_PUMP)
         self.mu_b = body.gm_km3_s2
         self.rp_min = body.equatorial_radius_km + flyby["min_altitude_km"]
@@ -105,7 +120,7 @@ class _Model:
         either apsis; only loops that still cross the body's orbit."""
         v0, pump = np.meshgrid(self.v_launch, self.pump, indexing="ij")
         v0, pump = v0.ravel(), pump.ravel()
-        h = 1.0 + v0 * np.cos(pump)                    # angular momentum (r = 1)
+        h = 1.0 + v0 * np.cos(pump)  # angular momentum (r = 1)
         energy = 0.5 * ((1.0 + v0 * np.cos(pump)) ** 2 + (v0 * np.sin(pump)) ** 2) - 1.0
         bound = (energy < 0.0) & (h > 0.0)
         a = np.where(bound, -0.5 / np.where(bound, energy, -1.0), np.nan)
@@ -114,7 +129,7 @@ class _Model:
         outs = []
         d = dv_kms / self.v_b
         for r_apsis in (p / (1.0 + e), p / np.maximum(1.0 - e, 1e-12)):
-            for sign in ((1.0, -1.0) if d > 0.0 else (1.0,)):
+            for sign in (1.0, -1.0) if d > 0.0 else (1.0,):
                 v_new = h / r_apsis + sign * d
                 h_new = r_apsis * v_new
                 en_new = 0.5 * v_new * v_new - 1.0 / r_apsis
@@ -123,8 +138,8 @@ class _Model:
                 e_new = np.sqrt(np.clip(1.0 - h_new * h_new / a_new, 0.0, None))
                 # coplanar (i = 0), lengths in units of a_b
                 w2 = 3.0 - tisserand(1.0, a_new, e_new, np.zeros_like(a_new))
-                vt = h_new - 1.0                   # along-track part of v_inf at r = 1
-                vr2 = w2 - vt * vt                 # >= 0 exactly when the orbit crosses r = 1
+                vt = h_new - 1.0  # along-track part of v_inf at r = 1
+                vr2 = w2 - vt * vt  # >= 0 exactly when the orbit crosses r = 1
                 ok &= (w2 > 0.0) & (vr2 >= -1e-12)
                 w = np.sqrt(np.clip(w2, 0.0, None))
                 outs.append((w[ok], vt[ok], np.sqrt(np.clip(vr2[ok], 0.0, None)), v0[ok]))
@@ -146,11 +161,12 @@ class _Model:
             e2 = np.stack([-u[:, 1], u[:, 0], np.zeros_like(w)], axis=1)
             e3 = np.zeros_like(u)
             e3[:, 2] = 1.0
-            d = (np.cos(beta)[..., None] * u[:, None, None, :]
-                 + np.sin(beta)[..., None] * (np.cos(clock)[..., None] * e2[:, None, None, :]
-                                              + np.sin(clock)[..., None] * e3[:, None, None, :]))
+            d = np.cos(beta)[..., None] * u[:, None, None, :] + np.sin(beta)[..., None] * (
+                np.cos(clock)[..., None] * e2[:, None, None, :]
+                + np.sin(clock)[..., None] * e3[:, None, None, :]
+            )
             vel = w[:, None, None, None] * d
-            vel[..., 0] += 1.0                      # add the body's velocity (along-track)
+            vel[..., 0] += 1.0  # add the body's velocity (along-track)
             v_t, v_r, v_n = vel[..., 0], vel[..., 1], vel[..., 2]
             h = np.sqrt(v_t * v_t + v_n * v_n)
             energy = 0.5 * (v_t * v_t + v_r * v_r + v_n * v_n) - 1.0
@@ -173,17 +189,27 @@ def _requirements(problem, model: _Model) -> list:
     if goal["min_outgoing_aphelion_au"] > 0.0:
         reqs.append(Requirement("outgoing aphelion", "au", goal["min_outgoing_aphelion_au"]))
     if goal["min_outgoing_inclination_deg"] > 0.0:
-        reqs.append(Requirement("outgoing inclination", "deg",
-                                goal["min_outgoing_inclination_deg"]))
+        reqs.append(
+            Requirement("outgoing inclination", "deg", goal["min_outgoing_inclination_deg"])
+        )
     target = problem.target
     if target is not None:
         if target.perihelion_km > model.a_b:
-            reqs.append(Requirement(f"aphelion to reach {target.name}", "au",
-                                    target.perihelion_km / bodies.AU_KM))
+            reqs.append(
+                Requirement(
+                    f"aphelion to reach {target.name}", "au", target.perihelion_km / bodies.AU_KM
+                )
+            )
         elif target.aphelion_km < model.a_b:
-            reqs.append(Requirement(f"perihelion to reach {target.name}", "au",
-                                    target.aphelion_km / bodies.AU_KM, best=math.inf,
-                                    at_least=False))
+            reqs.append(
+                Requirement(
+                    f"perihelion to reach {target.name}",
+                    "au",
+                    target.aphelion_km / bodies.AU_KM,
+                    best=math.inf,
+                    at_least=False,
+                )
+            )
     return reqs
 
 
@@ -248,5 +274,11 @@ def screen(problem) -> ScreenResult:
         verdict = "reachable"
     else:
         verdict = "unreachable"
-    return ScreenResult(verdict=verdict, budget_kms=budget, min_dsm_kms=min_dsm,
-                        best_gain_kms=best_gain, requirements=reqs, notes=notes)
+    return ScreenResult(
+        verdict=verdict,
+        budget_kms=budget,
+        min_dsm_kms=min_dsm,
+        best_gain_kms=best_gain,
+        requirements=reqs,
+        notes=notes,
+    )

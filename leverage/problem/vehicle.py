@@ -7,6 +7,7 @@ burns totalling dv follows Tsiolkovsky's rocket equation
 m_final = m0 exp(-dv / (g0 Isp)), g0 = 9.80665 m/s^2 (standard gravity, 3rd CGPM
 1901). The compiled model uses the same kernels (``core.mass``).
 """
+
 import math
 from dataclasses import dataclass
 
@@ -33,8 +34,9 @@ class LaunchVehicle:
     def injected_mass(self, c3_km2_s2: float) -> float:
         """Injected mass (kg) at C3 (km^2/s^2); nan outside the table."""
         c3 = np.asarray(self.c3_km2_s2, dtype=float)
-        mass, margin = injected_mass(float(c3_km2_s2), c3,
-                                     np.asarray(self.injected_mass_kg, dtype=float), c3.size)
+        mass, margin = injected_mass(
+            float(c3_km2_s2), c3, np.asarray(self.injected_mass_kg, dtype=float), c3.size
+        )
         return mass if margin >= 0.0 else math.nan
 
     def delivered_mass(self, c3_km2_s2: float, dv_km_s: float) -> float:
@@ -45,8 +47,8 @@ class LaunchVehicle:
         """Write the table and Isp into a parameter array (slots in core.layout)."""
         n = len(self.c3_km2_s2)
         p[L.P_LV_ROWS] = n
-        p[L.P_LV_C3:L.P_LV_C3 + n] = self.c3_km2_s2
-        p[L.P_LV_MASS:L.P_LV_MASS + n] = self.injected_mass_kg
+        p[L.P_LV_C3 : L.P_LV_C3 + n] = self.c3_km2_s2
+        p[L.P_LV_MASS : L.P_LV_MASS + n] = self.injected_mass_kg
         p[L.P_ISP_S] = self.specific_impulse_s
 
 
@@ -60,14 +62,21 @@ def vehicle_from_values(source: str, section: dict) -> LaunchVehicle:
     c3 = section["c3_km2_s2"]
     mass = section["injected_mass_kg"]
     if len(c3) > L.MAX_LV_ROWS:
-        raise ProblemError(source, "[vehicle] c3_km2_s2", c3,
-                           f"at most {L.MAX_LV_ROWS} rows")
+        raise ProblemError(source, "[vehicle] c3_km2_s2", c3, f"at most {L.MAX_LV_ROWS} rows")
     if any(b <= a for a, b in zip(c3, c3[1:])):
         raise ProblemError(source, "[vehicle] c3_km2_s2", c3, "must increase from row to row")
     if len(mass) != len(c3):
-        raise ProblemError(source, "[vehicle] injected_mass_kg", mass,
-                           f"needs one mass per C3 row ({len(c3)} rows)")
+        raise ProblemError(
+            source,
+            "[vehicle] injected_mass_kg",
+            mass,
+            f"needs one mass per C3 row ({len(c3)} rows)",
+        )
     if max(mass) <= 0.0:
         raise ProblemError(source, "[vehicle] injected_mass_kg", mass, "no positive mass")
-    return LaunchVehicle(name=section["name"], c3_km2_s2=tuple(c3), injected_mass_kg=tuple(mass),
-                         specific_impulse_s=section["specific_impulse_s"])
+    return LaunchVehicle(
+        name=section["name"],
+        c3_km2_s2=tuple(c3),
+        injected_mass_kg=tuple(mass),
+        specific_impulse_s=section["specific_impulse_s"],
+    )

@@ -14,6 +14,7 @@ errors do not pile up along an arc. Frame: heliocentric ecliptic J2000; units km
 km/s; epochs TDB seconds past J2000. Shared by the pictures, the verification and
 the export.
 """
+
 import math
 from dataclasses import dataclass
 
@@ -26,7 +27,7 @@ from leverage.core.kepler import elements_from_state, propagate
 from leverage.record.design import as_float
 
 FRAME = "heliocentric ecliptic J2000"
-MAX_OUTGOING_DAYS = 4.0 * 365.25   # longest outgoing span drawn/exported
+MAX_OUTGOING_DAYS = 4.0 * 365.25  # longest outgoing span drawn/exported
 HYPERBOLIC_OUTGOING_DAYS = 365.25  # span of an unbound outgoing orbit
 DEFAULT_SAMPLES = 400
 # Largest sizes a design's event states can have: epoch (s past J2000, about +-300
@@ -71,8 +72,11 @@ def event_states(record) -> dict:
     """
     out = {}
     for ev in record["events"]:
-        item = {"t": as_float(ev["epoch_tdb_s"]), "r": _vec(ev["position_km"]),
-                "utc": ev.get("utc", "")}
+        item = {
+            "t": as_float(ev["epoch_tdb_s"]),
+            "r": _vec(ev["position_km"]),
+            "utc": ev.get("utc", ""),
+        }
         for key, value in ev.items():
             if "velocity" in key and isinstance(value, list):
                 # velocity_in_km_s -> v_in; body_velocity_km_s -> v_body
@@ -95,27 +99,37 @@ def check_record(record, source: str) -> None:
         solved = record.get("margins", {}).get("lambert_solved", {}).get("margin", 0.0)
         states = event_states(record)
     except (KeyError, TypeError, ValueError, AttributeError) as exc:
-        raise ProblemError(source, "", NO_VALUE,
-                           f"not a leverage result record ({type(exc).__name__}: {exc})") \
-            from None
+        raise ProblemError(
+            source, "", NO_VALUE, f"not a leverage result record ({type(exc).__name__}: {exc})"
+        ) from None
     for name, item in states.items():  # numbers a design can have, before any sampling
         for field, value in item.items():
             if field == "utc":
                 continue
             limit = STATE_LIMITS["t" if field == "t" else field[0]]
             arr = np.atleast_1d(np.asarray(value, dtype=float))
-            if (field != "t" and arr.shape != (3,)) or not np.all(np.isfinite(arr)) \
-                    or np.max(np.abs(arr)) > limit:
-                raise ProblemError(source, f"events.{name}.{field}", value.tolist()
-                                   if hasattr(value, "tolist") else value,
-                                   f"not a state of a design (finite, 3 components, each at "
-                                   f"most {limit:g} in size)")
+            if (
+                (field != "t" and arr.shape != (3,))
+                or not np.all(np.isfinite(arr))
+                or np.max(np.abs(arr)) > limit
+            ):
+                raise ProblemError(
+                    source,
+                    f"events.{name}.{field}",
+                    value.tolist() if hasattr(value, "tolist") else value,
+                    f"not a state of a design (finite, 3 components, each at "
+                    f"most {limit:g} in size)",
+                )
     missing = [n for n in ("launch", "dsm", "flyby") if n not in names]
     if missing:
         raise ProblemError(source, "events", NO_VALUE, f"no {missing[0]} event")
     if solved is not None and float(solved) < 0:
-        raise ProblemError(source, "margins.lambert_solved", solved,
-                           "the best point has an unsolved leg: nothing to draw, check or export")
+        raise ProblemError(
+            source,
+            "margins.lambert_solved",
+            solved,
+            "the best point has an unsolved leg: nothing to draw, check or export",
+        )
 
 
 def sample_times(t0: float, t1: float, n: int | None = None, step_s: float | None = None):
@@ -150,13 +164,18 @@ def outgoing_span_s(r, v, mu=bodies.GM_SUN_KM3_S2) -> float:
     """Span drawn after the flyby: one period of the outgoing orbit, capped."""
     a, ecc, *_ = elements_from_state(mu, np.asarray(r, float), np.asarray(v, float))
     if ecc < 1.0 and a > 0:
-        period = 2.0 * math.pi * math.sqrt(a ** 3 / mu)
+        period = 2.0 * math.pi * math.sqrt(a**3 / mu)
         return min(period, MAX_OUTGOING_DAYS * DAY_S)
     return HYPERBOLIC_OUTGOING_DAYS * DAY_S
 
 
-def design_arcs(record, n: int | None = None, step_s: float | None = None,
-                outgoing_s: float | None = None, mu=bodies.GM_SUN_KM3_S2) -> list:
+def design_arcs(
+    record,
+    n: int | None = None,
+    step_s: float | None = None,
+    outgoing_s: float | None = None,
+    mu=bodies.GM_SUN_KM3_S2,
+) -> list:
     """The conic arcs of a record, in time order (see module docstring).
 
     n: samples per arc (default ``DEFAULT_SAMPLES``) unless ``step_s`` is given;
@@ -165,16 +184,37 @@ def design_arcs(record, n: int | None = None, step_s: float | None = None,
     """
     ev = event_states(record)
     launch, dsm, flyby = ev["launch"], ev["dsm"], ev["flyby"]
-    legs = [("launch_dsm", "launch to DSM", launch["t"], launch["r"], launch["v"], dsm["t"]),
-            ("dsm_flyby", "DSM to flyby", dsm["t"], dsm["r"], dsm["v_after"], flyby["t"])]
+    legs = [
+        ("launch_dsm", "launch to DSM", launch["t"], launch["r"], launch["v"], dsm["t"]),
+        ("dsm_flyby", "DSM to flyby", dsm["t"], dsm["r"], dsm["v_after"], flyby["t"]),
+    ]
     if "arrival" in ev:
-        legs.append(("flyby_arrival", "flyby to arrival", flyby["t"], flyby["r"],
-                     flyby["v_out"], ev["arrival"]["t"]))
+        legs.append(
+            (
+                "flyby_arrival",
+                "flyby to arrival",
+                flyby["t"],
+                flyby["r"],
+                flyby["v_out"],
+                ev["arrival"]["t"],
+            )
+        )
     else:
-        span = outgoing_s if outgoing_s is not None else outgoing_span_s(flyby["r"],
-                                                                        flyby["v_out"], mu)
-        legs.append(("outgoing", "outgoing orbit", flyby["t"], flyby["r"], flyby["v_out"],
-                     flyby["t"] + span))
+        span = (
+            outgoing_s
+            if outgoing_s is not None
+            else outgoing_span_s(flyby["r"], flyby["v_out"], mu)
+        )
+        legs.append(
+            (
+                "outgoing",
+                "outgoing orbit",
+                flyby["t"],
+                flyby["r"],
+                flyby["v_out"],
+                flyby["t"] + span,
+            )
+        )
     arcs = []
     for key, label, t0, r0, v0, t1 in legs:
         times = sample_times(t0, t1, n, step_s)
@@ -183,8 +223,9 @@ def design_arcs(record, n: int | None = None, step_s: float | None = None,
     return arcs
 
 
-def body_orbit(name: str, t_start: float, n: int = DEFAULT_SAMPLES,
-               span_s: float | None = None) -> Arc:
+def body_orbit(
+    name: str, t_start: float, n: int = DEFAULT_SAMPLES, span_s: float | None = None
+) -> Arc:
     """One period (or ``span_s``) of a planet's mean-element orbit from t_start.
 
     States from Standish's mean elements (``leverage.core.ephemeris``), the same
@@ -194,7 +235,7 @@ def body_orbit(name: str, t_start: float, n: int = DEFAULT_SAMPLES,
     eph = body.ephemeris_array()
     if span_s is None:
         a_km = body.mean_elements[0] * bodies.AU_KM
-        span_s = 2.0 * math.pi * math.sqrt(a_km ** 3 / bodies.GM_SUN_KM3_S2)
+        span_s = 2.0 * math.pi * math.sqrt(a_km**3 / bodies.GM_SUN_KM3_S2)
     times = np.linspace(t_start, t_start + span_s, n)
     rs = np.empty((n, 3))
     vs = np.empty((n, 3))
@@ -217,7 +258,7 @@ def target_orbit(record, n: int = DEFAULT_SAMPLES, mu=bodies.GM_SUN_KM3_S2) -> A
     a, ecc, *_ = elements_from_state(mu, ev["r"], ev["v_target"])
     if not (ecc < 1.0 and a > 0):
         return None
-    period = 2.0 * math.pi * math.sqrt(a ** 3 / mu)
+    period = 2.0 * math.pi * math.sqrt(a**3 / mu)
     times = np.linspace(ev["t"], ev["t"] + period, n)
     rs, vs = conic_states(mu, ev["t"], ev["r"], ev["v_target"], times)
     name = record["problem"].get("target") or "target"

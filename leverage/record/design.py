@@ -4,6 +4,7 @@
 single source for the JSON file, the summary and the pictures); ``leverage.fileio``
 writes them.
 """
+
 import math
 import platform
 
@@ -30,15 +31,25 @@ DERIVED = [
     ("vinf_gain", L.Q_GAIN, "km/s", 1.0, "return v-infinity minus launch v-infinity"),
     ("leverage_ratio", L.Q_LEVERAGE, "km/s per km/s", 1.0, "v-infinity gain per km/s of DSM"),
     ("turn_angle", L.Q_TURN, "deg", math.degrees(1.0), "flyby turn angle"),
-    ("max_turn_angle", L.Q_TURN_MAX, "deg", math.degrees(1.0),
-     "largest turn at the minimum flyby altitude"),
+    (
+        "max_turn_angle",
+        L.Q_TURN_MAX,
+        "deg",
+        math.degrees(1.0),
+        "largest turn at the minimum flyby altitude",
+    ),
     ("flyby_altitude", L.Q_ALT, "km", 1.0, "flyby periapsis altitude"),
     ("flyby_periapsis_radius", L.Q_RP, "km", 1.0, "flyby periapsis radius"),
     ("bplane_angle", L.Q_BPLANE, "deg", math.degrees(1.0), "B-plane angle (T toward R)"),
     ("outgoing_sma", L.Q_OUT_A, "au", 1.0 / AU_KM, "outgoing heliocentric semi-major axis"),
     ("outgoing_eccentricity", L.Q_OUT_E, "", 1.0, "outgoing heliocentric eccentricity"),
-    ("outgoing_inclination", L.Q_OUT_INC, "deg", math.degrees(1.0),
-     "outgoing inclination to the ecliptic J2000"),
+    (
+        "outgoing_inclination",
+        L.Q_OUT_INC,
+        "deg",
+        math.degrees(1.0),
+        "outgoing inclination to the ecliptic J2000",
+    ),
     ("outgoing_perihelion", L.Q_OUT_PERI, "au", 1.0 / AU_KM, "outgoing perihelion distance"),
     ("outgoing_aphelion", L.Q_OUT_APO, "au", 1.0 / AU_KM, "outgoing aphelion distance"),
     ("lambert_revolutions", L.Q_REVS, "", 1.0, "revolutions of the DSM-to-flyby arc"),
@@ -47,10 +58,20 @@ DERIVED = [
     ("total_dv", L.Q_TOTAL_DV, "km/s", 1.0, "all burns after launch"),
     ("arrival_vinf", L.Q_VINF_ARRIVAL, "km/s", 1.0, "v-infinity at the target (n/a: no target)"),
     ("arrival_burn", L.Q_ARRIVAL_DV, "km/s", 1.0, "arrival burn counted for a rendezvous"),
-    ("injected_mass", L.Q_M_INJECTED, "kg", 1.0,
-     "launch-vehicle injected mass at the launch C3 (n/a: no vehicle)"),
-    ("delivered_mass", L.Q_M_DELIVERED, "kg", 1.0,
-     "injected mass left after every burn (rocket equation)"),
+    (
+        "injected_mass",
+        L.Q_M_INJECTED,
+        "kg",
+        1.0,
+        "launch-vehicle injected mass at the launch C3 (n/a: no vehicle)",
+    ),
+    (
+        "delivered_mass",
+        L.Q_M_DELIVERED,
+        "kg",
+        1.0,
+        "injected mass left after every burn (rocket equation)",
+    ),
     ("penalty", L.Q_PENALTY, "objective units", 1.0, "total limit penalty"),
 ]
 
@@ -62,16 +83,36 @@ MARGINS = [
     ("dla_band", L.Q_MARGIN_DLA_RAD, "deg", math.degrees(1.0), "DLA inside the allowed band"),
     ("dsm_budget", L.Q_MARGIN_DSM_KMS, "km/s", 1.0, "DSM below the budget"),
     ("min_outgoing_vinf", L.Q_MARGIN_VINF_OUT_KMS, "km/s", 1.0, "v-infinity above the requirement"),
-    ("min_outgoing_inclination", L.Q_MARGIN_INC_RAD, "deg", math.degrees(1.0),
-     "inclination above the requirement"),
-    ("min_outgoing_aphelion", L.Q_MARGIN_APHELION_KM, "au", 1.0 / AU_KM,
-     "aphelion above the requirement"),
+    (
+        "min_outgoing_inclination",
+        L.Q_MARGIN_INC_RAD,
+        "deg",
+        math.degrees(1.0),
+        "inclination above the requirement",
+    ),
+    (
+        "min_outgoing_aphelion",
+        L.Q_MARGIN_APHELION_KM,
+        "au",
+        1.0 / AU_KM,
+        "aphelion above the requirement",
+    ),
     ("lambert_solved", L.Q_MARGIN_LAMBERT, "", 1.0, "0 when every arc was solved"),
     ("vinf_match", L.Q_MARGIN_VINF_MATCH_KMS, "km/s", 1.0, "unpowered flyby |v-inf| match"),
-    ("max_arrival_vinf", L.Q_MARGIN_ARRIVAL_VINF_KMS, "km/s", 1.0,
-     "arrival v-infinity below the limit"),
-    ("vehicle_c3_table", L.Q_MARGIN_LV_C3, "km^2/s^2", 1.0,
-     "launch C3 inside the launch-vehicle table"),
+    (
+        "max_arrival_vinf",
+        L.Q_MARGIN_ARRIVAL_VINF_KMS,
+        "km/s",
+        1.0,
+        "arrival v-infinity below the limit",
+    ),
+    (
+        "vehicle_c3_table",
+        L.Q_MARGIN_LV_C3,
+        "km^2/s^2",
+        1.0,
+        "launch C3 inside the launch-vehicle table",
+    ),
     ("arrival_window", L.Q_MARGIN_ARRIVAL_DAYS, "days", 1.0, "arrival inside the arrival window"),
 ]
 
@@ -80,7 +121,7 @@ def feasible(q) -> bool:
     """The feasibility rule, the one place it is written: every leg solved and every limit
     margin >= 0 (from the margins, not the penalty: a zero penalty_weight must not hide a
     violation). ``q`` is the kernel's derived-quantity array."""
-    margins = q[L.Q_MARGIN_ALT_KM:L.Q_MARGIN_ALT_KM + L.N_MARGINS]
+    margins = q[L.Q_MARGIN_ALT_KM : L.Q_MARGIN_ALT_KM + L.N_MARGINS]
     return bool(q[L.Q_OK] == 1.0 and np.all(margins >= 0.0))
 
 
@@ -110,8 +151,10 @@ def design_record(compiled, udp, x) -> dict:
     x = np.asarray(x, dtype=float)
     q = udp.details(x)
     f = udp.fitness(x)
-    derived = {name: {"value": clean(q[slot] * factor), "unit": unit, "meaning": meaning}
-               for name, slot, unit, factor, meaning in DERIVED}
+    derived = {
+        name: {"value": clean(q[slot] * factor), "unit": unit, "meaning": meaning}
+        for name, slot, unit, factor, meaning in DERIVED
+    }
     margins = {}
     limits = getattr(compiled, "limits", {})
     for name, slot, unit, factor, meaning in MARGINS:
@@ -122,38 +165,66 @@ def design_record(compiled, udp, x) -> dict:
         required = stated["required_margin"]
         # The kernel measures against the limit tightened by the design margin; people
         # read the margin from the stated limit, next to the margin asked for.
-        margins[name] = {"margin": clean(value * factor + required), "unit": unit,
-                         "meaning": meaning, "limit": stated["limit"],
-                         "required_margin": required, "holds": bool(value >= 0)}
+        margins[name] = {
+            "margin": clean(value * factor + required),
+            "unit": unit,
+            "meaning": meaning,
+            "limit": stated["limit"],
+            "required_margin": required,
+            "holds": bool(value >= 0),
+        }
     events = [
-        {"event": "launch", "epoch_tdb_s": clean(q[L.Q_T_LAUNCH]),
-         "utc": times.utc_iso(q[L.Q_T_LAUNCH]),
-         "position_km": _vec(q, L.Q_R_LAUNCH), "velocity_km_s": _vec(q, L.Q_V_LAUNCH)},
-        {"event": "dsm", "epoch_tdb_s": clean(q[L.Q_T_DSM]), "utc": times.utc_iso(q[L.Q_T_DSM]),
-         "position_km": _vec(q, L.Q_R_DSM), "velocity_before_km_s": _vec(q, L.Q_V_DSM_BEFORE),
-         "velocity_after_km_s": _vec(q, L.Q_V_DSM_AFTER)},
-        {"event": "flyby", "epoch_tdb_s": clean(q[L.Q_T_FLYBY]),
-         "utc": times.utc_iso(q[L.Q_T_FLYBY]), "position_km": _vec(q, L.Q_R_FLYBY),
-         "velocity_in_km_s": _vec(q, L.Q_V_FLYBY_IN),
-         "velocity_out_km_s": _vec(q, L.Q_V_FLYBY_OUT),
-         "body_velocity_km_s": _vec(q, L.Q_V_BODY_FLYBY)},
+        {
+            "event": "launch",
+            "epoch_tdb_s": clean(q[L.Q_T_LAUNCH]),
+            "utc": times.utc_iso(q[L.Q_T_LAUNCH]),
+            "position_km": _vec(q, L.Q_R_LAUNCH),
+            "velocity_km_s": _vec(q, L.Q_V_LAUNCH),
+        },
+        {
+            "event": "dsm",
+            "epoch_tdb_s": clean(q[L.Q_T_DSM]),
+            "utc": times.utc_iso(q[L.Q_T_DSM]),
+            "position_km": _vec(q, L.Q_R_DSM),
+            "velocity_before_km_s": _vec(q, L.Q_V_DSM_BEFORE),
+            "velocity_after_km_s": _vec(q, L.Q_V_DSM_AFTER),
+        },
+        {
+            "event": "flyby",
+            "epoch_tdb_s": clean(q[L.Q_T_FLYBY]),
+            "utc": times.utc_iso(q[L.Q_T_FLYBY]),
+            "position_km": _vec(q, L.Q_R_FLYBY),
+            "velocity_in_km_s": _vec(q, L.Q_V_FLYBY_IN),
+            "velocity_out_km_s": _vec(q, L.Q_V_FLYBY_OUT),
+            "body_velocity_km_s": _vec(q, L.Q_V_BODY_FLYBY),
+        },
     ]
     if udp.params[L.P_HAS_TARGET] == 1.0 and q[L.Q_OK] == 1.0:
-        events.append({"event": "arrival", "epoch_tdb_s": clean(q[L.Q_T_ARRIVAL]),
-                       "utc": times.utc_iso(q[L.Q_T_ARRIVAL]),
-                       "position_km": _vec(q, L.Q_R_ARRIVAL),
-                       "velocity_km_s": _vec(q, L.Q_V_ARRIVAL),
-                       "target_velocity_km_s": _vec(q, L.Q_V_TARGET_ARRIVAL)})
+        events.append(
+            {
+                "event": "arrival",
+                "epoch_tdb_s": clean(q[L.Q_T_ARRIVAL]),
+                "utc": times.utc_iso(q[L.Q_T_ARRIVAL]),
+                "position_km": _vec(q, L.Q_R_ARRIVAL),
+                "velocity_km_s": _vec(q, L.Q_V_ARRIVAL),
+                "target_velocity_km_s": _vec(q, L.Q_V_TARGET_ARRIVAL),
+            }
+        )
     return {
-        "decision_vector": {"names": list(compiled.names), "units": list(compiled.units),
-                            "values": [float(v) for v in x],
-                            "lower": [float(v) for v in compiled.lower],
-                            "upper": [float(v) for v in compiled.upper]},
+        "decision_vector": {
+            "names": list(compiled.names),
+            "units": list(compiled.units),
+            "values": [float(v) for v in x],
+            "lower": [float(v) for v in compiled.lower],
+            "upper": [float(v) for v in compiled.upper],
+        },
         "objective": [clean(v) for v in f],  # as minimised (the CSV columns' values)
         "objective_shown": objective.as_records(objective.shown_objectives(udp.params)),
         "feasible": feasible(q),
-        "ephemeris": {"search": getattr(compiled, "ephemeris", ""),
-                      "spk_file": getattr(compiled, "ephemeris_file", None)},
+        "ephemeris": {
+            "search": getattr(compiled, "ephemeris", ""),
+            "spk_file": getattr(compiled, "ephemeris_file", None),
+        },
         "verification": {"holds": None, "status": "not run yet"},
         "derived": derived,
         "margins": margins,
@@ -168,10 +239,17 @@ def package_versions() -> dict:
     import poliastro
     import pygmo
     import scipy
-    return {"leverage": __version__, "python": platform.python_version(),
-            "numpy": np.__version__, "scipy": scipy.__version__, "numba": numba.__version__,
-            "poliastro": poliastro.__version__, "pygmo": pygmo.__version__,
-            "astropy": astropy.__version__}
+
+    return {
+        "leverage": __version__,
+        "python": platform.python_version(),
+        "numpy": np.__version__,
+        "scipy": scipy.__version__,
+        "numba": numba.__version__,
+        "poliastro": poliastro.__version__,
+        "pygmo": pygmo.__version__,
+        "astropy": astropy.__version__,
+    }
 
 
 def base_record(problem, settings, status: str) -> dict:
@@ -179,15 +257,24 @@ def base_record(problem, settings, status: str) -> dict:
     return {
         "caution": CAUTION,
         "status": status,
-        "problem": {"name": problem.name, "file": problem.source, "sha256": problem.sha256,
-                    "description": problem.values["study"]["description"],
-                    "body": problem.body.name, "goal": problem.values["goal"]["kind"],
-                    "target": problem.target.name if problem.target is not None else None,
-                    "vehicle": (problem.vehicle.name or "unnamed")
-                    if problem.vehicle is not None else None},
-        "search": {"algorithm": settings.algorithm, "islands": settings.islands,
-                   "population": settings.population, "generations": settings.generations,
-                   "generations_per_migration": settings.generations_per_migration,
-                   "seed": settings.seed, "polish": settings.polish},
+        "problem": {
+            "name": problem.name,
+            "file": problem.source,
+            "sha256": problem.sha256,
+            "description": problem.values["study"]["description"],
+            "body": problem.body.name,
+            "goal": problem.values["goal"]["kind"],
+            "target": problem.target.name if problem.target is not None else None,
+            "vehicle": (problem.vehicle.name or "unnamed") if problem.vehicle is not None else None,
+        },
+        "search": {
+            "algorithm": settings.algorithm,
+            "islands": settings.islands,
+            "population": settings.population,
+            "generations": settings.generations,
+            "generations_per_migration": settings.generations_per_migration,
+            "seed": settings.seed,
+            "polish": settings.polish,
+        },
         "package_versions": package_versions(),
     }

@@ -9,6 +9,7 @@ The minimised value itself is only written to the CSV columns named for it
 (``convergence.csv`` best_objective, ``front.csv`` objective_*), and the record holds
 both (``objective`` and ``objective_shown``).
 """
+
 from dataclasses import asdict, dataclass
 
 from leverage.core import layout as L
@@ -16,10 +17,10 @@ from leverage.core import layout as L
 
 @dataclass(frozen=True)
 class Shown:
-    name: str          # what the objective is, for people
+    name: str  # what the objective is, for people
     unit: str
-    factor: float      # natural value = factor * minimised value
-    maximised: bool    # True: higher is better in the natural value
+    factor: float  # natural value = factor * minimised value
+    maximised: bool  # True: higher is better in the natural value
 
     def value(self, minimised: float) -> float:
         return self.factor * minimised
@@ -72,8 +73,10 @@ def from_record(record: dict) -> list[Shown]:
     saved = record.get("objective_shown")
     if isinstance(saved, list) and saved:
         try:
-            return [Shown(str(s["name"]), str(s["unit"]), float(s["factor"]),
-                          bool(s["maximised"])) for s in saved]
+            return [
+                Shown(str(s["name"]), str(s["unit"]), float(s["factor"]), bool(s["maximised"]))
+                for s in saved
+            ]
         except (KeyError, TypeError, ValueError):
             pass
     return [Shown("objective", "", 1.0, False) for _ in record.get("objective") or [0.0]]

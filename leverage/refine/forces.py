@@ -19,6 +19,7 @@ the flyby periapsis), relativity (Sun's 1PN term: ~1e-8 relative), asteroids, Pl
 and outgassing or thrusting. Launch is an impulse at the periapsis of the departure
 hyperbola; no ascent.
 """
+
 import numpy as np
 
 DAY_S = 86400.0
@@ -26,18 +27,47 @@ J2000_JD = 2451545.0
 
 # Order of the bodies in every array of this package. "earth" and "moon" are their
 # centres; the outer planets are system barycentres (DE421 has no planet centres).
-BODY_NAMES = ("sun", "mercury", "venus", "earth", "moon", "mars", "jupiter", "saturn",
-              "uranus", "neptune")
-_DE_NAME = {"sun": "sun", "mercury": "mercury", "venus": "venus", "mars": "mars",
-            "jupiter": "jupiter", "saturn": "saturn", "uranus": "uranus",
-            "neptune": "neptune"}
-_GM_KEY = {"sun": "GMS", "mercury": "GM1", "venus": "GM2", "mars": "GM4", "jupiter": "GM5",
-           "saturn": "GM6", "uranus": "GM7", "neptune": "GM8"}
+BODY_NAMES = (
+    "sun",
+    "mercury",
+    "venus",
+    "earth",
+    "moon",
+    "mars",
+    "jupiter",
+    "saturn",
+    "uranus",
+    "neptune",
+)
+_DE_NAME = {
+    "sun": "sun",
+    "mercury": "mercury",
+    "venus": "venus",
+    "mars": "mars",
+    "jupiter": "jupiter",
+    "saturn": "saturn",
+    "uranus": "uranus",
+    "neptune": "neptune",
+}
+_GM_KEY = {
+    "sun": "GMS",
+    "mercury": "GM1",
+    "venus": "GM2",
+    "mars": "GM4",
+    "jupiter": "GM5",
+    "saturn": "GM6",
+    "uranus": "GM7",
+    "neptune": "GM8",
+}
 
-FORCE_MODEL = ("point masses at JPL DE421 states (jplephem): Sun, Mercury, Venus, Earth, "
-               "Moon, Mars..Neptune system barycentres; GMs from the DE421 header")
-LEFT_OUT = ("finite burns (impulses instead), solar radiation pressure, non-spherical "
-            "gravity (J2 and higher), relativity, asteroids and Pluto")
+FORCE_MODEL = (
+    "point masses at JPL DE421 states (jplephem): Sun, Mercury, Venus, Earth, "
+    "Moon, Mars..Neptune system barycentres; GMs from the DE421 header"
+)
+LEFT_OUT = (
+    "finite burns (impulses instead), solar radiation pressure, non-spherical "
+    "gravity (J2 and higher), relativity, asteroids and Pluto"
+)
 
 
 class De421:
@@ -56,7 +86,7 @@ class De421:
         self.eph = Ephemeris(de421)
         e = self.eph
         self.au_km = float(e.AU)
-        to_km3_s2 = self.au_km ** 3 / DAY_S ** 2
+        to_km3_s2 = self.au_km**3 / DAY_S**2
         emrat = float(e.EMRAT)
         self.emrat = emrat
         gm = {k: float(getattr(e, key)) * to_km3_s2 for k, key in _GM_KEY.items()}

@@ -32,6 +32,7 @@ to 10x faster on the near-Earth segments that dominate the finite-difference
 Jacobians, and exact at the close passes, where the bodies have not drifted yet;
 DOP853 on DE421 positions is the independent cross-check (``crosscheck``).
 """
+
 import numpy as np
 from scipy.integrate import solve_ivp
 from scipy.interpolate import CubicHermiteSpline
@@ -74,8 +75,15 @@ class Ias15:
         r, v = self.de.states(t0)
         n = len(self.de.gm)
         for k in range(n):
-            sim.add(m=float(self.de.gm[k]), x=r[k, 0, 0], y=r[k, 1, 0], z=r[k, 2, 0],
-                    vx=v[k, 0, 0], vy=v[k, 1, 0], vz=v[k, 2, 0])
+            sim.add(
+                m=float(self.de.gm[k]),
+                x=r[k, 0, 0],
+                y=r[k, 1, 0],
+                z=r[k, 2, 0],
+                vx=v[k, 0, 0],
+                vy=v[k, 1, 0],
+                vz=v[k, 2, 0],
+            )
         sim.N_active = n
         sim.testparticle_type = 0
         if with_craft is not None:
@@ -104,8 +112,7 @@ class Ias15:
             vs.append(craft.vxyz)
             bs.append([sim.particles[k].xyz for k in range(n)])
         sim.integrate(t1 - t0, exact_finish_time=1)
-        return (np.array(craft.xyz), np.array(craft.vxyz), np.array(rs), np.array(vs),
-                np.array(bs))
+        return (np.array(craft.xyz), np.array(craft.vxyz), np.array(rs), np.array(vs), np.array(bs))
 
     def planet_drift(self, t0, t1) -> dict:
         """Distance (km) of each integrated body from DE421 at t1, started at t0.
@@ -117,8 +124,10 @@ class Ias15:
         sim.dt = 3600.0 if t1 >= t0 else -3600.0
         sim.integrate(t1 - t0, exact_finish_time=1)
         r, _ = self.de.states(t1)
-        return {name: float(np.linalg.norm(np.array(sim.particles[k].xyz) - r[k, :, 0]))
-                for k, name in enumerate(BODY_NAMES[:len(self.de.gm)])}
+        return {
+            name: float(np.linalg.norm(np.array(sim.particles[k].xyz) - r[k, :, 0]))
+            for k, name in enumerate(BODY_NAMES[: len(self.de.gm)])
+        }
 
 
 class Dop853:
@@ -132,8 +141,9 @@ class Dop853:
         grid = np.arange(lo, hi + TABLE_STEP_S, TABLE_STEP_S)
         r, v = de.states(grid)  # (10, 3, n)
         n = len(BODY_NAMES)
-        self._spline = CubicHermiteSpline(grid, r.reshape(3 * n, -1).T,
-                                          v.reshape(3 * n, -1).T, axis=0)
+        self._spline = CubicHermiteSpline(
+            grid, r.reshape(3 * n, -1).T, v.reshape(3 * n, -1).T, axis=0
+        )
         self.t_range = (lo, hi)
 
     def body_positions(self, t):
@@ -150,8 +160,15 @@ class Dop853:
 
         y0 = np.concatenate([np.asarray(r0, float), np.asarray(v0, float)])
         atol = np.array([DOP853_ATOL_KM] * 3 + [DOP853_ATOL_KM_S] * 3)
-        sol = solve_ivp(rhs, (t0, t1), y0, method="DOP853", rtol=DOP853_RTOL, atol=atol,
-                        t_eval=None if samples is None else np.asarray(samples))
+        sol = solve_ivp(
+            rhs,
+            (t0, t1),
+            y0,
+            method="DOP853",
+            rtol=DOP853_RTOL,
+            atol=atol,
+            t_eval=None if samples is None else np.asarray(samples),
+        )
         if not sol.success:
             raise RuntimeError(f"DOP853 integration failed: {sol.message}")
         r1, v1 = sol.y[:3, -1].copy(), sol.y[3:, -1].copy()

@@ -7,6 +7,7 @@ none). A limit the problem does not set is None. Units in the field names. Each 
 is moved inward by the problem's ``[margins]`` design margin: the refined design must
 keep the same margins as the patched-conic one.
 """
+
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -52,9 +53,12 @@ def read_limits(result_dir) -> Limits:
     v = problem.values
     goal = v["goal"]["kind"]
     if goal not in SUPPORTED_GOALS:
-        raise ProblemError(str(path), "[goal] kind", goal,
-                           f"refine optimises only {', '.join(SUPPORTED_GOALS)} "
-                           "(every burn after launch)")
+        raise ProblemError(
+            str(path),
+            "[goal] kind",
+            goal,
+            f"refine optimises only {', '.join(SUPPORTED_GOALS)} (every burn after launch)",
+        )
     t = v.get("target")
     m = v["margins"]
 
@@ -65,17 +69,20 @@ def read_limits(result_dir) -> Limits:
     budget = v["goal"]["dsm_budget_km_s"]
     arrival = t["max_arrival_vinf_km_s"] if t is not None else None
     return Limits(
-        source=str(path), body=v["body"]["name"], goal=goal,
+        source=str(path),
+        body=v["body"]["name"],
+        goal=goal,
         max_c3_km2_s2=float(v["launch"]["max_c3_km2_s2"]) - m["c3_km2_s2"],
         min_dla_deg=float(v["launch"]["min_dla_deg"]) + m["dla_deg"],
         max_dla_deg=float(v["launch"]["max_dla_deg"]) - m["dla_deg"],
         min_flyby_altitude_km=float(v["flyby"]["min_altitude_km"]) + m["flyby_altitude_km"],
-        min_outgoing_vinf_km_s=raised(v["goal"]["min_outgoing_vinf_km_s"],
-                                      m["outgoing_vinf_km_s"]),
-        min_outgoing_inclination_deg=raised(v["goal"]["min_outgoing_inclination_deg"],
-                                            m["outgoing_inclination_deg"]),
-        min_outgoing_aphelion_au=raised(v["goal"]["min_outgoing_aphelion_au"],
-                                        m["outgoing_aphelion_au"]),
+        min_outgoing_vinf_km_s=raised(v["goal"]["min_outgoing_vinf_km_s"], m["outgoing_vinf_km_s"]),
+        min_outgoing_inclination_deg=raised(
+            v["goal"]["min_outgoing_inclination_deg"], m["outgoing_inclination_deg"]
+        ),
+        min_outgoing_aphelion_au=raised(
+            v["goal"]["min_outgoing_aphelion_au"], m["outgoing_aphelion_au"]
+        ),
         dsm_budget_km_s=None if budget is None else budget - m["dsm_km_s"],
         has_target=t is not None,
         target_is_planet=bool(t is not None and problem.target.is_planet),
@@ -91,5 +98,9 @@ def check_folder(result_dir) -> None:
     """ProblemError unless ``result_dir`` has best.json and problem.toml."""
     for name in ("best.json", "problem.toml"):
         if not (Path(result_dir) / name).is_file():
-            raise ProblemError(str(Path(result_dir) / name), "", NO_VALUE,
-                               "no such file (give a leverage result folder)")
+            raise ProblemError(
+                str(Path(result_dir) / name),
+                "",
+                NO_VALUE,
+                "no such file (give a leverage result folder)",
+            )

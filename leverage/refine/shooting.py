@@ -36,6 +36,7 @@ then SLSQP minimising every burn after launch (DSM, plus a powered-flyby burn an
 rendezvous burn when the problem counts them) subject to all of the above. Gradients
 by forward differences (``FD_STEPS``), one sweep for all functions, cached.
 """
+
 import math
 import time
 from dataclasses import dataclass, field
@@ -54,17 +55,17 @@ from leverage.verify.nbody_check import departure_periapsis, soi_radius_km
 
 DAY_S = 86400.0
 AU_KM = bodies.AU_KM
-R_UNIT_KM = 1.0e4                 # scale of the periapsis position unknowns
-SOI_MULTIPLE = 3.0                # outgoing quantities measured this many SOI radii out
-POS_TOL_KM = 1.0                  # join position error counted as converged
-VEL_TOL_KM_S = 1.0e-6             # join velocity error counted as converged (1 mm/s)
-PERIAPSIS_TOL_KM_S = 1.0e-6       # radial velocity at the periapsis counted as zero
-LIMIT_TOL = 1.0e-6                # a limit margin above -LIMIT_TOL (its unit) holds
-OBJECTIVE_TOL_KM_S = 1.0e-5      # stop when a trust-region step saves less (1 cm/s)
+R_UNIT_KM = 1.0e4  # scale of the periapsis position unknowns
+SOI_MULTIPLE = 3.0  # outgoing quantities measured this many SOI radii out
+POS_TOL_KM = 1.0  # join position error counted as converged
+VEL_TOL_KM_S = 1.0e-6  # join velocity error counted as converged (1 mm/s)
+PERIAPSIS_TOL_KM_S = 1.0e-6  # radial velocity at the periapsis counted as zero
+LIMIT_TOL = 1.0e-6  # a limit margin above -LIMIT_TOL (its unit) holds
+OBJECTIVE_TOL_KM_S = 1.0e-5  # stop when a trust-region step saves less (1 cm/s)
 # Trust-region box per unit of the unknowns, times delta (1 at the start).
 TR_SCALE = {"day": 1.0, "km/s": 0.02, "1e4 km": 0.05}
-_POS_RES_KM = 1.0e3               # residual units: 1000 km ...
-_VEL_RES_KM_S = 1.0e-3            # ... and 1 m/s
+_POS_RES_KM = 1.0e3  # residual units: 1000 km ...
+_VEL_RES_KM_S = 1.0e-3  # ... and 1 m/s
 
 
 def _to_icrf(vec_ecl):
@@ -85,19 +86,18 @@ class Evaluation:
 
     z: np.ndarray
     epochs: dict
-    eq: np.ndarray                # scaled equality residuals
-    ineq: dict                    # limit name -> (margin, unit, scale)
-    objective: float              # km/s
-    quantities: dict              # name -> (value, unit)
-    errors: dict                  # join errors: name -> (value, unit)
+    eq: np.ndarray  # scaled equality residuals
+    ineq: dict  # limit name -> (margin, unit, scale)
+    objective: float  # km/s
+    quantities: dict  # name -> (value, unit)
+    errors: dict  # join errors: name -> (value, unit)
     states: dict = field(default_factory=dict)  # barycentric ICRF states at events
 
 
 class Refiner:
     """The shooting problem of one design record (see module docstring)."""
 
-    def __init__(self, record, limits, de, propagator, parking_altitude_km=200.0,
-                 progress=None):
+    def __init__(self, record, limits, de, propagator, parking_altitude_km=200.0, progress=None):
         self.record = record
         self.limits = limits
         self.de = de
@@ -112,8 +112,11 @@ class Refiner:
         self.soi_km = soi_radius_km(self.body)
         ev = event_states(record)
         self.ev = ev
-        self.t_conic = {"launch": ev["launch"]["t"], "dsm": ev["dsm"]["t"],
-                        "flyby": ev["flyby"]["t"]}
+        self.t_conic = {
+            "launch": ev["launch"]["t"],
+            "dsm": ev["dsm"]["t"],
+            "flyby": ev["flyby"]["t"],
+        }
         self.target = limits.has_target
         if self.target:
             if "arrival" not in ev:
@@ -137,12 +140,40 @@ class Refiner:
 
     # ------------------------------------------------------------ set-up
     def _names(self):
-        names = ["launch_epoch_shift", "launch_vinf_x", "launch_vinf_y", "launch_vinf_z",
-                 "dsm_epoch_shift", "dsm_x", "dsm_y", "dsm_z", "periapsis_epoch_shift",
-                 "periapsis_rx", "periapsis_ry", "periapsis_rz", "periapsis_vx",
-                 "periapsis_vy", "periapsis_vz"]
-        units = ["day", "km/s", "km/s", "km/s", "day", "km/s", "km/s", "km/s", "day",
-                 "1e4 km", "1e4 km", "1e4 km", "km/s", "km/s", "km/s"]
+        names = [
+            "launch_epoch_shift",
+            "launch_vinf_x",
+            "launch_vinf_y",
+            "launch_vinf_z",
+            "dsm_epoch_shift",
+            "dsm_x",
+            "dsm_y",
+            "dsm_z",
+            "periapsis_epoch_shift",
+            "periapsis_rx",
+            "periapsis_ry",
+            "periapsis_rz",
+            "periapsis_vx",
+            "periapsis_vy",
+            "periapsis_vz",
+        ]
+        units = [
+            "day",
+            "km/s",
+            "km/s",
+            "km/s",
+            "day",
+            "km/s",
+            "km/s",
+            "km/s",
+            "day",
+            "1e4 km",
+            "1e4 km",
+            "1e4 km",
+            "km/s",
+            "km/s",
+            "km/s",
+        ]
         if self.target:
             names.append("arrival_epoch_shift")
             units.append("day")
@@ -155,11 +186,11 @@ class Refiner:
         """Time (s) from periapsis to ``distance`` on the conic flyby hyperbola."""
         rp = float(self.record["derived"]["flyby_periapsis_radius"]["value"])
         mu = self.gm_body
-        a = mu / vinf ** 2
+        a = mu / vinf**2
         ecc = 1.0 + rp / a
         cosh_f = (distance / a + 1.0) / ecc
         f = math.acosh(max(cosh_f, 1.0))
-        return math.sqrt(a ** 3 / mu) * (ecc * math.sinh(f) - f)
+        return math.sqrt(a**3 / mu) * (ecc * math.sinh(f) - f)
 
     def _initial_guess(self):
         ev = self.ev
@@ -179,20 +210,22 @@ class Refiner:
         q_hat = vin_hat + vout_hat
         q_hat /= np.linalg.norm(q_hat)
         speed_in = np.linalg.norm(vin)
-        vp = math.sqrt(speed_in ** 2 + 2.0 * self.gm_body / rp)
+        vp = math.sqrt(speed_in**2 + 2.0 * self.gm_body / rp)
         z = [0.0, *vinf_launch, 0.0, *dsm, 0.0, *(rp * p_hat / R_UNIT_KM), *(vp * q_hat)]
         if self.target:
             z.append(0.0)
         if self.powered:
             vout_n = np.linalg.norm(vout)
-            z.append(math.sqrt(vout_n ** 2 + 2.0 * self.gm_body / rp) - vp)
+            z.append(math.sqrt(vout_n**2 + 2.0 * self.gm_body / rp) - vp)
         return np.array(z, dtype=float)
 
     # ------------------------------------------------------------ pieces
     def epochs(self, z):
-        out = {"launch": self.t_conic["launch"] + z[0] * DAY_S,
-               "dsm": self.t_conic["dsm"] + z[4] * DAY_S,
-               "flyby": self.t_conic["flyby"] + z[8] * DAY_S}
+        out = {
+            "launch": self.t_conic["launch"] + z[0] * DAY_S,
+            "dsm": self.t_conic["dsm"] + z[4] * DAY_S,
+            "flyby": self.t_conic["flyby"] + z[8] * DAY_S,
+        }
         if self.target:
             out["arrival"] = self.t_conic["arrival"] + z[15] * DAY_S
         return out
@@ -221,9 +254,11 @@ class Refiner:
         q_hat = np.cross(h / np.linalg.norm(h), p_hat)
         nu = math.acos(-1.0 / ecc)
         s_hat = math.cos(nu) * p_hat + math.sin(nu) * q_hat
-        _, dla, _ = launch_asymptote(s_hat * math.sqrt(max(c3, 0.0)),
-                                     math.radians(self.body.pole_ra_deg),
-                                     math.radians(self.body.pole_dec_deg))
+        _, dla, _ = launch_asymptote(
+            s_hat * math.sqrt(max(c3, 0.0)),
+            math.radians(self.body.pole_ra_deg),
+            math.radians(self.body.pole_dec_deg),
+        )
         return c3, math.degrees(dla)
 
     def periapsis_states(self, z, t_flyby):
@@ -241,8 +276,9 @@ class Refiner:
         if self.limits.target_is_planet:
             return self.de.state(self.limits.target_name.lower(), t)
         arr = self.ev["arrival"]
-        r, v, ok = conic_propagate(bodies.GM_SUN_KM3_S2, arr["r"], arr["v_target"],
-                                   float(t - arr["t"]))
+        r, v, ok = conic_propagate(
+            bodies.GM_SUN_KM3_S2, arr["r"], arr["v_target"], float(t - arr["t"])
+        )
         if not ok:
             raise RuntimeError("two-body propagation of the target failed")
         rs, vs = self.de.state("sun", t)
@@ -276,23 +312,37 @@ class Refiner:
         dv = v1 + dsm_icrf - v2
         rad_v = float(rp @ vp / np.linalg.norm(rp))  # km/s
         eq = [*(dr / _POS_RES_KM), *(dv / _VEL_RES_KM_S), rad_v / _VEL_RES_KM_S]
-        errors = {"dsm_join_position": (float(np.linalg.norm(dr)), "km"),
-                  "dsm_join_velocity": (float(np.linalg.norm(dv)) * 1e3, "m/s"),
-                  "periapsis_radial_velocity": (abs(rad_v) * 1e3, "m/s")}
+        errors = {
+            "dsm_join_position": (float(np.linalg.norm(dr)), "km"),
+            "dsm_join_velocity": (float(np.linalg.norm(dv)) * 1e3, "m/s"),
+            "periapsis_radial_velocity": (abs(rad_v) * 1e3, "m/s"),
+        }
         c3, dla = self.departure_c3_dla(r_rel, v_rel)
         alt = float(np.linalg.norm(rp)) - self.body.equatorial_radius_km
         dsm = float(np.linalg.norm(z[5:8]))
-        q = {"c3": (c3, "km^2/s^2"), "dla": (dla, "deg"),
-             "launch_vinf": (float(np.linalg.norm(z[1:4])), "km/s"), "dsm": (dsm, "km/s"),
-             "flyby_altitude": (alt, "km"), "flyby_periapsis_radius": (alt + self.body.equatorial_radius_km, "km"),
-             "flyby_periapsis_speed": (float(np.linalg.norm(vp)), "km/s")}
-        states = {"launch": (r0, v0), "dsm_before": (r1, v1), "dsm_after": (r1, v1 + dsm_icrf),
-                  "periapsis_in": (rp_b, vp_in), "periapsis_out": (rp_b, vp_out)}
+        q = {
+            "c3": (c3, "km^2/s^2"),
+            "dla": (dla, "deg"),
+            "launch_vinf": (float(np.linalg.norm(z[1:4])), "km/s"),
+            "dsm": (dsm, "km/s"),
+            "flyby_altitude": (alt, "km"),
+            "flyby_periapsis_radius": (alt + self.body.equatorial_radius_km, "km"),
+            "flyby_periapsis_speed": (float(np.linalg.norm(vp)), "km/s"),
+        }
+        states = {
+            "launch": (r0, v0),
+            "dsm_before": (r1, v1),
+            "dsm_after": (r1, v1 + dsm_icrf),
+            "periapsis_in": (rp_b, vp_in),
+            "periapsis_out": (rp_b, vp_out),
+        }
         objective = dsm
-        ineq = {"max_c3": (lim.max_c3_km2_s2 - c3, "km^2/s^2", 1.0),
-                "dla_band_low": (dla - lim.min_dla_deg, "deg", 1.0),
-                "dla_band_high": (lim.max_dla_deg - dla, "deg", 1.0),
-                "min_flyby_altitude": (alt - lim.min_flyby_altitude_km, "km", 1000.0)}
+        ineq = {
+            "max_c3": (lim.max_c3_km2_s2 - c3, "km^2/s^2", 1.0),
+            "dla_band_low": (dla - lim.min_dla_deg, "deg", 1.0),
+            "dla_band_high": (lim.max_dla_deg - dla, "deg", 1.0),
+            "min_flyby_altitude": (alt - lim.min_flyby_altitude_km, "km", 1000.0),
+        }
         if self.powered:
             burn = abs(float(z[16]))
             q["flyby_burn"] = (burn, "km/s")
@@ -317,25 +367,36 @@ class Refiner:
             rb, vb = self.de.state(self.bname, t_o)
             d = float(np.linalg.norm(r3 - rb))
             vrel = float(np.linalg.norm(v3 - vb))
-            vinf = math.sqrt(max(vrel ** 2 - 2.0 * self.gm_body / d, 0.0))
+            vinf = math.sqrt(max(vrel**2 - 2.0 * self.gm_body / d, 0.0))
             rs, vs = self.de.state("sun", t_o)
             a, ecc, inc, *_ = elements_from_state(self.gm_sun, _to_ecl(r3 - rs), _to_ecl(v3 - vs))
             aph = a * (1.0 + ecc) if (ecc < 1.0 and a > 0) else math.inf
-            q.update({"flyby_vinf_out": (vinf, "km/s"),
-                      "outgoing_measured_at": (d / self.soi_km, "SOI radii"),
-                      "outgoing_measured_days_after_periapsis": (self.t_out_s / DAY_S, "day"),
-                      "outgoing_sma": (a / AU_KM, "au"), "outgoing_eccentricity": (ecc, ""),
-                      "outgoing_inclination": (math.degrees(inc), "deg"),
-                      "outgoing_aphelion": (aph / AU_KM, "au")})
+            q.update(
+                {
+                    "flyby_vinf_out": (vinf, "km/s"),
+                    "outgoing_measured_at": (d / self.soi_km, "SOI radii"),
+                    "outgoing_measured_days_after_periapsis": (self.t_out_s / DAY_S, "day"),
+                    "outgoing_sma": (a / AU_KM, "au"),
+                    "outgoing_eccentricity": (ecc, ""),
+                    "outgoing_inclination": (math.degrees(inc), "deg"),
+                    "outgoing_aphelion": (aph / AU_KM, "au"),
+                }
+            )
             states["outgoing"] = (r3, v3)
             if lim.min_outgoing_vinf_km_s is not None:
                 ineq["min_outgoing_vinf"] = (vinf - lim.min_outgoing_vinf_km_s, "km/s", 0.01)
             if lim.min_outgoing_inclination_deg is not None:
                 ineq["min_outgoing_inclination"] = (
-                    math.degrees(inc) - lim.min_outgoing_inclination_deg, "deg", 0.1)
+                    math.degrees(inc) - lim.min_outgoing_inclination_deg,
+                    "deg",
+                    0.1,
+                )
             if lim.min_outgoing_aphelion_au is not None:
-                ineq["min_outgoing_aphelion"] = (aph / AU_KM - lim.min_outgoing_aphelion_au,
-                                                 "au", 0.01)
+                ineq["min_outgoing_aphelion"] = (
+                    aph / AU_KM - lim.min_outgoing_aphelion_au,
+                    "au",
+                    0.01,
+                )
         if lim.dsm_budget_km_s is not None:
             ineq["dsm_budget"] = (lim.dsm_budget_km_s - objective, "km/s", 0.01)
         q["total_dv"] = (objective, "km/s")
@@ -371,8 +432,13 @@ class Refiner:
         tol = {"km": POS_TOL_KM, "m/s": VEL_TOL_KM_S * 1e3}
         for name, (value, unit) in e.errors.items():
             if value > tol[unit]:
-                missed.append((value / tol[unit], f"{name.replace('_', ' ')} error "
-                                                  f"{value:.4g} {unit} (tolerance {tol[unit]:g} {unit})"))
+                missed.append(
+                    (
+                        value / tol[unit],
+                        f"{name.replace('_', ' ')} error "
+                        f"{value:.4g} {unit} (tolerance {tol[unit]:g} {unit})",
+                    )
+                )
         for name, (margin, unit, scale) in e.ineq.items():
             if margin < -LIMIT_TOL:
                 missed.append((-margin / scale * 1e3, f"{name} missed by {-margin:.4g} {unit}"))
@@ -383,9 +449,11 @@ class Refiner:
     def report_line(self, label, e: Evaluation):
         pos = max([v for v, u in e.errors.values() if u == "km"])
         vel = max([v for v, u in e.errors.values() if u == "m/s"])
-        self.progress(f"{label}: largest join error {pos:.3g} km, {vel:.3g} m/s; "
-                      f"DSM {e.quantities['dsm'][0]:.4f} km/s; "
-                      f"{time.monotonic() - self.t_start:.0f} s")
+        self.progress(
+            f"{label}: largest join error {pos:.3g} km, {vel:.3g} m/s; "
+            f"DSM {e.quantities['dsm'][0]:.4f} km/s; "
+            f"{time.monotonic() - self.t_start:.0f} s"
+        )
 
     # ------------------------------------------------------------ solvers
     def _limit_residuals(self, e: Evaluation):
@@ -404,11 +472,20 @@ class Refiner:
             self.iterations += 1
             self.report_line(f"{label} {self.iterations}", self.evaluate(x))
             full = self.jacobian(x)
-            lim = full[1 + n_eq:] * (self._limit_residuals(self.evaluate(x)) < 0.0)[:, None]
-            return np.vstack([full[1:1 + n_eq], lim])
+            lim = full[1 + n_eq :] * (self._limit_residuals(self.evaluate(x)) < 0.0)[:, None]
+            return np.vstack([full[1 : 1 + n_eq], lim])
 
-        sol = least_squares(fun, z, jac=jac, method="trf", x_scale="jac", xtol=1e-12,
-                            ftol=1e-12, gtol=1e-12, max_nfev=max_nfev)
+        sol = least_squares(
+            fun,
+            z,
+            jac=jac,
+            method="trf",
+            x_scale="jac",
+            xtol=1e-12,
+            ftol=1e-12,
+            gtol=1e-12,
+            max_nfev=max_nfev,
+        )
         return sol.x
 
     def _slsqp(self, z, bounds, max_iter):
@@ -419,15 +496,28 @@ class Refiner:
             self.iterations += 1
             self.report_line(f"optimising {self.iterations}", self.evaluate(x))
 
-        cons = [{"type": "eq", "fun": lambda x: self.evaluate(x).eq,
-                 "jac": lambda x: self.jacobian(x)[1:1 + n_eq]},
-                {"type": "ineq",
-                 "fun": lambda x: np.array([m / s for m, _, s in self.evaluate(x).ineq.values()]),
-                 "jac": lambda x: self.jacobian(x)[1 + n_eq:]}]
-        sol = minimize(lambda x: self.evaluate(x).objective, z,
-                       jac=lambda x: self.jacobian(x)[0], method="SLSQP", bounds=bounds,
-                       constraints=cons, callback=callback,
-                       options={"maxiter": max_iter, "ftol": 1e-10})
+        cons = [
+            {
+                "type": "eq",
+                "fun": lambda x: self.evaluate(x).eq,
+                "jac": lambda x: self.jacobian(x)[1 : 1 + n_eq],
+            },
+            {
+                "type": "ineq",
+                "fun": lambda x: np.array([m / s for m, _, s in self.evaluate(x).ineq.values()]),
+                "jac": lambda x: self.jacobian(x)[1 + n_eq :],
+            },
+        ]
+        sol = minimize(
+            lambda x: self.evaluate(x).objective,
+            z,
+            jac=lambda x: self.jacobian(x)[0],
+            method="SLSQP",
+            bounds=bounds,
+            constraints=cons,
+            callback=callback,
+            options={"maxiter": max_iter, "ftol": 1e-10},
+        )
         return sol.x
 
     def optimise(self, z, max_outer=25, inner_iter=8):

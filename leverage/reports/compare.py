@@ -6,6 +6,7 @@ the runs has, search effort and wall time; then the problem-file settings that
 differ between the runs (read from each folder's problem.toml copy). Everything
 comes from the folders alone.
 """
+
 import math
 from pathlib import Path
 
@@ -74,24 +75,34 @@ def _objective_row(records) -> tuple:
 
 
 def _rows(records) -> list:
-    rows = [("problem", [r["problem"]["name"] for r in records]),
-            ("problem sha256", [r["problem"]["sha256"][:12] for r in records]),
-            ("goal", [r["problem"]["goal"] for r in records]),
-            ("flyby body", [r["problem"]["body"] for r in records]),
-            ("status", [r.get("status", "") for r in records]),
-            ("ephemeris", [_short_ephemeris(r) for r in records]),
-            ("holds: search model", ["yes" if r.get("feasible") else "NO" for r in records]),
-            ("holds: verification", [_verified(r) for r in records]),
-            _objective_row(records),
-            ("launch (UTC)", [_event(r, "launch")["utc"][:10] for r in records]),
-            ("flyby (UTC)", [_event(r, "flyby")["utc"][:10] for r in records])]
+    rows = [
+        ("problem", [r["problem"]["name"] for r in records]),
+        ("problem sha256", [r["problem"]["sha256"][:12] for r in records]),
+        ("goal", [r["problem"]["goal"] for r in records]),
+        ("flyby body", [r["problem"]["body"] for r in records]),
+        ("status", [r.get("status", "") for r in records]),
+        ("ephemeris", [_short_ephemeris(r) for r in records]),
+        ("holds: search model", ["yes" if r.get("feasible") else "NO" for r in records]),
+        ("holds: verification", [_verified(r) for r in records]),
+        _objective_row(records),
+        ("launch (UTC)", [_event(r, "launch")["utc"][:10] for r in records]),
+        ("flyby (UTC)", [_event(r, "flyby")["utc"][:10] for r in records]),
+    ]
     if any(_event(r, "arrival") for r in records):
-        rows.append(("arrival (UTC)", [(_event(r, "arrival") or {"utc": "-"})["utc"][:10]
-                                       for r in records]))
+        rows.append(
+            ("arrival (UTC)", [(_event(r, "arrival") or {"utc": "-"})["utc"][:10] for r in records])
+        )
     for label, name, digits in KEY_NUMBERS:
         if any(name in r["derived"] for r in records):
-            rows.append((label, [_num(r["derived"][name]["value"], digits)
-                                 if name in r["derived"] else "-" for r in records]))
+            rows.append(
+                (
+                    label,
+                    [
+                        _num(r["derived"][name]["value"], digits) if name in r["derived"] else "-"
+                        for r in records
+                    ],
+                )
+            )
     names = []
     for r in records:
         names += [n for n in r["margins"] if n not in names]
@@ -109,13 +120,25 @@ def _rows(records) -> list:
         unit = next(r["margins"][name]["unit"] for r in records if name in r["margins"])
         rows.append((f"  {name}" + (f" ({unit})" if unit else ""), cells))
     rows.append(("", []))
-    rows.append(("search", [f"{r['search']['algorithm']} {r['search']['islands']}x"
-                            f"{r['search']['population']}" for r in records]))
-    rows.append(("generations / seed", [f"{r['search']['generations']} / {r['search']['seed']}"
-                                        for r in records]))
+    rows.append(
+        (
+            "search",
+            [
+                f"{r['search']['algorithm']} {r['search']['islands']}x{r['search']['population']}"
+                for r in records
+            ],
+        )
+    )
+    rows.append(
+        (
+            "generations / seed",
+            [f"{r['search']['generations']} / {r['search']['seed']}" for r in records],
+        )
+    )
     rows.append(("evaluations", [f"{r.get('run', {}).get('evaluations', 0):,}" for r in records]))
-    rows.append(("wall time (s)", [_num(r.get("run", {}).get("wall_time_s", math.nan), 1)
-                                   for r in records]))
+    rows.append(
+        ("wall time (s)", [_num(r.get("run", {}).get("wall_time_s", math.nan), 1) for r in records])
+    )
     return rows
 
 
@@ -144,8 +167,11 @@ def setting_differences(folders) -> list:
     keys = []
     for t in tables:
         keys += [k for k in t if k not in keys]
-    return [(k, [t.get(k, "(default)") for t in tables]) for k in keys
-            if len({repr(t.get(k, "(default)")) for t in tables}) > 1]
+    return [
+        (k, [t.get(k, "(default)") for t in tables])
+        for k in keys
+        if len({repr(t.get(k, "(default)")) for t in tables}) > 1
+    ]
 
 
 def render(folders, records, refined=None) -> str:
@@ -158,17 +184,29 @@ def render(folders, records, refined=None) -> str:
     lines += ["", " " * width + "".join(f"{letter:>{COL}}" for letter in letters)]
     rows = _rows(records)
     if refined and any(refined):
-        rows.append(("refined DSM (km/s)", [
-            "not yet" if r is None else
-            f"{r.get('derived', {}).get('dsm', {}).get('value', float('nan')):.4f}"
-            + ("" if r.get("status") == "converged" else " !") for r in refined]))
+        rows.append(
+            (
+                "refined DSM (km/s)",
+                [
+                    "not yet"
+                    if r is None
+                    else f"{r.get('derived', {}).get('dsm', {}).get('value', float('nan')):.4f}"
+                    + ("" if r.get("status") == "converged" else " !")
+                    for r in refined
+                ],
+            )
+        )
     for label, cells in rows:
         lines.append((f"{label:<{width}}" + "".join(f"{c:>{COL}}" for c in cells)).rstrip())
     diffs = setting_differences(folders)
-    lines += ["", "problem-file settings that differ" if diffs else
-              "problem files: no setting differs (runs differ only by command-line options)"]
+    lines += [
+        "",
+        "problem-file settings that differ"
+        if diffs
+        else "problem files: no setting differs (runs differ only by command-line options)",
+    ]
     for key, values in diffs:
-        shown = "".join(f"{str(v)[:COL - 1]:>{COL}}" for v in values)
+        shown = "".join(f"{str(v)[: COL - 1]:>{COL}}" for v in values)
         lines.append(f"  {key:<{width - 2}}{shown}")
     lines += ["", "! marks a violated limit.", f"CAUTION: {CAUTION}", ""]
     return "\n".join(lines)

@@ -15,6 +15,7 @@ Epochs: TDB (the model's time scale) and UTC (through astropy, leap seconds from
 table). The OEM states ``TIME_SYSTEM = TDB``. One OEM segment per arc: the DSM and
 the flyby change the velocity, so a reader must not interpolate across them.
 """
+
 import csv
 import io
 from datetime import datetime, timezone
@@ -34,8 +35,19 @@ FRAMES = {
     "eme2000": "heliocentric EME2000 (mean equator and equinox of J2000)",
     "ecliptic": "heliocentric ecliptic J2000",
 }
-CSV_COLUMNS = ["arc", "epoch_utc", "epoch_tdb", "tdb_seconds_past_j2000", "x_km", "y_km",
-               "z_km", "vx_km_s", "vy_km_s", "vz_km_s", "frame"]
+CSV_COLUMNS = [
+    "arc",
+    "epoch_utc",
+    "epoch_tdb",
+    "tdb_seconds_past_j2000",
+    "x_km",
+    "y_km",
+    "z_km",
+    "vx_km_s",
+    "vy_km_s",
+    "vz_km_s",
+    "frame",
+]
 DEFAULT_STEP_HOURS = 24.0
 
 
@@ -76,9 +88,12 @@ def csv_text(record, step_s: float, frame: str = "eme2000") -> str:
         utc = iso_epochs(arc.t_tdb_s, "utc")
         tdb = iso_epochs(arc.t_tdb_s, "tdb")
         for k in range(arc.t_tdb_s.size):
-            out.writerow([arc.label, utc[k], tdb[k], f"{arc.t_tdb_s[k]:.6f}"]
-                         + [f"{v:.6f}" for v in arc.r_km[k]]
-                         + [f"{v:.9f}" for v in arc.v_km_s[k]] + [FRAMES[frame]])
+            out.writerow(
+                [arc.label, utc[k], tdb[k], f"{arc.t_tdb_s[k]:.6f}"]
+                + [f"{v:.6f}" for v in arc.r_km[k]]
+                + [f"{v:.9f}" for v in arc.v_km_s[k]]
+                + [FRAMES[frame]]
+            )
     return buf.getvalue()
 
 
@@ -86,32 +101,47 @@ def oem_text(record, step_s: float, created: datetime | None = None) -> str:
     """The design as a CCSDS OEM (KVN), one segment per arc, EME2000, TDB."""
     created = created or datetime.now(timezone.utc)
     problem = record["problem"]
-    header = [("CCSDS_OEM_VERS", "2.0"),
-              ("COMMENT", f"leverage design for problem '{problem['name']}' "
-                          f"(sha256 {problem['sha256'][:12]}), status {record.get('status', '')}"),
-              ("COMMENT", CAUTION),
-              ("COMMENT", "Two-body (Sun-only) conic arcs of a patched-conic design; "
-                          "velocities jump at the DSM and the flyby between segments."),
-              ("CREATION_DATE", created.strftime("%Y-%m-%dT%H:%M:%S")),
-              ("ORIGINATOR", f"leverage {__version__}")]
+    header = [
+        ("CCSDS_OEM_VERS", "2.0"),
+        (
+            "COMMENT",
+            f"leverage design for problem '{problem['name']}' "
+            f"(sha256 {problem['sha256'][:12]}), status {record.get('status', '')}",
+        ),
+        ("COMMENT", CAUTION),
+        (
+            "COMMENT",
+            "Two-body (Sun-only) conic arcs of a patched-conic design; "
+            "velocities jump at the DSM and the flyby between segments.",
+        ),
+        ("CREATION_DATE", created.strftime("%Y-%m-%dT%H:%M:%S")),
+        ("ORIGINATOR", f"leverage {__version__}"),
+    ]
     segments = []
     for arc in sampled_arcs(record, step_s, "eme2000"):
         epochs = iso_epochs(arc.t_tdb_s, "tdb")
-        meta = [("OBJECT_NAME", f"{problem['name']} design"),
-                ("OBJECT_ID", f"LEVERAGE-{problem['sha256'][:12]}"),
-                ("CENTER_NAME", "SUN"),
-                ("REF_FRAME", "EME2000"),
-                ("TIME_SYSTEM", "TDB"),
-                ("START_TIME", epochs[0]),
-                ("STOP_TIME", epochs[-1])]
+        meta = [
+            ("OBJECT_NAME", f"{problem['name']} design"),
+            ("OBJECT_ID", f"LEVERAGE-{problem['sha256'][:12]}"),
+            ("CENTER_NAME", "SUN"),
+            ("REF_FRAME", "EME2000"),
+            ("TIME_SYSTEM", "TDB"),
+            ("START_TIME", epochs[0]),
+            ("STOP_TIME", epochs[-1]),
+        ]
         comments = [f"{arc.label}: conic arc, {len(epochs)} states"]
-        segments.append(oem.Segment(meta, epochs, np.hstack([arc.r_km, arc.v_km_s]),
-                                    comments))
+        segments.append(oem.Segment(meta, epochs, np.hstack([arc.r_km, arc.v_km_s]), comments))
     return oem.write(header, segments)
 
 
-def export(record, folder, fmt: str, step_hours: float = DEFAULT_STEP_HOURS,
-           frame: str = "eme2000", path=None):
+def export(
+    record,
+    folder,
+    fmt: str,
+    step_hours: float = DEFAULT_STEP_HOURS,
+    frame: str = "eme2000",
+    path=None,
+):
     """Write states.csv or states.oem into ``folder`` (or ``path``); return the path."""
     from pathlib import Path
 

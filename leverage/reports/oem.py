@@ -19,6 +19,7 @@ INTERPOLATION_DEGREE, covariance) are not written; the reader accepts them in th
 places. The keyword lists and order here are the standard's tables as recalled,
 not copied from the document.
 """
+
 import re
 from dataclasses import dataclass, field
 
@@ -26,11 +27,30 @@ import numpy as np
 
 HEADER_REQUIRED = ["CCSDS_OEM_VERS", "CREATION_DATE", "ORIGINATOR"]
 HEADER_ORDER = ["CCSDS_OEM_VERS", "COMMENT", "CREATION_DATE", "ORIGINATOR", "MESSAGE_ID"]
-META_REQUIRED = ["OBJECT_NAME", "OBJECT_ID", "CENTER_NAME", "REF_FRAME", "TIME_SYSTEM",
-                 "START_TIME", "STOP_TIME"]
-META_ORDER = ["COMMENT", "OBJECT_NAME", "OBJECT_ID", "CENTER_NAME", "REF_FRAME",
-              "REF_FRAME_EPOCH", "TIME_SYSTEM", "START_TIME", "USEABLE_START_TIME",
-              "USEABLE_STOP_TIME", "STOP_TIME", "INTERPOLATION", "INTERPOLATION_DEGREE"]
+META_REQUIRED = [
+    "OBJECT_NAME",
+    "OBJECT_ID",
+    "CENTER_NAME",
+    "REF_FRAME",
+    "TIME_SYSTEM",
+    "START_TIME",
+    "STOP_TIME",
+]
+META_ORDER = [
+    "COMMENT",
+    "OBJECT_NAME",
+    "OBJECT_ID",
+    "CENTER_NAME",
+    "REF_FRAME",
+    "REF_FRAME_EPOCH",
+    "TIME_SYSTEM",
+    "START_TIME",
+    "USEABLE_START_TIME",
+    "USEABLE_STOP_TIME",
+    "STOP_TIME",
+    "INTERPOLATION",
+    "INTERPOLATION_DEGREE",
+]
 EPOCH_PATTERN = re.compile(r"^\d{4}-(\d{2}-\d{2}|\d{3})T\d{2}:\d{2}:\d{2}(\.\d+)?Z?$")
 
 
@@ -75,8 +95,10 @@ def write(header: list, segments: list) -> str:
         lines += [f"{key} = {value}" for key, value in seg.metadata]
         lines += ["META_STOP", ""]
         for epoch, state in zip(seg.epochs, seg.states):
-            lines.append(f"{format_epoch(epoch)} " + " ".join(
-                [f"{v:.6f}" for v in state[:3]] + [f"{v:.9f}" for v in state[3:6]]))
+            lines.append(
+                f"{format_epoch(epoch)} "
+                + " ".join([f"{v:.6f}" for v in state[:3]] + [f"{v:.9f}" for v in state[3:6]])
+            )
     return "\n".join(lines) + "\n"
 
 
@@ -117,8 +139,11 @@ def read(text: str) -> Message:
     header, k = [], 0
     while k < len(lines) and lines[k] != "META_START":
         line = lines[k]
-        header.append(("COMMENT", line[7:].strip()) if line.startswith("COMMENT")
-                      else _key_value(line, f"header line {k + 1}"))
+        header.append(
+            ("COMMENT", line[7:].strip())
+            if line.startswith("COMMENT")
+            else _key_value(line, f"header line {k + 1}")
+        )
         k += 1
     _check_order([h[0] for h in header], HEADER_ORDER, HEADER_REQUIRED, "header")
     segments = []

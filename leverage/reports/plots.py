@@ -16,6 +16,7 @@ matplotlib objects that carry the plotted data (so tests can compare what was dr
 with the record). Figures are made with ``matplotlib.figure.Figure`` (no pyplot
 state) under a small style of our own.
 """
+
 import csv
 import io
 import math
@@ -98,6 +99,7 @@ def _utc_datetime(t_tdb_s: float) -> datetime:
 
 # ------------------------------------------------------------------ trajectory
 
+
 def side_axes(record):
     """Unit vectors (horizontal, vertical, looking) of the side view, ecliptic J2000.
 
@@ -147,64 +149,111 @@ def trajectory(record, folder) -> Picture:
     body = record["problem"]["body"]
     orbit = body_orbit(body, ev["launch"]["t"])
     fig = _new_figure(12.0, 6.4)
-    grid = fig.add_gridspec(1, 2, width_ratios=[1.25, 1.0], left=0.06, right=0.98,
-                            bottom=0.17, top=0.87, wspace=0.22)
+    grid = fig.add_gridspec(
+        1, 2, width_ratios=[1.25, 1.0], left=0.06, right=0.98, bottom=0.17, top=0.87, wspace=0.22
+    )
     top = fig.add_subplot(grid[0, 0])
     side = fig.add_subplot(grid[0, 1])
     artists = {}
     with matplotlib.rc_context(STYLE):
-        (artists["body orbit"],) = top.plot(orbit.r_km[:, 0] / AU_KM, orbit.r_km[:, 1] / AU_KM,
-                                            ls="--", lw=1.0, color=COLOURS["body"],
-                                            label=f"{orbit.label} (mean elements)")
+        (artists["body orbit"],) = top.plot(
+            orbit.r_km[:, 0] / AU_KM,
+            orbit.r_km[:, 1] / AU_KM,
+            ls="--",
+            lw=1.0,
+            color=COLOURS["body"],
+            label=f"{orbit.label} (mean elements)",
+        )
         target = target_orbit(record)
         if target is not None:
-            (artists["target orbit"],) = top.plot(target.r_km[:, 0] / AU_KM,
-                                                  target.r_km[:, 1] / AU_KM, ls=":", lw=1.2,
-                                                  color=COLOURS["target"], label=target.label)
-        artists["sun"] = top.scatter([0.0], [0.0], s=110, color=COLOURS["sun"], zorder=3,
-                                     edgecolor="#a07800", label="Sun")
+            (artists["target orbit"],) = top.plot(
+                target.r_km[:, 0] / AU_KM,
+                target.r_km[:, 1] / AU_KM,
+                ls=":",
+                lw=1.2,
+                color=COLOURS["target"],
+                label=target.label,
+            )
+        artists["sun"] = top.scatter(
+            [0.0], [0.0], s=110, color=COLOURS["sun"], zorder=3, edgecolor="#a07800", label="Sun"
+        )
         horizontal, vertical, _ = side_axes(record)
         for arc in arcs:
             colour = COLOURS.get(arc.key, "#444444")
             x, y = arc.r_km[:, 0] / AU_KM, arc.r_km[:, 1] / AU_KM
             (artists[arc.key],) = top.plot(x, y, lw=1.8, color=colour, label=arc.label)
-            (artists[f"side {arc.key}"],) = side.plot(arc.r_km @ horizontal / AU_KM,
-                                                      arc.r_km @ vertical / AU_KM, lw=1.8,
-                                                      color=colour, label=arc.label)
-        (artists["side body orbit"],) = side.plot(orbit.r_km @ horizontal / AU_KM,
-                                                  orbit.r_km @ vertical / AU_KM, ls="--",
-                                                  lw=1.0, color=COLOURS["body"])
+            (artists[f"side {arc.key}"],) = side.plot(
+                arc.r_km @ horizontal / AU_KM,
+                arc.r_km @ vertical / AU_KM,
+                lw=1.8,
+                color=colour,
+                label=arc.label,
+            )
+        (artists["side body orbit"],) = side.plot(
+            orbit.r_km @ horizontal / AU_KM,
+            orbit.r_km @ vertical / AU_KM,
+            ls="--",
+            lw=1.0,
+            color=COLOURS["body"],
+        )
         side.scatter([0.0], [0.0], s=60, color=COLOURS["sun"], zorder=3, edgecolor="#a07800")
         for name in ("launch", "dsm", "flyby", "arrival"):
             if name not in ev:
                 continue
             r = ev[name]["r"] / AU_KM
-            artists[f"event {name}"] = top.scatter([r[0]], [r[1]], marker=EVENT_MARKERS[name],
-                                                   s=55, color="black", zorder=4,
-                                                   label=EVENT_NAMES[name])
-            top.annotate(_event_label(name, ev[name], record), (r[0], r[1]),
-                         **_label_place(r, inward=name == "flyby"), fontsize=8.5,
-                         color=COLOURS["text"], textcoords="offset points",
-                         bbox=dict(boxstyle="round,pad=0.2", fc="white", ec="none", alpha=0.85))
-            side.scatter([r @ horizontal], [r @ vertical], marker=EVENT_MARKERS[name], s=40,
-                         color="black", zorder=4)
+            artists[f"event {name}"] = top.scatter(
+                [r[0]],
+                [r[1]],
+                marker=EVENT_MARKERS[name],
+                s=55,
+                color="black",
+                zorder=4,
+                label=EVENT_NAMES[name],
+            )
+            top.annotate(
+                _event_label(name, ev[name], record),
+                (r[0], r[1]),
+                **_label_place(r, inward=name == "flyby"),
+                fontsize=8.5,
+                color=COLOURS["text"],
+                textcoords="offset points",
+                bbox=dict(boxstyle="round,pad=0.2", fc="white", ec="none", alpha=0.85),
+            )
+            side.scatter(
+                [r @ horizontal],
+                [r @ vertical],
+                marker=EVENT_MARKERS[name],
+                s=40,
+                color="black",
+                zorder=4,
+            )
         after = next(a for a in arcs if a.key in ("outgoing", "flyby_arrival"))
         height = after.r_km @ vertical / AU_KM
         k = int(np.argmax(np.abs(height)))
         # The label reads away from the nearer side edge, so it stays inside the figure.
-        spread = np.concatenate([arc.r_km @ horizontal / AU_KM for arc in arcs]
-                                + [orbit.r_km @ horizontal / AU_KM])
+        spread = np.concatenate(
+            [arc.r_km @ horizontal / AU_KM for arc in arcs] + [orbit.r_km @ horizontal / AU_KM]
+        )
         at = after.r_km[k] @ horizontal / AU_KM
         rightward = at - spread.min() <= 0.5 * (spread.max() - spread.min())
-        side.annotate(f"{abs(height[k]):.2f} au {'above' if height[k] >= 0 else 'below'} "
-                      f"the ecliptic\n{_utc_datetime(after.t_tdb_s[k]):%Y-%m-%d}",
-                      (at, height[k]),
-                      xytext=(6 if rightward else -6, 5 if height[k] >= 0 else -5),
-                      textcoords="offset points", ha="left" if rightward else "right",
-                      va="bottom" if height[k] >= 0 else "top", fontsize=8.5,
-                      color=COLOURS["text"])
-        side.scatter([after.r_km[k] @ horizontal / AU_KM], [height[k]], s=18,
-                     color=COLOURS[after.key], zorder=4)
+        side.annotate(
+            f"{abs(height[k]):.2f} au {'above' if height[k] >= 0 else 'below'} "
+            f"the ecliptic\n{_utc_datetime(after.t_tdb_s[k]):%Y-%m-%d}",
+            (at, height[k]),
+            xytext=(6 if rightward else -6, 5 if height[k] >= 0 else -5),
+            textcoords="offset points",
+            ha="left" if rightward else "right",
+            va="bottom" if height[k] >= 0 else "top",
+            fontsize=8.5,
+            color=COLOURS["text"],
+        )
+        side.scatter(
+            [after.r_km[k] @ horizontal / AU_KM],
+            [height[k]],
+            s=18,
+            color=COLOURS[after.key],
+            zorder=4,
+        )
         top.margins(0.1)
         side.margins(0.08, 0.15)
         top.set_aspect("equal", adjustable="datalim")
@@ -214,25 +263,38 @@ def trajectory(record, folder) -> Picture:
         side.axhline(0.0, color="#bbbbbb", lw=0.8)
         side.set_xlabel("along the outgoing orbit's line of nodes (au)")
         side.set_ylabel("height above the ecliptic (au)")
-        side.set_title("side view, across the outgoing line of nodes\n"
-                       "(vertical scale enlarged)")
+        side.set_title("side view, across the outgoing line of nodes\n(vertical scale enlarged)")
         inc = record["derived"].get("outgoing_inclination")
         if inc is not None:
             # Across from the height label (top or bottom), so the two never meet.
             up = height[k] < 0
-            side.text(0.02, 0.97 if up else 0.03,
-                      f"outgoing inclination {as_float(inc['value']):.2f} deg",
-                      transform=side.transAxes, va="top" if up else "bottom", fontsize=8.5,
-                      color=COLOURS["text"])
+            side.text(
+                0.02,
+                0.97 if up else 0.03,
+                f"outgoing inclination {as_float(inc['value']):.2f} deg",
+                transform=side.transAxes,
+                va="top" if up else "bottom",
+                fontsize=8.5,
+                color=COLOURS["text"],
+            )
         handles, labels = top.get_legend_handles_labels()
-        fig.legend(handles, labels, loc="lower center", ncol=(len(labels) + 1) // 2,
-                   bbox_to_anchor=(0.5, 0.02))
-        fig.suptitle(f"{record['problem']['name']}: designed trajectory about the Sun "
-                     f"({record['problem']['body']} loop)", fontsize=12)
+        fig.legend(
+            handles,
+            labels,
+            loc="lower center",
+            ncol=(len(labels) + 1) // 2,
+            bbox_to_anchor=(0.5, 0.02),
+        )
+        fig.suptitle(
+            f"{record['problem']['name']}: designed trajectory about the Sun "
+            f"({record['problem']['body']} loop)",
+            fontsize=12,
+        )
     return Picture(_save(fig, folder / "trajectory.png"), artists)
 
 
 # ------------------------------------------------------------------ convergence
+
 
 def read_table(path) -> list[dict]:
     """Rows of a CSV file as dicts of strings."""
@@ -258,11 +320,18 @@ def _log_rows(path) -> list[dict]:
     for n, row in enumerate(rows, start=2):
         for column in ("island", "evaluations", "best_objective"):
             value = row.get(column)
-            if value is None or None in row or (column != "island"
-                                                 and not math.isfinite(_float(value))):
-                raise ProblemError(str(path), f"line {n} {column}", value,
-                                   "not a convergence log row (finite numbers in island, "
-                                   "evaluations, best_objective)")
+            if (
+                value is None
+                or None in row
+                or (column != "island" and not math.isfinite(_float(value)))
+            ):
+                raise ProblemError(
+                    str(path),
+                    f"line {n} {column}",
+                    value,
+                    "not a convergence log row (finite numbers in island, "
+                    "evaluations, best_objective)",
+                )
     return rows
 
 
@@ -276,17 +345,20 @@ def convergence(record, folder) -> Picture | None:
     if not rows:
         return None
     islands = sorted({r["island"] for r in rows}, key=lambda s: (len(s), s))
-    has_hv = "hypervolume" in rows[0] and any(math.isfinite(_float(r["hypervolume"]))
-                                             for r in rows)
+    has_hv = "hypervolume" in rows[0] and any(math.isfinite(_float(r["hypervolume"])) for r in rows)
     fig = _new_figure(8.0, 6.4 if has_hv else 4.6)
     artists = {}
     shown = objective.from_record(record)[0]  # the first objective, as people read it
     with matplotlib.rc_context(STYLE):
         axes = fig.subplots(2 if has_hv else 1, 1, sharex=True, squeeze=False)[:, 0]
         for n, island in enumerate(islands):
-            look = dict(color=ISLAND_COLOURS[n % len(ISLAND_COLOURS)],
-                        ls=ISLAND_LINES[n % len(ISLAND_LINES)],
-                        marker=ISLAND_MARKERS[n % len(ISLAND_MARKERS)], ms=4, lw=1.4)
+            look = dict(
+                color=ISLAND_COLOURS[n % len(ISLAND_COLOURS)],
+                ls=ISLAND_LINES[n % len(ISLAND_LINES)],
+                marker=ISLAND_MARKERS[n % len(ISLAND_MARKERS)],
+                ms=4,
+                lw=1.4,
+            )
             mine = [r for r in rows if r["island"] == island]
             x = np.array([_float(r["evaluations"]) for r in mine])
             y = shown.value(np.array([_float(r["best_objective"]) for r in mine]))
@@ -298,30 +370,47 @@ def convergence(record, folder) -> Picture | None:
         several = len(record.get("objective") or []) > 1
         final = as_float(record["objective"][0]) if record.get("objective") else math.nan
         if math.isfinite(final) and not several:
-            axes[0].axhline(shown.value(final), color="#555555", lw=0.9, ls=":",
-                            label=f"after polish: {shown.text(final)}")
+            axes[0].axhline(
+                shown.value(final),
+                color="#555555",
+                lw=0.9,
+                ls=":",
+                label=f"after polish: {shown.text(final)}",
+            )
         axes[-1].set_xlim(left=0)
         per_island = min(sum(r["island"] == i for r in rows) for i in islands)
         if per_island < 3:
-            axes[0].text(0.02, 0.5, f"{per_island} log row(s) per island: the log gets one "
-                         "row per island after each migration interval of "
-                         f"{rows[0].get('generations', '?')} generations",
-                         transform=axes[0].transAxes, fontsize=8, color="#777777")
+            axes[0].text(
+                0.02,
+                0.5,
+                f"{per_island} log row(s) per island: the log gets one "
+                "row per island after each migration interval of "
+                f"{rows[0].get('generations', '?')} generations",
+                transform=axes[0].transAxes,
+                fontsize=8,
+                color="#777777",
+            )
         best = "best" if not several else "best first objective:"
         axes[0].set_ylabel(f"{best} {shown.label()}")
-        axes[0].set_title(f"{record['problem']['name']}: search progress "
-                          f"(goal {record['problem']['goal']}, {record['search']['algorithm']})")
+        axes[0].set_title(
+            f"{record['problem']['name']}: search progress "
+            f"(goal {record['problem']['goal']}, {record['search']['algorithm']})"
+        )
         axes[0].legend()
         if has_hv:
             axes[1].set_ylabel("hypervolume of the front")
-        axes[-1].set_xlabel("objective evaluations per island" + (
-            " (front: all islands together)" if "front" in islands else ""))
-        fig.subplots_adjust(left=0.12, right=0.97, bottom=0.12 if not has_hv else 0.09,
-                            top=0.92, hspace=0.12)
+        axes[-1].set_xlabel(
+            "objective evaluations per island"
+            + (" (front: all islands together)" if "front" in islands else "")
+        )
+        fig.subplots_adjust(
+            left=0.12, right=0.97, bottom=0.12 if not has_hv else 0.09, top=0.92, hspace=0.12
+        )
     return Picture(_save(fig, folder / "convergence.png"), artists)
 
 
 # ------------------------------------------------------------------ trade front
+
 
 def _column(names, *wanted, exclude=()):
     """Column named exactly like one of ``wanted`` (spaces as underscores), else the
@@ -391,8 +480,9 @@ def front(record, folder) -> Picture | None:
         ax.plot(dsm[ok][order], gain[ok][order], color="#cccccc", lw=1.0, zorder=1)
         if c_inc is not None:
             inc = np.array([_float(r[c_inc]) for r in rows])
-            artists["front"] = ax.scatter(dsm[ok], gain[ok], c=inc[ok], cmap="viridis", s=28,
-                                          zorder=2)
+            artists["front"] = ax.scatter(
+                dsm[ok], gain[ok], c=inc[ok], cmap="viridis", s=28, zorder=2
+            )
             bar = fig.colorbar(artists["front"], ax=ax)
             bar.set_label("outgoing inclination (deg)")
         else:
@@ -400,18 +490,36 @@ def front(record, folder) -> Picture | None:
         distance = as_float((record.get("front") or {}).get("knee_distance"))
         if distance < KNEE_MIN_DISTANCE:  # the summary says no knee stands out: none circled
             artists["no knee"] = ax.text(
-                0.97, 0.06, f"no knee stands out (knee distance {distance:.4f} of the scaled "
-                "span); choose from front.csv", transform=ax.transAxes, ha="right",
-                fontsize=8.5, color="#555555")
+                0.97,
+                0.06,
+                f"no knee stands out (knee distance {distance:.4f} of the scaled "
+                "span); choose from front.csv",
+                transform=ax.transAxes,
+                ha="right",
+                fontsize=8.5,
+                color="#555555",
+            )
         else:
-            artists["knee"] = ax.scatter([dsm[knee]], [gain[knee]], s=170, facecolor="none",
-                                         edgecolor="#c53030", lw=1.8, zorder=3)
+            artists["knee"] = ax.scatter(
+                [dsm[knee]],
+                [gain[knee]],
+                s=170,
+                facecolor="none",
+                edgecolor="#c53030",
+                lw=1.8,
+                zorder=3,
+            )
             # Lower right is empty on any front of a minimised DSM against a maximised gain.
-            ax.annotate(f"knee: DSM {dsm[knee]:.3f} km/s, gain {gain[knee]:.3f} km/s",
-                        (dsm[knee], gain[knee]), xytext=(0.97, 0.06),
-                        textcoords="axes fraction", ha="right", fontsize=8.5, color="#c53030",
-                        arrowprops=dict(arrowstyle="-", color="#c53030", lw=0.8,
-                                        shrinkA=2, shrinkB=7))
+            ax.annotate(
+                f"knee: DSM {dsm[knee]:.3f} km/s, gain {gain[knee]:.3f} km/s",
+                (dsm[knee], gain[knee]),
+                xytext=(0.97, 0.06),
+                textcoords="axes fraction",
+                ha="right",
+                fontsize=8.5,
+                color="#c53030",
+                arrowprops=dict(arrowstyle="-", color="#c53030", lw=0.8, shrinkA=2, shrinkB=7),
+            )
         ax.set_xlabel("DSM (km/s)" if "dsm" in c_dsm.lower() else f"{c_dsm} (km/s)")
         ax.set_ylabel("v-infinity gain (km/s)")
         ax.set_title(f"{record['problem']['name']}: trade front ({int(ok.sum())} designs)")
@@ -420,6 +528,7 @@ def front(record, folder) -> Picture | None:
 
 
 # ------------------------------------------------------------------ launch window
+
 
 def sweep_table(folder) -> Path | None:
     """The launch-window sweep table of a folder: sweep.csv, else one sweep*.csv."""
@@ -432,14 +541,18 @@ def sweep_table(folder) -> Path | None:
 
 def _launch_dates(rows, names):
     """Launch datetimes (UTC) of sweep rows, from a date column or TDB days past J2000."""
-    c_date = _column(names, "launch utc", "launch date", "window open utc", "open utc", "utc",
-                     "date")
+    c_date = _column(
+        names, "launch utc", "launch date", "window open utc", "open utc", "utc", "date"
+    )
     if c_date is not None:
         out = []
         for r in rows:
             try:
-                out.append(datetime.fromisoformat(str(r[c_date]).strip().replace("Z", "")
-                                                  .replace(" ", "T")))
+                out.append(
+                    datetime.fromisoformat(
+                        str(r[c_date]).strip().replace("Z", "").replace(" ", "T")
+                    )
+                )
             except ValueError:
                 out.append(None)
         return out, c_date
@@ -468,30 +581,50 @@ def launch_window(record, folder) -> Picture | None:
     if dates is None or c_obj is None:
         return None
     c_feas = _column(names, "feasible")
-    keep = [i for i, d in enumerate(dates) if d is not None
-            and math.isfinite(_float(rows[i][c_obj]))]
+    keep = [
+        i for i, d in enumerate(dates) if d is not None and math.isfinite(_float(rows[i][c_obj]))
+    ]
     if not keep:
         return None
     x = [dates[i] for i in keep]
     y = np.array([_float(rows[i][c_obj]) for i in keep])
-    feasible = np.array([str(rows[i][c_feas]).strip().lower() in ("1", "true", "yes")
-                         if c_feas else True for i in keep])
+    feasible = np.array(
+        [
+            str(rows[i][c_feas]).strip().lower() in ("1", "true", "yes") if c_feas else True
+            for i in keep
+        ]
+    )
     fig = _new_figure(8.4, 4.6)
     artists = {}
     with matplotlib.rc_context(STYLE):
         ax = fig.add_subplot(1, 1, 1)
-        (artists["scan"],) = ax.plot(x, y, color="#2b6cb0", lw=1.4, marker="o", ms=4,
-                                     label="best design launching then")
+        (artists["scan"],) = ax.plot(
+            x, y, color="#2b6cb0", lw=1.4, marker="o", ms=4, label="best design launching then"
+        )
         if c_feas and (~feasible).any():
             bad = [xi for xi, f in zip(x, feasible) if not f]
-            artists["infeasible"] = ax.scatter(bad, y[~feasible], s=50, facecolor="white",
-                                               edgecolor="#c53030", zorder=3,
-                                               label="no design met every limit")
-        best = int(np.argmin(np.where(feasible, y, np.inf))) if feasible.any() else int(
-            np.argmin(y))
-        artists["best"] = ax.scatter([x[best]], [y[best]], s=140, facecolor="none",
-                                     edgecolor="black", lw=1.4, zorder=4,
-                                     label=f"best: {x[best]:%Y-%m-%d}")
+            artists["infeasible"] = ax.scatter(
+                bad,
+                y[~feasible],
+                s=50,
+                facecolor="white",
+                edgecolor="#c53030",
+                zorder=3,
+                label="no design met every limit",
+            )
+        best = (
+            int(np.argmin(np.where(feasible, y, np.inf))) if feasible.any() else int(np.argmin(y))
+        )
+        artists["best"] = ax.scatter(
+            [x[best]],
+            [y[best]],
+            s=140,
+            facecolor="none",
+            edgecolor="black",
+            lw=1.4,
+            zorder=4,
+            label=f"best: {x[best]:%Y-%m-%d}",
+        )
         locator = mdates.AutoDateLocator()
         ax.xaxis.set_major_locator(locator)
         ax.xaxis.set_major_formatter(mdates.ConciseDateFormatter(locator))

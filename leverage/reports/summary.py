@@ -3,6 +3,7 @@
 Everything printed comes from the record, so the summary and the JSON cannot
 disagree (a test re-derives the summary's numbers from the JSON).
 """
+
 import math
 
 from leverage.about import CAUTION
@@ -39,13 +40,23 @@ def timeline(record) -> list[str]:
     def day(e):
         return (as_float(e["epoch_tdb_s"]) - t0) / DAY_S
 
-    rows = [("launch", ev["launch"], f"C3 {_d(record, 'c3')}, v-inf {_d(record, 'launch_vinf')}"),
-            ("DSM", ev["dsm"], f"{_d(record, 'dsm', 4)}"),
-            ("return flyby", ev["flyby"],
-             f"v-inf {_d(record, 'flyby_vinf_in')}, altitude {_d(record, 'flyby_altitude', 0)}")]
+    rows = [
+        ("launch", ev["launch"], f"C3 {_d(record, 'c3')}, v-inf {_d(record, 'launch_vinf')}"),
+        ("DSM", ev["dsm"], f"{_d(record, 'dsm', 4)}"),
+        (
+            "return flyby",
+            ev["flyby"],
+            f"v-inf {_d(record, 'flyby_vinf_in')}, altitude {_d(record, 'flyby_altitude', 0)}",
+        ),
+    ]
     if "arrival" in ev:
-        rows.append(("arrival", ev["arrival"],
-                     f"v-inf {_d(record, 'arrival_vinf')}" if "arrival_vinf" in der else ""))
+        rows.append(
+            (
+                "arrival",
+                ev["arrival"],
+                f"v-inf {_d(record, 'arrival_vinf')}" if "arrival_vinf" in der else "",
+            )
+        )
     lines = [f"  {'event':<14}{'date (UTC)':<22}{'day':>8}  key numbers"]
     for label, e, text in rows:
         lines.append(f"  {label:<14}{e['utc'][:19]:<22}{day(e):>8.1f}  {text}")
@@ -80,8 +91,9 @@ def _limit_text(m) -> str:
     if limit is None:
         return "-"
     if isinstance(limit, list):
-        return " .. ".join("open" if x is None else (x if isinstance(x, str) else f"{x:g}")
-                           for x in limit)
+        return " .. ".join(
+            "open" if x is None else (x if isinstance(x, str) else f"{x:g}") for x in limit
+        )
     return f"{limit:g}"
 
 
@@ -89,9 +101,11 @@ def limit_lines(record) -> list[str]:
     """Each limit: stated value, margin asked for, margin in the search model and in the
     verification (>= the margin asked: holds)."""
     checked = {b["limit"]: b for b in (record.get("verification") or {}).get("margins", [])}
-    lines = ["limits (margin from the stated limit; the search must keep the margin asked)",
-             f"  {'limit':<26}{'stated':>16} {'asked':>8} {'search model':>14} "
-             f"{'verification':>14}  unit"]
+    lines = [
+        "limits (margin from the stated limit; the search must keep the margin asked)",
+        f"  {'limit':<26}{'stated':>16} {'asked':>8} {'search model':>14} "
+        f"{'verification':>14}  unit",
+    ]
     for name, m in record["margins"].items():
         state = "ok" if m["holds"] else "VIOLATED"
         check = checked.get(name)
@@ -99,8 +113,10 @@ def limit_lines(record) -> list[str]:
             verified = "-"
         else:
             verified = _fmt(check["check"], 4) + ("" if check["holds"] else "!")
-        lines.append(f"  {name:<26}{_limit_text(m):>16} {m.get('required_margin', 0.0):>8g} "
-                     f"{_fmt(m['margin'], 4):>14} {verified:>14}  {m['unit']:<10} {state}")
+        lines.append(
+            f"  {name:<26}{_limit_text(m):>16} {m.get('required_margin', 0.0):>8g} "
+            f"{_fmt(m['margin'], 4):>14} {verified:>14}  {m['unit']:<10} {state}"
+        )
     if any(not c["holds"] for c in checked.values()):
         lines.append("  (! : the stated limit is broken in the verification)")
     return lines
@@ -115,12 +131,12 @@ def refined_line(refined) -> str:
     before, after = dsm.get("patched_conic"), dsm.get("value")
     change = ""
     if isinstance(before, (int, float)) and isinstance(after, (int, float)):
-        change = (f"; DSM {before:.4f} -> {after:.4f} km/s ({(after - before) * 1e3:+.1f} m/s)")
+        change = f"; DSM {before:.4f} -> {after:.4f} km/s ({(after - before) * 1e3:+.1f} m/s)"
     return f"refined   {refined.get('status', '?')} in an n-body model{change}; see refined/"
 
 
 def objective_line(record) -> str:
-    """"objective total DSM 0.811 km/s", "objective delivered mass 814.5 kg (maximised)":
+    """ "objective total DSM 0.811 km/s", "objective delivered mass 814.5 kg (maximised)":
     each objective in its own unit and natural sign (``leverage.record.objective``)."""
     shown = objective.from_record(record)
     parts = []
@@ -135,7 +151,7 @@ def objective_line(record) -> str:
 
 
 def _count(value, noun: str) -> str:
-    """"1 revolution", "0 revolutions", "2 revolutions"."""
+    """ "1 revolution", "0 revolutions", "2 revolutions"."""
     n = int(as_float(value))
     return f"{n} {noun}" if n == 1 else f"{n} {noun}s"
 
@@ -161,46 +177,62 @@ def render(record) -> str:
     ]
     run = record.get("run", {})
     if run:
-        lines.append(f"effort    {run.get('evaluations', 0):,} evaluations in "
-                     f"{_fmt(run.get('wall_time_s', 0.0), 1)} s")
+        lines.append(
+            f"effort    {run.get('evaluations', 0):,} evaluations in "
+            f"{_fmt(run.get('wall_time_s', 0.0), 1)} s"
+        )
     front = record.get("front")
     if front:
-        lines.append(f"front     {front['members']} feasible non-dominated designs trading "
-                     f"{', '.join(front['objectives'])}; hypervolume {_fmt(front['hypervolume'], 6)}"
-                     f" (reference {', '.join(_fmt(v, 3) for v in front['reference_point'])});"
-                     f" below: its knee point; all members in {front['file']}")
+        lines.append(
+            f"front     {front['members']} feasible non-dominated designs trading "
+            f"{', '.join(front['objectives'])}; hypervolume {_fmt(front['hypervolume'], 6)}"
+            f" (reference {', '.join(_fmt(v, 3) for v in front['reference_point'])});"
+            f" below: its knee point; all members in {front['file']}"
+        )
         if as_float(front.get("knee_distance")) < KNEE_MIN_DISTANCE:
-            lines.append("          no member stands out as a knee (knee distance "
-                         f"{_fmt(front['knee_distance'], 4)} of the front's scaled span: it "
-                         "does not bulge toward the ideal point); choose from front.csv")
+            lines.append(
+                "          no member stands out as a knee (knee distance "
+                f"{_fmt(front['knee_distance'], 4)} of the front's scaled span: it "
+                "does not bulge toward the ideal point); choose from front.csv"
+            )
     lines += [objective_line(record)] + model_lines(record) + ["", "timeline"] + timeline(record)
     lines += [
         "",
-        "launch    " + ", ".join([f"C3 {_d(record, 'c3')}", f"DLA {_d(record, 'dla', 2)}",
-                                  f"RLA {_d(record, 'rla', 2)}"]),
+        "launch    "
+        + ", ".join(
+            [f"C3 {_d(record, 'c3')}", f"DLA {_d(record, 'dla', 2)}", f"RLA {_d(record, 'rla', 2)}"]
+        ),
         "DSM       " + f"{_d(record, 'dsm', 4)}  (radial {_d(record, 'dsm_radial', 4)}, "
         f"along-track {_d(record, 'dsm_along_track', 4)}, normal {_d(record, 'dsm_normal', 4)})",
-        "          " + f"Lambert arc: {_count(record['derived']['lambert_revolutions']['value'], 'revolution')}, "
-        + ("low-path" if as_float(record['derived']['lambert_low_path']['value']) else "high-path")
+        "          "
+        + f"Lambert arc: {_count(record['derived']['lambert_revolutions']['value'], 'revolution')}, "
+        + ("low-path" if as_float(record["derived"]["lambert_low_path"]["value"]) else "high-path")
         + " root",
-        "flyby     " + f"altitude {_d(record, 'flyby_altitude', 1)}, turn {_d(record, 'turn_angle', 2)}"
+        "flyby     "
+        + f"altitude {_d(record, 'flyby_altitude', 1)}, turn {_d(record, 'turn_angle', 2)}"
         f" (largest allowed {_d(record, 'max_turn_angle', 2)}), B-plane angle "
         f"{_d(record, 'bplane_angle', 2)}",
-        "v-inf     " + f"launch {_d(record, 'launch_vinf')}, flyby in {_d(record, 'flyby_vinf_in')},"
+        "v-inf     "
+        + f"launch {_d(record, 'launch_vinf')}, flyby in {_d(record, 'flyby_vinf_in')},"
         f" out {_d(record, 'flyby_vinf_out')}, gain {_d(record, 'vinf_gain')}",
         "leverage  " + f"{_d(record, 'leverage_ratio', 2)}",
-        "outgoing  " + f"a {_d(record, 'outgoing_sma', 4)}, e {_d(record, 'outgoing_eccentricity', 4)}, "
+        "outgoing  "
+        + f"a {_d(record, 'outgoing_sma', 4)}, e {_d(record, 'outgoing_eccentricity', 4)}, "
         f"i {_d(record, 'outgoing_inclination', 3)}, perihelion {_d(record, 'outgoing_perihelion', 4)}, "
         f"aphelion {_d(record, 'outgoing_aphelion', 4)}",
     ]
     if p.get("target"):
-        lines.append("target    " + f"{p['target']}: arrival v-inf {_d(record, 'arrival_vinf')}, "
-                     f"flyby burn {_d(record, 'flyby_burn', 4)}, arrival burn "
-                     f"{_d(record, 'arrival_burn', 4)}, total dv {_d(record, 'total_dv', 4)}")
+        lines.append(
+            "target    " + f"{p['target']}: arrival v-inf {_d(record, 'arrival_vinf')}, "
+            f"flyby burn {_d(record, 'flyby_burn', 4)}, arrival burn "
+            f"{_d(record, 'arrival_burn', 4)}, total dv {_d(record, 'total_dv', 4)}"
+        )
     if p.get("vehicle"):
-        lines.append("mass      " + f"injected {_d(record, 'injected_mass', 1)} at C3 "
-                     f"{_d(record, 'c3')}, delivered {_d(record, 'delivered_mass', 1)} after "
-                     f"{_d(record, 'total_dv', 4)}")
+        lines.append(
+            "mass      " + f"injected {_d(record, 'injected_mass', 1)} at C3 "
+            f"{_d(record, 'c3')}, delivered {_d(record, 'delivered_mass', 1)} after "
+            f"{_d(record, 'total_dv', 4)}"
+        )
     lines += [""] + limit_lines(record)
     lines += ["", f"CAUTION: {CAUTION}", ""]
     return "\n".join(lines)

@@ -7,6 +7,7 @@ meets every limit (and, when the analyst gives one, has an objective at or below
 ``max_objective``): the dates over which the goal stays within budget, known to the
 width of a slice.
 """
+
 import csv
 import io
 import math
@@ -17,14 +18,34 @@ from leverage.core.constants import DAY_S
 from leverage.fileio import read_json
 from leverage.record.design import as_float
 
-COLUMNS = ["slice", "start_utc", "end_utc", "runs_done", "runs_planned", "best_objective",
-           "feasible", "launch_utc", "c3_km2_s2", "dla_deg", "dsm_km_s", "flyby_vinf_out_km_s",
-           "flyby_altitude_km", "total_dv_km_s", "best_seed", "result_folder"]
+COLUMNS = [
+    "slice",
+    "start_utc",
+    "end_utc",
+    "runs_done",
+    "runs_planned",
+    "best_objective",
+    "feasible",
+    "launch_utc",
+    "c3_km2_s2",
+    "dla_deg",
+    "dsm_km_s",
+    "flyby_vinf_out_km_s",
+    "flyby_altitude_km",
+    "total_dv_km_s",
+    "best_seed",
+    "result_folder",
+]
 
 # table column -> derived quantity in best.json
-KEY_NUMBERS = {"c3_km2_s2": "c3", "dla_deg": "dla", "dsm_km_s": "dsm",
-               "flyby_vinf_out_km_s": "flyby_vinf_out", "flyby_altitude_km": "flyby_altitude",
-               "total_dv_km_s": "total_dv"}
+KEY_NUMBERS = {
+    "c3_km2_s2": "c3",
+    "dla_deg": "dla",
+    "dsm_km_s": "dsm",
+    "flyby_vinf_out_km_s": "flyby_vinf_out",
+    "flyby_altitude_km": "flyby_altitude",
+    "total_dv_km_s": "total_dv",
+}
 
 
 def finished_record(folder, sha256: str, search: dict) -> dict | None:
@@ -35,8 +56,11 @@ def finished_record(folder, sha256: str, search: dict) -> dict | None:
         return None
     try:
         record = read_json(path)
-        ok = (record.get("status") == "complete" and record["problem"]["sha256"] == sha256
-              and all(record["search"].get(k) == v for k, v in search.items()))
+        ok = (
+            record.get("status") == "complete"
+            and record["problem"]["sha256"] == sha256
+            and all(record["search"].get(k) == v for k, v in search.items())
+        )
     except (ValueError, KeyError, TypeError, OSError):
         return None
     return record if ok else None
@@ -51,24 +75,34 @@ def best_of(records: list) -> tuple:
     """(record, index) of the best run of a slice, or (None, None)."""
     if not records:
         return None, None
-    index = min(range(len(records)),
-                key=lambda i: (not records[i]["feasible"], _objective(records[i])))
+    index = min(
+        range(len(records)), key=lambda i: (not records[i]["feasible"], _objective(records[i]))
+    )
     return records[index], index
 
 
 def slice_row(sl, planned: int, done: list, sweep_dir) -> dict:
     """A table row; ``done`` is [(seed, folder, record)] of the slice's finished runs."""
     row = {c: "" for c in COLUMNS}
-    row.update(slice=sl.number, start_utc=sl.start_utc, end_utc=sl.end_utc,
-               runs_done=len(done), runs_planned=planned)
+    row.update(
+        slice=sl.number,
+        start_utc=sl.start_utc,
+        end_utc=sl.end_utc,
+        runs_done=len(done),
+        runs_planned=planned,
+    )
     record, i = best_of([r for _, _, r in done])
     if record is None:
         return row
     seed, folder, _ = done[i]
     launch = {e["event"]: e for e in record["events"]}["launch"]
-    row.update(best_objective=repr(_objective(record)), feasible=int(record["feasible"]),
-               launch_utc=launch["utc"][:19].replace(" ", "T"), best_seed=seed,
-               result_folder=str(folder.relative_to(sweep_dir)))
+    row.update(
+        best_objective=repr(_objective(record)),
+        feasible=int(record["feasible"]),
+        launch_utc=launch["utc"][:19].replace(" ", "T"),
+        best_seed=seed,
+        result_folder=str(folder.relative_to(sweep_dir)),
+    )
     for column, name in KEY_NUMBERS.items():
         item = record["derived"].get(name)
         if item is not None and item["value"] is not None:
@@ -114,18 +148,23 @@ def _days(a: str, b: str) -> float:
 
 def period_lines(rows: list, max_objective: float | None, slice_days: float) -> list:
     rule = "best design meets every limit" + (
-        f" and objective <= {max_objective:g}" if max_objective is not None else "")
+        f" and objective <= {max_objective:g}" if max_objective is not None else ""
+    )
     periods = launch_periods(rows, max_objective)
     if not periods:
         return [f"launch period ({rule}): none among the finished slices"]
     lines = [f"launch period ({rule}):"]
     for first, last in periods:
-        lines.append(f"  {first['start_utc'][:10]} to {last['end_utc'][:10]} "
-                     f"({_days(first['start_utc'], last['end_utc']):.0f} days, slices "
-                     f"{first['slice']}-{last['slice']})")
-    lines.append(f"  Ends known to the slice width ({slice_days:g} days). A slice counts when "
-                 "the best design found launching in it qualifies; the search is stochastic, "
-                 "so more seeds can only widen a period.")
+        lines.append(
+            f"  {first['start_utc'][:10]} to {last['end_utc'][:10]} "
+            f"({_days(first['start_utc'], last['end_utc']):.0f} days, slices "
+            f"{first['slice']}-{last['slice']})"
+        )
+    lines.append(
+        f"  Ends known to the slice width ({slice_days:g} days). A slice counts when "
+        "the best design found launching in it qualifies; the search is stochastic, "
+        "so more seeds can only widen a period."
+    )
     return lines
 
 
@@ -134,16 +173,20 @@ def render(meta: dict, rows: list, status: str, max_objective: float | None) -> 
     s = meta["search"]
     done = sum(int(r["runs_done"]) for r in rows)
     planned = sum(int(r["runs_planned"]) for r in rows)
-    lines = [f"leverage sweep: {meta['problem']['name']} ({status}, {done}/{planned} runs)",
-             f"  CAUTION: {CAUTION}", "",
-             f"problem   {meta['problem']['file']}  (sha256 {meta['problem']['sha256'][:12]})",
-             f"window    {meta['window'][0]} to {meta['window'][1]} UTC in {len(rows)} slices "
-             f"of {meta['slice_days']:g} days",
-             f"search    {s['algorithm']}, {s['islands']} islands x {s['population']}, "
-             f"{s['generations']} generations, seeds {', '.join(map(str, meta['seeds']))}", "",
-             f"  {'slice':>5}  {'from':<10}  {'to':<10}  {'runs':>5}  {'objective':>10}  "
-             f"{'limits':<6}  {'launch (UTC)':<16}  {'C3 km2/s2':>9}  {'DSM km/s':>8}  "
-             f"{'vinf out km/s':>13}  folder"]
+    lines = [
+        f"leverage sweep: {meta['problem']['name']} ({status}, {done}/{planned} runs)",
+        f"  CAUTION: {CAUTION}",
+        "",
+        f"problem   {meta['problem']['file']}  (sha256 {meta['problem']['sha256'][:12]})",
+        f"window    {meta['window'][0]} to {meta['window'][1]} UTC in {len(rows)} slices "
+        f"of {meta['slice_days']:g} days",
+        f"search    {s['algorithm']}, {s['islands']} islands x {s['population']}, "
+        f"{s['generations']} generations, seeds {', '.join(map(str, meta['seeds']))}",
+        "",
+        f"  {'slice':>5}  {'from':<10}  {'to':<10}  {'runs':>5}  {'objective':>10}  "
+        f"{'limits':<6}  {'launch (UTC)':<16}  {'C3 km2/s2':>9}  {'DSM km/s':>8}  "
+        f"{'vinf out km/s':>13}  folder",
+    ]
     for r in rows:
         limits = "" if r["feasible"] == "" else ("met" if int(r["feasible"]) else "NOT")
         lines.append(
@@ -151,13 +194,16 @@ def render(meta: dict, rows: list, status: str, max_objective: float | None) -> 
             f"{r['runs_done']:>2}/{r['runs_planned']:<2}  {_num(r['best_objective'], 4):>10}  "
             f"{limits:<6}  {r['launch_utc'][:16].replace('T', ' '):<16}  "
             f"{_num(r['c3_km2_s2'], 3):>9}  {_num(r['dsm_km_s'], 4):>8}  "
-            f"{_num(r['flyby_vinf_out_km_s'], 3):>13}  {r['result_folder']}")
+            f"{_num(r['flyby_vinf_out_km_s'], 3):>13}  {r['result_folder']}"
+        )
     lines += [""] + period_lines(rows, max_objective, meta["slice_days"])
     best = [r for r in rows if r["best_objective"] != ""]
     if best:
         top = min(best, key=lambda r: (not int(r["feasible"]), float(r["best_objective"])))
-        lines.append(f"best overall: slice {top['slice']}, objective "
-                     f"{_num(top['best_objective'], 6)}, launch {top['launch_utc'][:19]} UTC, "
-                     f"{top['result_folder']}")
+        lines.append(
+            f"best overall: slice {top['slice']}, objective "
+            f"{_num(top['best_objective'], 6)}, launch {top['launch_utc'][:19]} UTC, "
+            f"{top['result_folder']}"
+        )
     lines += ["", f"CAUTION: {CAUTION}", ""]
     return "\n".join(lines)

@@ -7,14 +7,17 @@ in one line and the run's files stay as written. A file that cannot be written (
 full, folder gone read-only) ends the run with a ``WriteFault``, and SIGINT/SIGTERM
 with ``KeyboardInterrupt`` saying what is kept (exit 130 from the command).
 """
+
 from leverage.errors import WriteFault
 from leverage.reports import plots
 from leverage.verify import report as verify
 
 
 def _stopped(what: str, command: str, out_dir) -> str:
-    return (f"during the {what}; best.json and summary.txt are written; "
-            f"continue with: leverage {command} {out_dir}")
+    return (
+        f"during the {what}; best.json and summary.txt are written; "
+        f"continue with: leverage {command} {out_dir}"
+    )
 
 
 def pictures_and_verification(out_dir, record, echo=print):
@@ -30,11 +33,11 @@ def pictures_and_verification(out_dir, record, echo=print):
     except KeyboardInterrupt:
         raise KeyboardInterrupt(_stopped("pictures", "plot", out_dir)) from None
     except OSError as exc:
-        raise WriteFault(exc.filename or out_dir, exc,
-                         _stopped("pictures", "plot", out_dir).split("; ", 1)[1]) from None
+        raise WriteFault(
+            exc.filename or out_dir, exc, _stopped("pictures", "plot", out_dir).split("; ", 1)[1]
+        ) from None
     except Exception as exc:  # a picture must never cost the run its results
-        echo(f"pictures not made ({type(exc).__name__}: {exc}); "
-             f"try: leverage plot {out_dir}")
+        echo(f"pictures not made ({type(exc).__name__}: {exc}); try: leverage plot {out_dir}")
     try:
         report = verify.verify_record(record)
         verify.write(out_dir, report)
@@ -43,9 +46,11 @@ def pictures_and_verification(out_dir, record, echo=print):
     except KeyboardInterrupt:
         raise KeyboardInterrupt(_stopped("verification", "verify", out_dir)) from None
     except OSError as exc:
-        raise WriteFault(exc.filename or out_dir, exc,
-                         _stopped("verification", "verify", out_dir).split("; ", 1)[1]) from None
+        raise WriteFault(
+            exc.filename or out_dir,
+            exc,
+            _stopped("verification", "verify", out_dir).split("; ", 1)[1],
+        ) from None
     except Exception as exc:  # nor may the check
-        echo(f"verification not made ({type(exc).__name__}: {exc}); "
-             f"try: leverage verify {out_dir}")
+        echo(f"verification not made ({type(exc).__name__}: {exc}); try: leverage verify {out_dir}")
     return None

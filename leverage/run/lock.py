@@ -8,6 +8,7 @@ ends, however it ends (kill -9 included), so a stale lock file never blocks a la
 run or a ``--resume``. The file itself stays (removing it would open a race) and
 holds the process id of the last holder, for the message.
 """
+
 import fcntl
 import os
 from contextlib import contextmanager
@@ -31,9 +32,13 @@ def folder_lock(folder, what: str = "a run"):
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
             holder = os.pread(fd, 32, 0).decode("ascii", "replace").strip() or "?"
-            raise ProblemError(str(folder), "", NO_VALUE,
-                               f"in use by another leverage process (pid {holder}); wait for "
-                               f"it to end or pick another folder for {what}") from None
+            raise ProblemError(
+                str(folder),
+                "",
+                NO_VALUE,
+                f"in use by another leverage process (pid {holder}); wait for "
+                f"it to end or pick another folder for {what}",
+            ) from None
         try:
             os.ftruncate(fd, 0)
             os.pwrite(fd, f"{os.getpid()}\n".encode("ascii"), 0)

@@ -8,6 +8,7 @@ follows names the path that failed, the free space there, and where the design i
 The checkpoint is written atomically, so the last whole one stays and ``--resume``
 continues from it once there is room.
 """
+
 import json
 import os
 import tempfile
@@ -33,10 +34,16 @@ def write_results(out_dir: Path, record: dict, text: str, fault: OSError | None 
     if kept is None:
         kept = _elsewhere(record)
     failed = getattr(fault, "filename", None) or out_dir
-    where = (f"the best design so far is in {kept}" if kept is not None
-             else "the best design so far could not be written anywhere")
-    raise WriteFault(failed, fault, f"{where}; free space and continue with: leverage run "
-                                    f"PROBLEM --resume {out_dir}")
+    where = (
+        f"the best design so far is in {kept}"
+        if kept is not None
+        else "the best design so far could not be written anywhere"
+    )
+    raise WriteFault(
+        failed,
+        fault,
+        f"{where}; free space and continue with: leverage run PROBLEM --resume {out_dir}",
+    )
 
 
 def _elsewhere(record: dict) -> Path | None:

@@ -9,6 +9,7 @@ design found so far is still written, marked "interrupted" (``RunOutcome.status`
 ``run(..., resume=checkpoint.load(folder))`` continues a run exactly where its last
 checkpoint left it: the same champion as a run that was never stopped.
 """
+
 import csv
 import inspect
 import io
@@ -43,9 +44,13 @@ def settings_from(problem, overrides: dict | None = None) -> SearchSettings:
     given = {k: v for k, v in (overrides or {}).items() if v is not None}
     values.update(given)
     if "algorithm" in given or "population" in given:  # the file's own pair was checked
-        check_algorithm("command line", "--algorithm" if "algorithm" in given else
-                        "--population", given.get("algorithm", values["algorithm"]),
-                        problem.values["goal"]["kind"] == "front", values["population"])
+        check_algorithm(
+            "command line",
+            "--algorithm" if "algorithm" in given else "--population",
+            given.get("algorithm", values["algorithm"]),
+            problem.values["goal"]["kind"] == "front",
+            values["population"],
+        )
     # Islands evolve whole migration intervals: never more per interval than asked in
     # all, and the total rounded up to whole intervals so the record says what ran.
     per = min(values["generations_per_migration"], values["generations"])
@@ -71,8 +76,10 @@ class Progress:
             return
         elapsed = time.monotonic() - self.start
         best_text = self.shown.text(best) if self.shown is not None else f"{best:.6g}"
-        text = (f"evolution {done}/{self.total}  best {best_text}  "
-                f"{evaluations:,} evaluations  {elapsed:.1f} s")
+        text = (
+            f"evolution {done}/{self.total}  best {best_text}  "
+            f"{evaluations:,} evaluations  {elapsed:.1f} s"
+        )
         if self.tty:
             self.stream.write("\r" + text.ljust(78))
             if done >= self.total:
@@ -197,8 +204,16 @@ def islands_evolved(search, evolver) -> str:
     return "this process (batch evaluation)"
 
 
-def finish(problem, settings: SearchSettings, compiled, udp, search, status: str,
-           front_path: Path | None = None, run_info: dict | None = None) -> dict:
+def finish(
+    problem,
+    settings: SearchSettings,
+    compiled,
+    udp,
+    search,
+    status: str,
+    front_path: Path | None = None,
+    run_info: dict | None = None,
+) -> dict:
     """Polish the champion (only when the search completed) and build the result record."""
     x, f = search.champion()
     polish_evals = 0
@@ -208,16 +223,19 @@ def finish(problem, settings: SearchSettings, compiled, udp, search, status: str
     record.update(design_record(compiled, udp, x))
     if hasattr(search, "write_front") and front_path is not None:
         record["front"] = search.write_front(front_path, compiled)
-    record["run"] = {"evaluations": int(search.state.evaluations + polish_evals),
-                     "polish_evaluations": int(polish_evals),
-                     "evolutions": search.state.evolution,
-                     "wall_time_s": round(time.monotonic() - search.start_time, 3)}
+    record["run"] = {
+        "evaluations": int(search.state.evaluations + polish_evals),
+        "polish_evaluations": int(polish_evals),
+        "evolutions": search.state.evolution,
+        "wall_time_s": round(time.monotonic() - search.start_time, 3),
+    }
     record["run"].update(run_info or {})
     return record
 
 
-def evolver_for(settings: SearchSettings, workers: int | None = None,
-                cluster_spec: str | None = None):
+def evolver_for(
+    settings: SearchSettings, workers: int | None = None, cluster_spec: str | None = None
+):
     """Where the islands evolve: ipyparallel engines (``--cluster``, checked first), else
     worker processes on this machine (``--workers``, default one per core up to the
     island count), else this process."""
@@ -235,15 +253,23 @@ def resumed_settings(saved: dict, overrides: dict, done_evolutions: int) -> Sear
     for name, value in overrides.items():
         if value is None or name == "generations" or value == values.get(name):
             continue
-        raise ProblemError("command line", f"--{name}", value,
-                           f"the run being resumed used {values.get(name)}; a resumed run "
-                           "keeps its search settings (only --generations may grow)")
+        raise ProblemError(
+            "command line",
+            f"--{name}",
+            value,
+            f"the run being resumed used {values.get(name)}; a resumed run "
+            "keeps its search settings (only --generations may grow)",
+        )
     if overrides.get("generations") is not None:
         per = values["generations_per_migration"]
         wanted = -(-overrides["generations"] // per) * per
         if wanted < done_evolutions * per:
-            raise ProblemError("command line", "--generations", overrides["generations"],
-                               f"the run already did {done_evolutions * per} generations")
+            raise ProblemError(
+                "command line",
+                "--generations",
+                overrides["generations"],
+                f"the run already did {done_evolutions * per} generations",
+            )
         values["generations"] = wanted
     return SearchSettings(**{f.name: values[f.name] for f in fields(SearchSettings)})
 
@@ -271,13 +297,24 @@ class RunOutcome:
     def broken_in_verification(self) -> str:
         """The limits the verification breaks, as one line."""
         broken = (self.record or {}).get("verification", {}).get("broken", [])
-        return ", ".join(f"{b['limit']} (margin {b['check']:.6g} {b['unit']})".replace(" )", ")")
-                         if isinstance(b.get("check"), float) else b["limit"] for b in broken)
+        return ", ".join(
+            f"{b['limit']} (margin {b['check']:.6g} {b['unit']})".replace(" )", ")")
+            if isinstance(b.get("check"), float)
+            else b["limit"]
+            for b in broken
+        )
 
 
-def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | None = None,
-        echo=print, evolver=None, resume: dict | None = None,
-        after: bool = True) -> RunOutcome:
+def run(
+    problem,
+    settings: SearchSettings,
+    out_dir: Path,
+    progress: Progress | None = None,
+    echo=print,
+    evolver=None,
+    resume: dict | None = None,
+    after: bool = True,
+) -> RunOutcome:
     """Run the search and write the run folder.
 
     ``evolver`` (``leverage.search.islands``) says where islands evolve (default: worker
@@ -307,11 +344,15 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
                 if resume is not None:
                     checkpoint.restore(search, resume)
                     run_info["resumed_from_evolution"] = search.state.evolution
-                    progress.note(f"resuming at evolution {search.state.evolution}/"
-                                  f"{settings.evolutions} from {out_dir / checkpoint.FILE_NAME}")
-                log = ConvergenceLog(out_dir / "convergence.csv",
-                                     getattr(search, "log_columns", LOG_COLUMNS),
-                                     search.state.history)
+                    progress.note(
+                        f"resuming at evolution {search.state.evolution}/"
+                        f"{settings.evolutions} from {out_dir / checkpoint.FILE_NAME}"
+                    )
+                log = ConvergenceLog(
+                    out_dir / "convergence.csv",
+                    getattr(search, "log_columns", LOG_COLUMNS),
+                    search.state.history,
+                )
                 saver = checkpoint.Checkpointer(out_dir, problem, settings)
                 try:
                     while not search.done:
@@ -320,8 +361,11 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
                         with stop.deferred():
                             log.write(rows)
                             saver.save(search, final=search.done)
-                        progress.update(search.state.evolution, search.champion()[1][0],
-                                        search.state.evaluations)
+                        progress.update(
+                            search.state.evolution,
+                            search.champion()[1][0],
+                            search.state.evaluations,
+                        )
                 finally:
                     log.close()
             except (KeyboardInterrupt, WorkerLost, OSError) as exc:
@@ -329,17 +373,26 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
                 status = "interrupted"
                 evolver.abort()
                 fault = exc if isinstance(exc, OSError) else None
-                why = f"worker lost: {exc}" if isinstance(exc, WorkerLost) else (
-                    f"cannot write {exc.filename or out_dir}: {exc.strerror or exc}"
-                    if fault else f"{stop.received or 'SIGINT'} received")
+                why = (
+                    f"worker lost: {exc}"
+                    if isinstance(exc, WorkerLost)
+                    else (
+                        f"cannot write {exc.filename or out_dir}: {exc.strerror or exc}"
+                        if fault
+                        else f"{stop.received or 'SIGINT'} received"
+                    )
+                )
                 if search is None and fault is not None:
                     raise WriteFault(exc.filename or out_dir, exc, "nothing was run") from None
                 if search is None:
-                    progress.note(f"interrupted ({why}) before the search started; "
-                                  "nothing to write")
+                    progress.note(
+                        f"interrupted ({why}) before the search started; nothing to write"
+                    )
                     return RunOutcome(out_dir, "not started", None)
-                progress.note(f"interrupted ({why}) at evolution {search.state.evolution}: "
-                              "writing the best design found so far")
+                progress.note(
+                    f"interrupted ({why}) at evolution {search.state.evolution}: "
+                    "writing the best design found so far"
+                )
         finally:
             stop.hold()  # shutting the workers down is not to be cut short
             evolver.close()
@@ -347,14 +400,16 @@ def run(problem, settings: SearchSettings, out_dir: Path, progress: Progress | N
             status = "interrupted"  # asked to stop while the workers shut down: no polish
         stop.arm()
         try:
-            record = finish(problem, settings, compiled, udp, search, status,
-                            out_dir / "front.csv", run_info)
+            record = finish(
+                problem, settings, compiled, udp, search, status, out_dir / "front.csv", run_info
+            )
         except KeyboardInterrupt:  # during the polish: keep the unpolished champion
             stop.hold()
             status = "interrupted"
             progress.note("interrupted during the polish: writing the unpolished best design")
-            record = finish(problem, settings, compiled, udp, search, status,
-                            out_dir / "front.csv", run_info)
+            record = finish(
+                problem, settings, compiled, udp, search, status, out_dir / "front.csv", run_info
+            )
         stop.hold()
         text = write_record(out_dir, record, fault)  # WriteFault after a fault
     if status == "complete" and after:  # pictures and verification; a failure is one line

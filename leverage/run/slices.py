@@ -7,6 +7,7 @@ boundary instant and the last one may be shorter. A slice's problem file is the
 original text with only the two window lines replaced, so its hash, its copy in
 every run folder and ``leverage run`` on it all behave like any problem file.
 """
+
 import math
 import re
 from dataclasses import dataclass
@@ -45,20 +46,25 @@ def _format(moment: datetime, dates_only: bool) -> str:
 
 def window_slices(problem, slice_days: float) -> list[Slice]:
     """The launch window of ``problem`` cut into spans of ``slice_days`` days."""
-    if not (isinstance(slice_days, (int, float)) and math.isfinite(slice_days)
-            and slice_days > 0):
+    if not (isinstance(slice_days, (int, float)) and math.isfinite(slice_days) and slice_days > 0):
         raise ProblemError("command line", "--slice-days", slice_days, "must be a number above 0")
     launch = problem.values["launch"]
     t_open, t_close = parse_utc(launch["window_open_utc"]), parse_utc(launch["window_close_utc"])
     width = timedelta(days=slice_days)
     count = max(1, math.ceil((t_close - t_open) / width - 1e-9))
     if count > MAX_SLICES:
-        raise ProblemError("command line", "--slice-days", slice_days,
-                           f"gives {count} slices of the launch window (at most {MAX_SLICES})")
+        raise ProblemError(
+            "command line",
+            "--slice-days",
+            slice_days,
+            f"gives {count} slices of the launch window (at most {MAX_SLICES})",
+        )
     bounds = [min(t_open + k * width, t_close) for k in range(count)] + [t_close]
     dates_only = all(b.hour == b.minute == b.second == b.microsecond == 0 for b in bounds)
-    return [Slice(k + 1, _format(bounds[k], dates_only), _format(bounds[k + 1], dates_only))
-            for k in range(count)]
+    return [
+        Slice(k + 1, _format(bounds[k], dates_only), _format(bounds[k + 1], dates_only))
+        for k in range(count)
+    ]
 
 
 _SECTION = re.compile(r"^\s*\[\s*([A-Za-z0-9_.-]+)\s*\]\s*(#.*)?$")
@@ -76,9 +82,13 @@ def replace_key(text: str, source: str, section: str, key: str, value: str) -> s
         elif current == section and pattern.match(line):
             hits.append(i)
     if len(hits) != 1:
-        raise ProblemError(source, f"[{section}] {key}", NO_VALUE,
-                           "a sweep needs this key on its own line in the [launch] table "
-                           "(to write the slice problem files)")
+        raise ProblemError(
+            source,
+            f"[{section}] {key}",
+            NO_VALUE,
+            "a sweep needs this key on its own line in the [launch] table "
+            "(to write the slice problem files)",
+        )
     i = hits[0]
     indent = pattern.match(lines[i]).group(1)
     ending = "\n" if lines[i].endswith("\n") else ""
@@ -90,8 +100,10 @@ def slice_text(problem, sl: Slice, total: int) -> str:
     """The problem file of one slice (see module docstring)."""
     text = replace_key(problem.text, problem.source, "launch", "window_open_utc", sl.start_utc)
     text = replace_key(text, problem.source, "launch", "window_close_utc", sl.end_utc)
-    header = (f"# Launch slice {sl.number} of {total} of {problem.source}, written by "
-              f"leverage sweep: launch from {sl.start_utc} to {sl.end_utc} UTC.\n")
+    header = (
+        f"# Launch slice {sl.number} of {total} of {problem.source}, written by "
+        f"leverage sweep: launch from {sl.start_utc} to {sl.end_utc} UTC.\n"
+    )
     return header + text
 
 

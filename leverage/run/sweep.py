@@ -18,6 +18,7 @@ gives, and runs spread over worker processes on this machine (``--workers``) or 
 ipyparallel engines (``--cluster``) without nesting process pools. A run interrupted
 mid-way is lost (it restarts on resume); finished runs never are.
 """
+
 import socket
 import tempfile
 import time
@@ -50,8 +51,8 @@ class Task:
 
     slice_number: int
     seed: int
-    folder: str          # relative to the sweep folder
-    problem: object      # leverage.problem.Problem of the slice
+    folder: str  # relative to the sweep folder
+    problem: object  # leverage.problem.Problem of the slice
     settings: SearchSettings
     threads: int | None = None  # numba threads in a worker (None: leave as is)
 
@@ -65,6 +66,7 @@ def solve(task: Task) -> dict:
     try:
         if task.threads:
             import numba
+
             numba.set_num_threads(max(1, min(task.threads, numba.config.NUMBA_NUM_THREADS)))
         problem, settings = task.problem, task.settings
         evolver = SerialIslands()
@@ -74,11 +76,23 @@ def solve(task: Task) -> dict:
         where = islands_evolved(search, evolver)
         with tempfile.TemporaryDirectory() as tmp:
             front_path = Path(tmp) / "front.csv"
-            record = finish(problem, settings, compiled, udp, search, "complete", front_path,
-                            {"islands_evolved": where, "host": socket.gethostname()})
+            record = finish(
+                problem,
+                settings,
+                compiled,
+                udp,
+                search,
+                "complete",
+                front_path,
+                {"islands_evolved": where, "host": socket.gethostname()},
+            )
             front = front_path.read_text(encoding="utf-8") if front_path.exists() else None
-        return {"record": record, "columns": getattr(search, "log_columns", LOG_COLUMNS),
-                "rows": [asdict(r) for r in search.state.history], "front_csv": front}
+        return {
+            "record": record,
+            "columns": getattr(search, "log_columns", LOG_COLUMNS),
+            "rows": [asdict(r) for r in search.state.history],
+            "front_csv": front,
+        }
     except Exception as exc:  # reported by the parent; KeyboardInterrupt passes
         return {"error": f"{type(exc).__name__}: {exc}"}
 
@@ -109,6 +123,7 @@ class SweepProgress:
 
     def __init__(self, total_runs: int, total_slices: int, stream=None, enabled=True):
         import sys
+
         self.total_runs, self.total_slices = total_runs, total_slices
         self.stream = stream or sys.stderr
         self.enabled = enabled
@@ -122,27 +137,42 @@ class SweepProgress:
     def update(self, runs_done: int, rows: list):
         slices_done = sum(1 for r in rows if int(r["runs_done"]) == int(r["runs_planned"]))
         best = [r for r in rows if r["best_objective"] != ""]
-        text = (f"sweep: runs {runs_done}/{self.total_runs}, slices done "
-                f"{slices_done}/{self.total_slices}")
+        text = (
+            f"sweep: runs {runs_done}/{self.total_runs}, slices done "
+            f"{slices_done}/{self.total_slices}"
+        )
         if best:
             top = min(best, key=lambda r: (not int(r["feasible"]), float(r["best_objective"])))
             limits = "meets every limit" if int(top["feasible"]) else "limits NOT met"
-            text += (f", best so far {float(top['best_objective']):.6g} (slice {top['slice']}, "
-                     f"{top['start_utc'][:10]}, {limits})")
+            text += (
+                f", best so far {float(top['best_objective']):.6g} (slice {top['slice']}, "
+                f"{top['start_utc'][:10]}, {limits})"
+            )
         self.line(text + f"  {time.monotonic() - self.start:.1f} s")
 
 
 class Sweep:
     """A sweep folder: its plan (slices, tasks), what is done, and its table."""
 
-    def __init__(self, problem, settings: SearchSettings, slice_days: float, seeds: int,
-                 out_dir: Path, max_objective: float | None = None):
+    def __init__(
+        self,
+        problem,
+        settings: SearchSettings,
+        slice_days: float,
+        seeds: int,
+        out_dir: Path,
+        max_objective: float | None = None,
+    ):
         if seeds < 1:
             raise ProblemError("command line", "--seeds", seeds, "must be at least 1")
         if settings.seed + seeds - 1 > MAX_SEED:
-            raise ProblemError("command line", "--seeds", seeds,
-                               f"seeds {settings.seed}..{settings.seed + seeds - 1} pass the "
-                               f"largest seed, {MAX_SEED}")
+            raise ProblemError(
+                "command line",
+                "--seeds",
+                seeds,
+                f"seeds {settings.seed}..{settings.seed + seeds - 1} pass the "
+                f"largest seed, {MAX_SEED}",
+            )
         self.problem, self.settings = problem, settings
         self.slice_days, self.max_objective = float(slice_days), max_objective
         self.out_dir = Path(out_dir)
@@ -150,10 +180,13 @@ class Sweep:
         self.seeds = [settings.seed + k for k in range(seeds)]
         launch = problem.values["launch"]
         self.meta = {
-            "format": FORMAT, "caution": CAUTION,
+            "format": FORMAT,
+            "caution": CAUTION,
             "problem": {"name": problem.name, "file": problem.source, "sha256": problem.sha256},
             "window": [launch["window_open_utc"], launch["window_close_utc"]],
-            "slice_days": self.slice_days, "seeds": self.seeds, "search": asdict(settings),
+            "slice_days": self.slice_days,
+            "seeds": self.seeds,
+            "search": asdict(settings),
             "slices": [asdict(s) for s in self.slices],
         }
 
@@ -162,21 +195,29 @@ class Sweep:
         """Refuse in one line if the folder's sweep.json asked for something else."""
         path = self.out_dir / "sweep.json"
         if not path.is_file():
-            raise ProblemError(str(self.out_dir), "", NO_VALUE,
-                               "no sweep.json here: not a sweep folder")
+            raise ProblemError(
+                str(self.out_dir), "", NO_VALUE, "no sweep.json here: not a sweep folder"
+            )
         try:
             old = read_json(path)
         except ValueError as exc:
             raise ProblemError(str(path), "", NO_VALUE, f"unreadable JSON ({exc})") from None
-        for key, label in (("problem", "problem file"), ("slice_days", "--slice-days"),
-                           ("seeds", "--seeds/--seed"), ("search", "search settings")):
+        for key, label in (
+            ("problem", "problem file"),
+            ("slice_days", "--slice-days"),
+            ("seeds", "--seeds/--seed"),
+            ("search", "search settings"),
+        ):
             mine = self.meta[key]["sha256"] if key == "problem" else self.meta[key]
             theirs = old.get(key, {}).get("sha256") if key == "problem" else old.get(key)
             if mine != theirs:
-                raise ProblemError(str(path), key, theirs if key != "problem" else
-                                   str(theirs)[:12],
-                                   f"the sweep being resumed differs in its {label} "
-                                   f"(now {mine if key != 'problem' else str(mine)[:12]})")
+                raise ProblemError(
+                    str(path),
+                    key,
+                    theirs if key != "problem" else str(theirs)[:12],
+                    f"the sweep being resumed differs in its {label} "
+                    f"(now {mine if key != 'problem' else str(mine)[:12]})",
+                )
 
     def prepare(self):
         """Write sweep.json and the slice problem files; make the tasks."""
@@ -186,9 +227,17 @@ class Sweep:
         self.out_dir.mkdir(parents=True, exist_ok=True)
         write_json(self.out_dir / "sweep.json", self.meta)
         problems = write_slice_problems(self.problem, self.slices, self.out_dir / "slices")
-        self.tasks = [Task(sl.number, seed, f"runs/{sl.name}-seed-{seed}", prob,
-                           replace(self.settings, seed=seed))
-                      for sl, prob in zip(self.slices, problems) for seed in self.seeds]
+        self.tasks = [
+            Task(
+                sl.number,
+                seed,
+                f"runs/{sl.name}-seed-{seed}",
+                prob,
+                replace(self.settings, seed=seed),
+            )
+            for sl, prob in zip(self.slices, problems)
+            for seed in self.seeds
+        ]
         self._done = {}  # folder -> record of a finished run
         self._redo = False  # True: runs already on disk do not count (--force)
 
@@ -196,8 +245,9 @@ class Sweep:
         """The record of a finished run (read from disk once, then kept)."""
         record = self._done.get(task.folder)
         if record is None and not self._redo:
-            record = sweep_report.finished_record(self.out_dir / task.folder,
-                                                  task.problem.sha256, asdict(task.settings))
+            record = sweep_report.finished_record(
+                self.out_dir / task.folder, task.problem.sha256, asdict(task.settings)
+            )
             if record is not None:
                 self._done[task.folder] = record
         return record
@@ -206,8 +256,11 @@ class Sweep:
         out = []
         for sl in self.slices:
             mine = [t for t in self.tasks if t.slice_number == sl.number]
-            done = [(t.seed, self.out_dir / t.folder, r) for t in mine
-                    if (r := self.finished(t)) is not None]
+            done = [
+                (t.seed, self.out_dir / t.folder, r)
+                for t in mine
+                if (r := self.finished(t)) is not None
+            ]
             out.append(sweep_report.slice_row(sl, len(mine), done, self.out_dir))
         return out
 
@@ -222,14 +275,21 @@ class Sweep:
         if picture:
             try:
                 from leverage.reports import plots
+
                 plots.launch_window({"problem": self.meta["problem"]}, self.out_dir)
             except Exception as exc:  # a picture must never cost the sweep its table
                 return text + f"\n(launch_window.png not made: {type(exc).__name__}: {exc})\n"
         return text
 
     # ---------------------------------------------------------------- running
-    def run(self, workers: int | None = None, cluster_spec: str | None = None,
-            progress: SweepProgress | None = None, redo: bool = False, echo=print) -> str:
+    def run(
+        self,
+        workers: int | None = None,
+        cluster_spec: str | None = None,
+        progress: SweepProgress | None = None,
+        redo: bool = False,
+        echo=print,
+    ) -> str:
         """Run every task not already done; returns how the sweep ended: "interrupted",
         "incomplete" (some runs failed), "feasible" or "infeasible" (no slice's best
         design meets every limit)."""
@@ -238,8 +298,9 @@ class Sweep:
         progress = progress or SweepProgress(len(self.tasks), len(self.slices))
         done = len(self.tasks) - len(pending)
         if done:
-            progress.line(f"sweep: {done} of {len(self.tasks)} runs already done, "
-                          f"{len(pending)} to go")
+            progress.line(
+                f"sweep: {done} of {len(self.tasks)} runs already done, {len(pending)} to go"
+            )
         status, failures = "complete", []
 
         def on_result(task, result):
@@ -262,10 +323,15 @@ class Sweep:
             except (KeyboardInterrupt, WorkerLost) as exc:
                 stop.hold()
                 status = "interrupted"
-                why = (f"worker lost: {exc}" if isinstance(exc, WorkerLost)
-                       else f"{stop.received or 'SIGINT'} received")
-                progress.line(f"sweep interrupted ({why}): finished runs are kept; "
-                              f"continue with --resume {self.out_dir}")
+                why = (
+                    f"worker lost: {exc}"
+                    if isinstance(exc, WorkerLost)
+                    else f"{stop.received or 'SIGINT'} received"
+                )
+                progress.line(
+                    f"sweep interrupted ({why}): finished runs are kept; "
+                    f"continue with --resume {self.out_dir}"
+                )
             stop.hold()
             if status == "complete" and failures:
                 status = "incomplete"

@@ -30,6 +30,7 @@ then the dict's keys and their types. The dict:
 
 A pickle runs code when loaded: only resume from checkpoints you wrote yourself.
 """
+
 import hashlib
 import pickle
 import re
@@ -45,9 +46,16 @@ FILE_NAME = "checkpoint.pickle"
 FORMAT = "leverage-checkpoint/2"
 _HEADER = re.compile(rb"leverage-checkpoint/(\d+) sha256=([0-9a-f]{64}) bytes=(\d+)\n")
 # Keys a checkpoint must hold, with their types (checked before any is used).
-REQUIRED_KEYS = {"format": str, "problem_sha256": str, "problem_name": str, "settings": dict,
-                 "island_seeds": list, "search_class": str, "state": object,
-                 "elapsed_s": (int, float)}
+REQUIRED_KEYS = {
+    "format": str,
+    "problem_sha256": str,
+    "problem_name": str,
+    "settings": dict,
+    "island_seeds": list,
+    "search_class": str,
+    "state": object,
+    "elapsed_s": (int, float),
+}
 SYNC_EVERY_S = 10.0
 
 
@@ -104,36 +112,58 @@ def load(folder) -> dict:
     """The checkpoint dict of a run folder, or a one-line ProblemError."""
     path = Path(folder) / FILE_NAME
     if not path.is_file():
-        raise ProblemError(str(folder), "", NO_VALUE,
-                           f"no {FILE_NAME} here: not a run folder this version can resume")
+        raise ProblemError(
+            str(folder),
+            "",
+            NO_VALUE,
+            f"no {FILE_NAME} here: not a run folder this version can resume",
+        )
     try:
         raw = path.read_bytes()
     except OSError as exc:
-        raise ProblemError(str(path), "", NO_VALUE,
-                           f"unreadable checkpoint ({exc.strerror or exc})") from None
+        raise ProblemError(
+            str(path), "", NO_VALUE, f"unreadable checkpoint ({exc.strerror or exc})"
+        ) from None
     head = _HEADER.match(raw[:200])
     if head is None:
-        raise ProblemError(str(path), "", NO_VALUE,
-                           f"unreadable checkpoint: not a {FORMAT} file (no header with a "
-                           "checksum; written by another program or an older version)")
+        raise ProblemError(
+            str(path),
+            "",
+            NO_VALUE,
+            f"unreadable checkpoint: not a {FORMAT} file (no header with a "
+            "checksum; written by another program or an older version)",
+        )
     if int(head.group(1)) != int(FORMAT.rsplit("/", 1)[1]):
-        raise ProblemError(str(path), "format", f"leverage-checkpoint/{int(head.group(1))}",
-                           f"unreadable checkpoint: this version reads {FORMAT}")
-    body = raw[head.end():]
-    if len(body) != int(head.group(3)) or hashlib.sha256(body).hexdigest() != \
-            head.group(2).decode("ascii"):
-        raise ProblemError(str(path), "", NO_VALUE,
-                           f"damaged checkpoint: {len(body):,} bytes whose SHA-256 does not "
-                           f"match its header ({int(head.group(3)):,} bytes); not resumed")
+        raise ProblemError(
+            str(path),
+            "format",
+            f"leverage-checkpoint/{int(head.group(1))}",
+            f"unreadable checkpoint: this version reads {FORMAT}",
+        )
+    body = raw[head.end() :]
+    if len(body) != int(head.group(3)) or hashlib.sha256(body).hexdigest() != head.group(2).decode(
+        "ascii"
+    ):
+        raise ProblemError(
+            str(path),
+            "",
+            NO_VALUE,
+            f"damaged checkpoint: {len(body):,} bytes whose SHA-256 does not "
+            f"match its header ({int(head.group(3)):,} bytes); not resumed",
+        )
     try:
         data = pickle.loads(body)
     except Exception as exc:
-        raise ProblemError(str(path), "", NO_VALUE,
-                           f"unreadable checkpoint ({type(exc).__name__}: {exc})") from None
+        raise ProblemError(
+            str(path), "", NO_VALUE, f"unreadable checkpoint ({type(exc).__name__}: {exc})"
+        ) from None
     if not isinstance(data, dict) or data.get("format") != FORMAT:
-        raise ProblemError(str(path), "format", data.get("format", NO_VALUE)
-                           if isinstance(data, dict) else NO_VALUE,
-                           f"not a {FORMAT} checkpoint")
+        raise ProblemError(
+            str(path),
+            "format",
+            data.get("format", NO_VALUE) if isinstance(data, dict) else NO_VALUE,
+            f"not a {FORMAT} checkpoint",
+        )
     for key, kind in REQUIRED_KEYS.items():
         if key not in data:
             raise ProblemError(str(path), key, NO_VALUE, "missing from the checkpoint")
@@ -141,12 +171,20 @@ def load(folder) -> dict:
             raise ProblemError(str(path), key, data[key], "has the wrong type")
     missing = [f.name for f in fields(SearchSettings) if f.name not in data["settings"]]
     if missing:
-        raise ProblemError(str(path), f"settings.{missing[0]}", NO_VALUE,
-                           "missing from the checkpoint's search settings")
+        raise ProblemError(
+            str(path),
+            f"settings.{missing[0]}",
+            NO_VALUE,
+            "missing from the checkpoint's search settings",
+        )
     state = data["state"]
     if not all(hasattr(state, a) for a in ("evolution", "evaluations", "history")):
-        raise ProblemError(str(path), "state", NO_VALUE,
-                           "is not a search state (no evolution, evaluations, history)")
+        raise ProblemError(
+            str(path),
+            "state",
+            NO_VALUE,
+            "is not a search state (no evolution, evaluations, history)",
+        )
     return data
 
 
@@ -154,7 +192,11 @@ def restore(search, data: dict) -> None:
     """Put a loaded checkpoint's state into a freshly made search of the same class."""
     kind = f"{type(search).__module__}.{type(search).__qualname__}"
     if kind != data["search_class"]:
-        raise ProblemError(FILE_NAME, "search_class", data["search_class"],
-                           f"the checkpoint was written by another search than {kind}")
+        raise ProblemError(
+            FILE_NAME,
+            "search_class",
+            data["search_class"],
+            f"the checkpoint was written by another search than {kind}",
+        )
     search.state = data["state"]
     search.start_time = time.monotonic() - float(data["elapsed_s"])

@@ -10,6 +10,7 @@ machine that runs ``leverage`` when the controller runs elsewhere.
 engine is registered, and that the engines can import this package (they unpickle
 the problem by importing ``leverage``); each failure is one line naming ``--cluster``.
 """
+
 from pathlib import Path
 
 from leverage.errors import ProblemError
@@ -48,24 +49,33 @@ def connect(spec: str, timeout_s: float = CONNECT_TIMEOUT_S, engine_wait_s: floa
         client = ipyparallel.Client(**kwargs, timeout=timeout_s)
     except Exception as exc:  # ipyparallel raises OSError, TimeoutError, ValueError...
         reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        raise ProblemError("command line", "--cluster", spec,
-                           f"cannot reach an ipyparallel controller ({reason})") from None
+        raise ProblemError(
+            "command line", "--cluster", spec, f"cannot reach an ipyparallel controller ({reason})"
+        ) from None
     try:
         try:
             client.wait_for_engines(1, timeout=engine_wait_s)
         except Exception:
-            raise ProblemError("command line", "--cluster", spec,
-                               f"controller answers but no engine registered within "
-                               f"{engine_wait_s:g} s; start engines with ipengine or "
-                               f"ipcluster") from None
+            raise ProblemError(
+                "command line",
+                "--cluster",
+                spec,
+                f"controller answers but no engine registered within "
+                f"{engine_wait_s:g} s; start engines with ipengine or "
+                f"ipcluster",
+            ) from None
         try:
             client[:].use_cloudpickle()
             client[:].apply_sync(_probe)
         except Exception as exc:
             reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-            raise ProblemError("command line", "--cluster", spec,
-                               f"engines cannot import leverage ({reason}); install it in "
-                               f"the engines' Python or put it on their PYTHONPATH") from None
+            raise ProblemError(
+                "command line",
+                "--cluster",
+                spec,
+                f"engines cannot import leverage ({reason}); install it in "
+                f"the engines' Python or put it on their PYTHONPATH",
+            ) from None
     except ProblemError:
         client.close()
         raise

@@ -17,6 +17,7 @@ from the hyperplane through the front's extreme members, in objectives scaled to
 [0, 1] over the front (Das 1999, "On characterizing the 'knee' of the Pareto curve
 based on normal-boundary intersection", Structural Optimization 18; from memory).
 """
+
 import csv
 import io
 import math
@@ -35,7 +36,7 @@ from leverage.search.single import IslandRecord, SearchState, island_seed, min_v
 FRONT_ALGORITHM_NOTES = {
     "nsga2": "non-dominated sorting genetic algorithm II (pygmo nsga2, batch evaluation)",
     "moead": "decomposition-based evolutionary algorithm, DE variant (pygmo moead_gen, "
-             "batch evaluation)",
+    "batch evaluation)",
     "nspso": "non-dominated sorting particle swarm (pygmo nspso, batch evaluation)",
 }
 MAX_ARCHIVE = 300  # front members kept; beyond this the most crowded are dropped
@@ -56,7 +57,7 @@ OBJECTIVES = {
 
 def unit_slug(unit: str) -> str:
     """A unit as a column-name suffix: 'km^2/s^2' -> 'km2_s2', 'days TDB' -> 'days_tdb'."""
-    return (unit.replace("^", "").replace("/", "_").replace(" ", "_").lower())
+    return unit.replace("^", "").replace("/", "_").replace(" ", "_").lower()
 
 
 def column(name: str, unit: str) -> str:
@@ -70,21 +71,25 @@ def search_class(compiled, settings):
     from leverage.search.single import Search
 
     front = compiled.n_obj > 1
-    check_algorithm("search settings", "algorithm", settings.algorithm, front,
-                    settings.population)
+    check_algorithm("search settings", "algorithm", settings.algorithm, front, settings.population)
     return FrontSearch if front else Search
 
 
-def make_front_algorithm(name: str, generations: int, seed: int, n_obj: int,
-                         population: int) -> pg.algorithm:
+def make_front_algorithm(
+    name: str, generations: int, seed: int, n_obj: int, population: int
+) -> pg.algorithm:
     """A pygmo multi-objective algorithm with batch fitness evaluation."""
     if name == "nsga2":
         uda = pg.nsga2(gen=generations, seed=seed)
     elif name == "moead":
         # "grid" weights need special sizes beyond two objectives; low discrepancy does not.
         weights = "grid" if n_obj == 2 else "low discrepancy"
-        uda = pg.moead_gen(gen=generations, weight_generation=weights,
-                           neighbours=max(2, min(20, population - 1)), seed=seed)
+        uda = pg.moead_gen(
+            gen=generations,
+            weight_generation=weights,
+            neighbours=max(2, min(20, population - 1)),
+            seed=seed,
+        )
     elif name == "nspso":
         uda = pg.nspso(gen=generations, seed=seed)
     else:
@@ -182,15 +187,27 @@ class FrontSearch:
         s = settings
         n_obj = udp.get_nobj()
         bfe = pg.bfe()
-        pops = [pg.population(self.problem, s.population, b=bfe, seed=island_seed(s.seed, i))
-                for i in range(s.islands)]
-        algos = [make_front_algorithm(s.algorithm, s.generations_per_migration,
-                                      island_seed(s.seed, i), n_obj, s.population)
-                 for i in range(s.islands)]
-        self.state = FrontState(populations=pops, algorithms=algos,
-                                evaluations=sum(p.problem.get_fevals() for p in pops),
-                                archive_x=np.zeros((0, len(udp.lower))),
-                                archive_f=np.zeros((0, n_obj)))
+        pops = [
+            pg.population(self.problem, s.population, b=bfe, seed=island_seed(s.seed, i))
+            for i in range(s.islands)
+        ]
+        algos = [
+            make_front_algorithm(
+                s.algorithm,
+                s.generations_per_migration,
+                island_seed(s.seed, i),
+                n_obj,
+                s.population,
+            )
+            for i in range(s.islands)
+        ]
+        self.state = FrontState(
+            populations=pops,
+            algorithms=algos,
+            evaluations=sum(p.problem.get_fevals() for p in pops),
+            archive_x=np.zeros((0, len(udp.lower))),
+            archive_f=np.zeros((0, n_obj)),
+        )
         self.reference = reference_point(udp.params)
         self.start_time = time.monotonic()
         self._update_archive()
@@ -228,25 +245,39 @@ class FrontSearch:
         self._update_archive()
         elapsed = time.monotonic() - self.start_time
         rows, evals = [], 0
-        common = dict(evolution=st.evolution, generations=st.evolution * s.generations_per_migration,
-                      wall_time_s=elapsed)
+        common = dict(
+            evolution=st.evolution,
+            generations=st.evolution * s.generations_per_migration,
+            wall_time_s=elapsed,
+        )
         for i, pop in enumerate(st.populations):
             f = pop.get_f()[:, 0]
             evals += pop.problem.get_fevals()
             _, ff = self._feasible_members(pop)
-            rows.append(FrontRecord(
-                island=str(i), evaluations=pop.problem.get_fevals(),
-                best_objective=float(f.min()), median_objective=float(np.median(f)),
-                best_violation=min_violation(self.udp, pop.get_x()),
-                hypervolume=hypervolume(ff[non_dominated(ff)], self.reference), **common))
+            rows.append(
+                FrontRecord(
+                    island=str(i),
+                    evaluations=pop.problem.get_fevals(),
+                    best_objective=float(f.min()),
+                    median_objective=float(np.median(f)),
+                    best_violation=min_violation(self.udp, pop.get_x()),
+                    hypervolume=hypervolume(ff[non_dominated(ff)], self.reference),
+                    **common,
+                )
+            )
         st.evaluations = evals
         af = st.archive_f
-        rows.append(FrontRecord(
-            island="front", evaluations=evals,
-            best_objective=float(af[:, 0].min()) if len(af) else math.nan,
-            median_objective=float(np.median(af[:, 0])) if len(af) else math.nan,
-            best_violation=0.0 if len(af) else min(r.best_violation for r in rows),
-            hypervolume=self.hypervolume(), **common))
+        rows.append(
+            FrontRecord(
+                island="front",
+                evaluations=evals,
+                best_objective=float(af[:, 0].min()) if len(af) else math.nan,
+                median_objective=float(np.median(af[:, 0])) if len(af) else math.nan,
+                best_violation=0.0 if len(af) else min(r.best_violation for r in rows),
+                hypervolume=self.hypervolume(),
+                **common,
+            )
+        )
         st.history.extend(rows)
         return rows
 
@@ -282,26 +313,33 @@ class FrontSearch:
         codes = [int(self.udp.params[L.P_OBJ_CODES + k]) for k in range(self.udp.get_nobj())]
         order = np.argsort(st.archive_f[:, 0], kind="stable") if len(st.archive_f) else []
         knee_row, knee_distance = knee(st.archive_f) if len(st.archive_f) else (-1, math.nan)
-        header = (["member", "knee"]
-                  + [column("objective_" + OBJECTIVES[c][0], OBJECTIVES[c][1]) for c in codes]
-                  # decision names carry their units; "x_" keeps them apart from derived
-                  # quantities of the same name (launch_vinf_km_s, flyby_altitude_km, ...)
-                  + ["x_" + name for name in compiled.names]
-                  + [column(name, unit) for name, _, unit, _, _ in DERIVED])
+        header = (
+            ["member", "knee"]
+            + [column("objective_" + OBJECTIVES[c][0], OBJECTIVES[c][1]) for c in codes]
+            # decision names carry their units; "x_" keeps them apart from derived
+            # quantities of the same name (launch_vinf_km_s, flyby_altitude_km, ...)
+            + ["x_" + name for name in compiled.names]
+            + [column(name, unit) for name, _, unit, _, _ in DERIVED]
+        )
         assert len(set(header)) == len(header), "front.csv column names repeat"
         buf = io.StringIO()
         out = csv.writer(buf, lineterminator="\n")
         out.writerow(header)
         for member, i in enumerate(order):
             q = self.udp.details(st.archive_x[i])
-            out.writerow([member, int(i == knee_row)]
-                         + [repr(float(v)) for v in st.archive_f[i]]
-                         + [repr(float(v)) for v in st.archive_x[i]]
-                         + [repr(float(q[slot] * factor)) for _, slot, _, factor, _ in DERIVED])
+            out.writerow(
+                [member, int(i == knee_row)]
+                + [repr(float(v)) for v in st.archive_f[i]]
+                + [repr(float(v)) for v in st.archive_x[i]]
+                + [repr(float(q[slot] * factor)) for _, slot, _, factor, _ in DERIVED]
+            )
         write_atomic(path, buf.getvalue())
-        return {"file": str(getattr(path, "name", path)), "members": int(len(order)),
-                "objectives": [column(OBJECTIVES[c][0], OBJECTIVES[c][1]) for c in codes],
-                "reference_point": [float(v) for v in self.reference],
-                "hypervolume": self.hypervolume(),
-                "knee_member": int(list(order).index(knee_row)) if knee_row >= 0 else None,
-                "knee_distance": clean(knee_distance)}
+        return {
+            "file": str(getattr(path, "name", path)),
+            "members": int(len(order)),
+            "objectives": [column(OBJECTIVES[c][0], OBJECTIVES[c][1]) for c in codes],
+            "reference_point": [float(v) for v in self.reference],
+            "hypervolume": self.hypervolume(),
+            "knee_member": int(list(order).index(knee_row)) if knee_row >= 0 else None,
+            "knee_distance": clean(knee_distance),
+        }

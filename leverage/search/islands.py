@@ -15,6 +15,7 @@ seed and island count; only the wall time differs.
 ``close()`` releases processes or connections; ``abort()`` does so without waiting
 for work in progress (used when a run is interrupted).
 """
+
 import copy
 import os
 import time

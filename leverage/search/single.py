@@ -8,6 +8,7 @@ this process, in worker processes, or on ipyparallel engines; all give the same
 answer. ``state`` holds everything that moves (populations, algorithms with their
 random-engine state, counts, history), which is what ``leverage.checkpoint`` saves.
 """
+
 import time
 from dataclasses import dataclass, field
 
@@ -123,12 +124,19 @@ class Search:
         self.evolver = evolver or SerialIslands()
         self.problem = pg.problem(udp)
         s = settings
-        pops = [pg.population(self.problem, s.population, seed=island_seed(s.seed, i))
-                for i in range(s.islands)]
-        algos = [make_algorithm(s.algorithm, s.generations_per_migration, island_seed(s.seed, i))
-                 for i in range(s.islands)]
-        self.state = SearchState(populations=pops, algorithms=algos,
-                                 evaluations=sum(p.problem.get_fevals() for p in pops))
+        pops = [
+            pg.population(self.problem, s.population, seed=island_seed(s.seed, i))
+            for i in range(s.islands)
+        ]
+        algos = [
+            make_algorithm(s.algorithm, s.generations_per_migration, island_seed(s.seed, i))
+            for i in range(s.islands)
+        ]
+        self.state = SearchState(
+            populations=pops,
+            algorithms=algos,
+            evaluations=sum(p.problem.get_fevals() for p in pops),
+        )
         self.start_time = time.monotonic()
 
     @property
@@ -147,12 +155,18 @@ class Search:
         for i, pop in enumerate(st.populations):
             f = pop.get_f()[:, 0]
             evals += pop.problem.get_fevals()
-            rows.append(IslandRecord(
-                evolution=st.evolution, island=str(i),
-                generations=st.evolution * s.generations_per_migration,
-                evaluations=pop.problem.get_fevals(), wall_time_s=elapsed,
-                best_objective=float(f.min()), median_objective=float(np.median(f)),
-                best_violation=min_violation(self.udp, pop.get_x())))
+            rows.append(
+                IslandRecord(
+                    evolution=st.evolution,
+                    island=str(i),
+                    generations=st.evolution * s.generations_per_migration,
+                    evaluations=pop.problem.get_fevals(),
+                    wall_time_s=elapsed,
+                    best_objective=float(f.min()),
+                    median_objective=float(np.median(f)),
+                    best_violation=min_violation(self.udp, pop.get_x()),
+                )
+            )
         st.evaluations = evals
         st.history.extend(rows)
         return rows

@@ -4,6 +4,7 @@ pygmo's pattern (inherit nothing; ``fitness``, ``get_bounds``, ``get_nobj``,
 ``batch_fitness``). Worker processes unpickle it by importing this module, so it
 holds only numpy arrays and module-level jitted functions.
 """
+
 import os
 
 # numba's threading layer here is GNU OpenMP, whose idle threads spin for about 300,000

@@ -19,6 +19,7 @@ Workers ignore SIGINT (the parent decides when to stop; a terminal Ctrl-C reache
 the whole process group), take the default SIGTERM (a group SIGTERM ends them), and
 exit when the parent closes their pipe or is gone.
 """
+
 import multiprocessing as mp
 import os
 import signal
@@ -115,8 +116,10 @@ class WorkerPool:
                 try:
                     ok, value = conn.recv()
                 except (EOFError, OSError):
-                    raise WorkerLost(f"worker process {proc.pid} ended before returning "
-                                     f"its result (exit code {proc.exitcode})") from None
+                    raise WorkerLost(
+                        f"worker process {proc.pid} ended before returning "
+                        f"its result (exit code {proc.exitcode})"
+                    ) from None
                 self._busy.discard(conn)
                 if not ok:
                     raise WorkerFailed(value)

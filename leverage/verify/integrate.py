@@ -12,6 +12,7 @@
 
 Units km, s, km/s; epochs TDB seconds past J2000.
 """
+
 import copy
 
 import numpy as np
@@ -19,8 +20,8 @@ from scipy.integrate import solve_ivp
 from scipy.interpolate import CubicHermiteSpline
 
 RTOL = 1e-12
-ATOL_KM = 1e-6        # absolute tolerance on positions (km) ...
-ATOL_KM_S = 1e-12     # ... and velocities (km/s)
+ATOL_KM = 1e-6  # absolute tolerance on positions (km) ...
+ATOL_KM_S = 1e-12  # ... and velocities (km/s)
 METHOD = "DOP853"
 
 
@@ -30,6 +31,7 @@ def _atol():
 
 def two_body(mu: float, t0: float, r0, v0, t1: float, rtol: float = RTOL):
     """State (r km, v km/s) at t1 after Sun-only motion from (r0, v0) at t0."""
+
     def rhs(_t, y):
         r = y[:3]
         return np.concatenate([y[3:], -mu * r / np.dot(r, r) ** 1.5])
@@ -70,8 +72,8 @@ class PointMassField:
     def state(self, name: str, t: float):
         """(r km, v km/s) of one of the field's bodies at t (from the table)."""
         k = self.names.index(name)
-        r = self._spline(t)[3 * k:3 * k + 3]
-        v = self._rate(t)[3 * k:3 * k + 3]
+        r = self._spline(t)[3 * k : 3 * k + 3]
+        v = self._rate(t)[3 * k : 3 * k + 3]
         return r, v
 
     def without(self, name: str) -> "PointMassField":
@@ -88,9 +90,9 @@ class PointMassField:
         return -(self.gm[self.active, None] * d / dist3[:, None]).sum(axis=0)
 
 
-def integrate_point_masses(field: PointMassField, t0: float, r0, v0, t1: float,
-                           rtol: float = RTOL):
+def integrate_point_masses(field: PointMassField, t0: float, r0, v0, t1: float, rtol: float = RTOL):
     """State (r km, v km/s), barycentric ICRF, at t1 from (r0, v0) at t0 in ``field``."""
+
     def rhs(t, y):
         return np.concatenate([y[3:], field.acceleration(t, y[:3])])
 

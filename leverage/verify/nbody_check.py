@@ -25,6 +25,7 @@ two-body one (finite differences of ``leverage.core.kepler.propagate``), which
 converges because the perturbations are small. Frames: integration in
 solar-system-barycentric ICRF axes; comparisons heliocentric ecliptic J2000.
 """
+
 import math
 
 import numpy as np
@@ -39,10 +40,10 @@ from leverage.record.arcs import event_states
 from leverage.verify.integrate import PointMassField, integrate_point_masses
 
 PARKING_ALTITUDE_KM = 200.0  # departure periapsis altitude: a low parking orbit (common practice)
-GRID_STEP_S = 43200.0      # planet table spacing (cubic Hermite; see leverage.integrate)
-RETARGET_TOL_KM = 1.0      # end-point miss at which the DSM re-targeting stops
+GRID_STEP_S = 43200.0  # planet table spacing (cubic Hermite; see leverage.integrate)
+RETARGET_TOL_KM = 1.0  # end-point miss at which the DSM re-targeting stops
 RETARGET_MAX_ITER = 8
-_FD_STEP_KM_S = 1e-4       # finite-difference step of the two-body Jacobian
+_FD_STEP_KM_S = 1e-4  # finite-difference step of the two-body Jacobian
 
 
 def masses() -> dict:
@@ -67,13 +68,14 @@ class _Frames:
 
     def to_bary(self, t, r, v):
         rs, vs = self.field.state("sun", t)
-        return (ecliptic_to_equatorial(r[None])[0] + rs,
-                ecliptic_to_equatorial(v[None])[0] + vs)
+        return (ecliptic_to_equatorial(r[None])[0] + rs, ecliptic_to_equatorial(v[None])[0] + vs)
 
     def to_helio(self, t, r, v):
         rs, vs = self.field.state("sun", t)
-        return (equatorial_to_ecliptic((r - rs)[None])[0],
-                equatorial_to_ecliptic((v - vs)[None])[0])
+        return (
+            equatorial_to_ecliptic((r - rs)[None])[0],
+            equatorial_to_ecliptic((v - vs)[None])[0],
+        )
 
 
 def _conic(t0, r0, v0, t):
@@ -131,24 +133,27 @@ def departure_periapsis(mu, vinf_vec, rp):
         h_hat = np.array([1.0, 0.0, 0.0]) - v_hat[0] * v_hat
     h_hat /= np.linalg.norm(h_hat)
     w_hat = np.cross(h_hat, v_hat)
-    ecc = 1.0 + rp * speed ** 2 / mu
+    ecc = 1.0 + rp * speed**2 / mu
     nu = math.acos(-1.0 / ecc)
-    p_hat = math.cos(nu) * v_hat - math.sin(nu) * w_hat   # periapsis direction
-    q_hat = math.cos(nu) * w_hat + math.sin(nu) * v_hat   # velocity direction there
-    return rp * p_hat, math.sqrt(speed ** 2 + 2.0 * mu / rp) * q_hat
+    p_hat = math.cos(nu) * v_hat - math.sin(nu) * w_hat  # periapsis direction
+    q_hat = math.cos(nu) * w_hat + math.sin(nu) * v_hat  # velocity direction there
+    return rp * p_hat, math.sqrt(speed**2 + 2.0 * mu / rp) * q_hat
 
 
 def _crossing(frames, field, body, t0, r0, v0, t_lo, t_hi, radius):
     """Epoch in [t_lo, t_hi] where the conic from (t0, r0, v0) is ``radius`` from body."""
+
     def gap(t):
         r, v = _conic(t0, r0, v0, t)
         rb, _ = frames.to_bary(t, r, v)
         return float(np.linalg.norm(rb - field.state(body, t)[0])) - radius
+
     return brentq(gap, t_lo, t_hi, xtol=1.0)
 
 
-def _leg_report(frames, field, ev, t_start, r_start_b, v_start_b, t_end, r_end_conic,
-                v_end_conic, vinf_at_end):
+def _leg_report(
+    frames, field, ev, t_start, r_start_b, v_start_b, t_end, r_end_conic, v_end_conic, vinf_at_end
+):
     """Integrate start -> DSM -> t_end; differences from the conics; re-targeted DSM.
 
     vinf_at_end(r_b, v_b): the flyby v-infinity (km/s) implied by a barycentric end state.
@@ -165,19 +170,26 @@ def _leg_report(frames, field, ev, t_start, r_start_b, v_start_b, t_end, r_end_c
     r_eh, v_eh = frames.to_helio(t_end, r_e, v_e)
     out["end_position_difference_km"] = float(np.linalg.norm(r_eh - r_end_conic))
     out["end_velocity_difference_m_s"] = float(np.linalg.norm(v_eh - v_end_conic) * 1e3)
-    new_dsm, miss, iters, (r_hit, v_hit) = _retarget(field, frames, dsm_ev["t"], r_d, v_d,
-                                                     dsm_vec, t_end, r_end_conic)
+    new_dsm, miss, iters, (r_hit, v_hit) = _retarget(
+        field, frames, dsm_ev["t"], r_d, v_d, dsm_vec, t_end, r_end_conic
+    )
     design_dsm = float(np.linalg.norm(dsm_vec))
-    out["retargeted_dsm_km_s"] = {"design": design_dsm, "check": float(np.linalg.norm(new_dsm)),
-                                  "change": float(np.linalg.norm(new_dsm)) - design_dsm}
+    out["retargeted_dsm_km_s"] = {
+        "design": design_dsm,
+        "check": float(np.linalg.norm(new_dsm)),
+        "change": float(np.linalg.norm(new_dsm)) - design_dsm,
+    }
     out["retargeted_dsm_vector_change_m_s"] = float(np.linalg.norm(new_dsm - dsm_vec) * 1e3)
     out["retarget_end_miss_km"] = miss
     out["retarget_iterations"] = iters
     out["retarget_converged"] = bool(miss < RETARGET_TOL_KM)
     design_vinf = float(np.linalg.norm(ev["flyby"]["v_in"] - ev["flyby"]["v_body"]))
     check_vinf = vinf_at_end(r_hit, v_hit)
-    out["retargeted_flyby_vinf_km_s"] = {"design": design_vinf, "check": check_vinf,
-                                         "change": check_vinf - design_vinf}
+    out["retargeted_flyby_vinf_km_s"] = {
+        "design": design_vinf,
+        "check": check_vinf,
+        "change": check_vinf - design_vinf,
+    }
     return out
 
 
@@ -186,15 +198,26 @@ def _without_body(ev, body, field, frames) -> dict:
     launch, flyby = ev["launch"], ev["flyby"]
     others = field.without(body.name.lower())
     r0b, v0b = frames.to_bary(launch["t"], launch["r"], launch["v"])
-    case = {"from": "launch", "to": "flyby epoch",
-            "left_out": body.name}
+    case = {"from": "launch", "to": "flyby epoch", "left_out": body.name}
 
     def vinf_design_body(r_b, v_b):
         # The end point is the design's flyby point; v-infinity against the design's body.
         return float(np.linalg.norm(frames.to_helio(flyby["t"], r_b, v_b)[1] - flyby["v_body"]))
 
-    case.update(_leg_report(frames, others, ev, launch["t"], r0b, v0b, flyby["t"],
-                            flyby["r"], flyby["v_in"], vinf_design_body))
+    case.update(
+        _leg_report(
+            frames,
+            others,
+            ev,
+            launch["t"],
+            r0b,
+            v0b,
+            flyby["t"],
+            flyby["r"],
+            flyby["v_in"],
+            vinf_design_body,
+        )
+    )
     return case
 
 
@@ -204,8 +227,9 @@ def _all_bodies(ev, body, field, frames) -> dict:
     launch, dsm, flyby = ev["launch"], ev["dsm"], ev["flyby"]
     radius = soi_radius_km(body)
     mu_b = body.gm_km3_s2
-    t_entry = _crossing(frames, field, name, dsm["t"], dsm["r"], dsm["v_after"],
-                        dsm["t"], flyby["t"], radius)
+    t_entry = _crossing(
+        frames, field, name, dsm["t"], dsm["r"], dsm["v_after"], dsm["t"], flyby["t"], radius
+    )
     rm, vm = body_state(body.ephemeris_array(), launch["t"])
     rp = body.equatorial_radius_km + PARKING_ALTITUDE_KM
     r_rel, v_rel = departure_periapsis(mu_b, launch["v"] - vm, rp)
@@ -213,20 +237,24 @@ def _all_bodies(ev, body, field, frames) -> dict:
     r0b = rb + ecliptic_to_equatorial(r_rel[None])[0]
     v0b = vb + ecliptic_to_equatorial(v_rel[None])[0]
     r_n, v_n = _conic(dsm["t"], dsm["r"], dsm["v_after"], t_entry)
-    case = {"from": f"departure periapsis ({PARKING_ALTITUDE_KM:g} km altitude)",
-            "note": "starts from the outside ephemeris' body state, so the launch-state "
-                    "difference of the ephemeris check is in these numbers too",
-            "to": "sphere-of-influence entry", "soi_radius_km": radius,
-            "soi_entry_days_before_flyby": (flyby["t"] - t_entry) / DAY_S}
+    case = {
+        "from": f"departure periapsis ({PARKING_ALTITUDE_KM:g} km altitude)",
+        "note": "starts from the outside ephemeris' body state, so the launch-state "
+        "difference of the ephemeris check is in these numbers too",
+        "to": "sphere-of-influence entry",
+        "soi_radius_km": radius,
+        "soi_entry_days_before_flyby": (flyby["t"] - t_entry) / DAY_S,
+    }
 
     def vinf_energy(r_b, v_b):
         # Hyperbolic excess speed from the body-relative energy: v^2 - 2 GM/d = v_inf^2.
         rb_e, vb_e = field.state(name, t_entry)
         rel_v = float(np.linalg.norm(v_b - vb_e))
-        return math.sqrt(max(0.0, rel_v ** 2 - 2 * mu_b / float(np.linalg.norm(r_b - rb_e))))
+        return math.sqrt(max(0.0, rel_v**2 - 2 * mu_b / float(np.linalg.norm(r_b - rb_e))))
 
-    case.update(_leg_report(frames, field, ev, launch["t"], r0b, v0b, t_entry, r_n, v_n,
-                            vinf_energy))
+    case.update(
+        _leg_report(frames, field, ev, launch["t"], r0b, v0b, t_entry, r_n, v_n, vinf_energy)
+    )
     return case
 
 
@@ -236,8 +264,10 @@ def check_point_masses(record, source, grid_step_s: float = GRID_STEP_S) -> dict
     body = bodies.planet(record["problem"]["body"])
     field = PointMassField(source, masses(), ev["launch"]["t"], ev["flyby"]["t"], grid_step_s)
     frames = _Frames(field)
-    report = {"source": source.name, "bodies": ["Sun"] + [bodies.planet(n).name
-                                                          for n in PLANET_NAMES]}
+    report = {
+        "source": source.name,
+        "bodies": ["Sun"] + [bodies.planet(n).name for n in PLANET_NAMES],
+    }
 
     for key, case in (("other_planets", _without_body), ("all_planets", _all_bodies)):
         try:

@@ -53,8 +53,9 @@ def launch_vinf_vector(c3, dla_deg, rla_deg) -> np.ndarray:
     """Launch v-infinity (km/s, ecliptic J2000) from the launch asymptote (EME2000 DLA/RLA),
     the standard hand-off of a departure: |v| = sqrt(C3)."""
     d, a = math.radians(dla_deg), math.radians(rla_deg)
-    eq = math.sqrt(c3) * np.array([math.cos(d) * math.cos(a), math.cos(d) * math.sin(a),
-                                   math.sin(d)])
+    eq = math.sqrt(c3) * np.array(
+        [math.cos(d) * math.cos(a), math.cos(d) * math.sin(a), math.sin(d)]
+    )
     return equatorial_to_ecliptic(eq[None, :])[0]
 
 
@@ -72,8 +73,9 @@ def _lambert(r0, r1, tof_s, revs=0, low_path=True):
     u, sun = _poliastro()
     from poliastro.iod import izzo
 
-    v0, v1 = izzo.lambert(sun.k, r0 * u.km, r1 * u.km, tof_s * u.s, M=revs, prograde=True,
-                          lowpath=low_path)
+    v0, v1 = izzo.lambert(
+        sun.k, r0 * u.km, r1 * u.km, tof_s * u.s, M=revs, prograde=True, lowpath=low_path
+    )
     return v0.to_value(u.km / u.s), v1.to_value(u.km / u.s)
 
 
@@ -85,9 +87,12 @@ def _elements(r, v) -> dict:
     a = orbit.a.to_value(u.km)
     ecc = float(orbit.ecc.value)
     aphelion = a * (1.0 + ecc) if ecc < 1.0 else math.inf
-    return {"outgoing_sma_au": a / AU_KM, "outgoing_eccentricity": ecc,
-            "outgoing_inclination_deg": math.degrees(orbit.inc.to_value(u.rad)),
-            "outgoing_aphelion_au": aphelion / AU_KM}
+    return {
+        "outgoing_sma_au": a / AU_KM,
+        "outgoing_eccentricity": ecc,
+        "outgoing_inclination_deg": math.degrees(orbit.inc.to_value(u.rad)),
+        "outgoing_aphelion_au": aphelion / AU_KM,
+    }
 
 
 def _turn(mu, vinf, rp) -> float:
@@ -102,8 +107,11 @@ def _powered_periapsis(mu, v_in, v_out, turn) -> float:
 
     def gap(log_rp):
         rp = math.exp(log_rp)
-        return (math.asin(1.0 / (1.0 + rp * v_in**2 / mu))
-                + math.asin(1.0 / (1.0 + rp * v_out**2 / mu)) - turn)
+        return (
+            math.asin(1.0 / (1.0 + rp * v_in**2 / mu))
+            + math.asin(1.0 / (1.0 + rp * v_out**2 / mu))
+            - turn
+        )
 
     lo, hi = math.log(1e-3), math.log(1e12)
     if gap(lo) < 0.0:  # more turn than any periapsis gives
@@ -135,9 +143,14 @@ def refly(record, source) -> dict:
     dsm = float(np.linalg.norm(v1 - v_before))
     vinf_in = v2 - vb_f
     speed_in = float(np.linalg.norm(vinf_in))
-    check = {"c3": c3, "dla": dla, "dsm": dsm, "flyby_vinf_in": speed_in,
-             "dsm_position_change_km": float(np.linalg.norm(r_dsm - ev["dsm"]["r"])),
-             "body_position_change_at_flyby_km": float(np.linalg.norm(rb_f - ev["flyby"]["r"]))}
+    check = {
+        "c3": c3,
+        "dla": dla,
+        "dsm": dsm,
+        "flyby_vinf_in": speed_in,
+        "dsm_position_change_km": float(np.linalg.norm(r_dsm - ev["dsm"]["r"])),
+        "body_position_change_at_flyby_km": float(np.linalg.norm(rb_f - ev["flyby"]["r"])),
+    }
     mu_b, radius = body.gm_km3_s2, body.equatorial_radius_km
     limits = {k: v for k, v in record["margins"].items()}
     min_alt = limits.get("min_flyby_altitude", {}).get("limit")
@@ -159,43 +172,80 @@ def refly(record, source) -> dict:
         powered = _derived(record, "flyby_burn") > 0.0 or "vinf_match" not in limits
         if powered:
             rp_burn = max(rp, radius + min_alt)
-            flyby_burn = abs(math.sqrt(speed_out**2 + 2 * mu_b / rp_burn)
-                             - math.sqrt(speed_in**2 + 2 * mu_b / rp_burn))
+            flyby_burn = abs(
+                math.sqrt(speed_out**2 + 2 * mu_b / rp_burn)
+                - math.sqrt(speed_in**2 + 2 * mu_b / rp_burn)
+            )
         arrival_vinf = float(np.linalg.norm(v_arr - v_t))
         rp_min = radius + min_alt
-        max_turn = (math.asin(1.0 / (1.0 + rp_min * speed_in**2 / mu_b))
-                    + math.asin(1.0 / (1.0 + rp_min * speed_out**2 / mu_b)))
-        check.update({"flyby_altitude": rp - radius, "flyby_vinf_out": speed_out,
-                      "turn_angle": math.degrees(turn), "max_turn_angle": math.degrees(max_turn),
-                      "flyby_burn": flyby_burn, "arrival_vinf": arrival_vinf})
+        max_turn = math.asin(1.0 / (1.0 + rp_min * speed_in**2 / mu_b)) + math.asin(
+            1.0 / (1.0 + rp_min * speed_out**2 / mu_b)
+        )
+        check.update(
+            {
+                "flyby_altitude": rp - radius,
+                "flyby_vinf_out": speed_out,
+                "turn_angle": math.degrees(turn),
+                "max_turn_angle": math.degrees(max_turn),
+                "flyby_burn": flyby_burn,
+                "arrival_vinf": arrival_vinf,
+            }
+        )
     else:
         import astropy.units as u
         from poliastro.threebody.flybys import compute_flyby
 
         alt = _derived(record, "flyby_altitude")
         rp = radius + alt
-        v_out, turn_q = compute_flyby(v2 * u.km / u.s, vb_f * u.km / u.s,
-                                      mu_b * u.km**3 / u.s**2, rp * u.km,
-                                      _derived(record, "bplane_angle") * u.deg)
+        v_out, turn_q = compute_flyby(
+            v2 * u.km / u.s,
+            vb_f * u.km / u.s,
+            mu_b * u.km**3 / u.s**2,
+            rp * u.km,
+            _derived(record, "bplane_angle") * u.deg,
+        )
         v_out = v_out.to_value(u.km / u.s)
         turn = float(turn_q.to_value(u.rad))
-        check.update({"flyby_altitude": alt, "flyby_vinf_out": speed_in,
-                      "turn_angle": math.degrees(turn),
-                      "max_turn_angle": math.degrees(_turn(mu_b, speed_in, radius + min_alt))})
+        check.update(
+            {
+                "flyby_altitude": alt,
+                "flyby_vinf_out": speed_in,
+                "turn_angle": math.degrees(turn),
+                "max_turn_angle": math.degrees(_turn(mu_b, speed_in, radius + min_alt)),
+            }
+        )
         check.update(_elements(rb_f, v_out))
-    check["total_dv"] = dsm + flyby_burn + (check.get("arrival_vinf", 0.0)
-                                            if _derived(record, "arrival_burn") > 0.0 else 0.0)
+    check["total_dv"] = (
+        dsm
+        + flyby_burn
+        + (check.get("arrival_vinf", 0.0) if _derived(record, "arrival_burn") > 0.0 else 0.0)
+    )
     return {"quantities": _pairs(record, check), "limits": _limit_rows(record, check)}
 
 
 # quantity name -> unit of the check dict (design value from record["derived"])
-_UNITS = {"c3": "km^2/s^2", "dla": "deg", "dsm": "km/s", "flyby_vinf_in": "km/s",
-          "flyby_vinf_out": "km/s", "flyby_altitude": "km", "turn_angle": "deg",
-          "max_turn_angle": "deg", "flyby_burn": "km/s", "arrival_vinf": "km/s",
-          "total_dv": "km/s", "outgoing_sma_au": "au", "outgoing_eccentricity": "",
-          "outgoing_inclination_deg": "deg", "outgoing_aphelion_au": "au"}
-_DESIGN_NAME = {"outgoing_sma_au": "outgoing_sma", "outgoing_inclination_deg":
-                "outgoing_inclination", "outgoing_aphelion_au": "outgoing_aphelion"}
+_UNITS = {
+    "c3": "km^2/s^2",
+    "dla": "deg",
+    "dsm": "km/s",
+    "flyby_vinf_in": "km/s",
+    "flyby_vinf_out": "km/s",
+    "flyby_altitude": "km",
+    "turn_angle": "deg",
+    "max_turn_angle": "deg",
+    "flyby_burn": "km/s",
+    "arrival_vinf": "km/s",
+    "total_dv": "km/s",
+    "outgoing_sma_au": "au",
+    "outgoing_eccentricity": "",
+    "outgoing_inclination_deg": "deg",
+    "outgoing_aphelion_au": "au",
+}
+_DESIGN_NAME = {
+    "outgoing_sma_au": "outgoing_sma",
+    "outgoing_inclination_deg": "outgoing_inclination",
+    "outgoing_aphelion_au": "outgoing_aphelion",
+}
 
 
 def _pairs(record, check) -> dict:
@@ -205,8 +255,7 @@ def _pairs(record, check) -> dict:
             out[key] = {"check": value, "unit": "km"}
             continue
         design = _derived(record, _DESIGN_NAME.get(key, key))
-        out[key] = {"design": design, "check": value, "change": value - design,
-                    "unit": _UNITS[key]}
+        out[key] = {"design": design, "check": value, "change": value - design, "unit": _UNITS[key]}
     return out
 
 
@@ -218,10 +267,17 @@ def _limit_rows(record, check) -> list:
         value = _margin_of(name, stated, check)
         if value is None:
             continue
-        rows.append({"limit": name, "unit": entry["unit"], "stated": stated,
-                     "required_margin": entry.get("required_margin", 0.0),
-                     "design": as_float(entry["margin"]), "check": value,
-                     "holds": bool(value >= 0.0)})
+        rows.append(
+            {
+                "limit": name,
+                "unit": entry["unit"],
+                "stated": stated,
+                "required_margin": entry.get("required_margin", 0.0),
+                "design": as_float(entry["margin"]),
+                "check": value,
+                "holds": bool(value >= 0.0),
+            }
+        )
     return rows
 
 
@@ -248,4 +304,3 @@ def _margin_of(name, stated, check):
     if name == "vinf_match" and "flyby_vinf_out" in check:
         return float(stated) - abs(check["flyby_vinf_out"] - check["flyby_vinf_in"])
     return None
-

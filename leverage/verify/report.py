@@ -17,6 +17,7 @@
 ``render`` turns the report into text that says what was and was not checked;
 ``write`` puts verification.txt and verification.json in the result folder.
 """
+
 import math
 from pathlib import Path
 
@@ -75,9 +76,15 @@ def _two_body_checks(record) -> list:
             v_ref = ev["arrival"].get("v", arc.v_km_s[-1])
         else:
             end, r_ref, v_ref = "end of outgoing span", arc.r_km[-1], arc.v_km_s[-1]
-        rows.append({"arc": arc.label, "end": end, "days": (t1 - t0) / DAY_S,
-                     "position_mismatch_km": float(math.dist(r_i, r_ref)),
-                     "velocity_mismatch_m_s": float(math.dist(v_i, v_ref) * 1e3)})
+        rows.append(
+            {
+                "arc": arc.label,
+                "end": end,
+                "days": (t1 - t0) / DAY_S,
+                "position_mismatch_km": float(math.dist(r_i, r_ref)),
+                "velocity_mismatch_m_s": float(math.dist(v_i, v_ref) * 1e3),
+            }
+        )
     return rows
 
 
@@ -106,14 +113,29 @@ def verdict(ephemeris_rows) -> dict:
     for row in ephemeris_rows:
         for lim in row.get("limits", []):
             if not lim["holds"]:
-                broken.append({"limit": lim["limit"], "check": lim["check"],
-                               "unit": lim["unit"], "source": row["source"]})
+                broken.append(
+                    {
+                        "limit": lim["limit"],
+                        "check": lim["check"],
+                        "unit": lim["unit"],
+                        "source": row["source"],
+                    }
+                )
         if row.get("problem"):
-            broken.append({"limit": "re-fly", "check": None, "unit": "",
-                           "source": row["source"], "problem": row["problem"]})
-    return {"holds": not broken, "broken": broken,
-            "model": "patched conics re-flown with " + ", ".join(r["source"]
-                                                                for r in ephemeris_rows)}
+            broken.append(
+                {
+                    "limit": "re-fly",
+                    "check": None,
+                    "unit": "",
+                    "source": row["source"],
+                    "problem": row["problem"],
+                }
+            )
+    return {
+        "holds": not broken,
+        "broken": broken,
+        "model": "patched conics re-flown with " + ", ".join(r["source"] for r in ephemeris_rows),
+    }
 
 
 def attach(record, report) -> dict:
@@ -124,14 +146,23 @@ def attach(record, report) -> dict:
     for row in report["ephemeris"]:
         for lim in row.get("limits", []):
             if lim["limit"] not in worst or lim["check"] < worst[lim["limit"]]["check"]:
-                worst[lim["limit"]] = {"limit": lim["limit"], "check": clean(lim["check"]),
-                                       "unit": lim["unit"], "holds": lim["holds"]}
+                worst[lim["limit"]] = {
+                    "limit": lim["limit"],
+                    "check": clean(lim["check"]),
+                    "unit": lim["unit"],
+                    "holds": lim["holds"],
+                }
     v = report["verdict"]
     record["verification"] = {
-        "holds": v["holds"], "status": "done", "model": v["model"],
-        "broken": [{k: (clean(x) if isinstance(x, float) else x) for k, x in b.items()}
-                   for b in v["broken"]],
-        "margins": list(worst.values())}
+        "holds": v["holds"],
+        "status": "done",
+        "model": v["model"],
+        "broken": [
+            {k: (clean(x) if isinstance(x, float) else x) for k, x in b.items()}
+            for b in v["broken"]
+        ],
+        "margins": list(worst.values()),
+    }
     return record
 
 
@@ -155,8 +186,11 @@ def verify_record(record, spk_path=None) -> dict:
             "frame": "heliocentric ecliptic J2000 for every comparison",
             "ephemeris": ephemeris,
             "verdict": verdict(ephemeris),
-            "two_body": {"method": f"scipy.integrate.solve_ivp {METHOD}", "rtol": RTOL,
-                         "arcs": _two_body_checks(record)},
+            "two_body": {
+                "method": f"scipy.integrate.solve_ivp {METHOD}",
+                "rtol": RTOL,
+                "arcs": _two_body_checks(record),
+            },
             "point_masses": check_point_masses(record, sources[0]),
             "covers": COVERS,
             "does_not_cover": DOES_NOT_COVER,
@@ -169,31 +203,41 @@ def verify_record(record, spk_path=None) -> dict:
 
 # ------------------------------------------------------------------ text
 
+
 def _num(value, digits=3):
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return "n/a"
     return f"{value:,.{digits}f}"
 
 
-def _pair_line(label, item, unit, scale=1.0, digits=3, change_unit=None, change_scale=1.0,
-               change_digits=1):
+def _pair_line(
+    label, item, unit, scale=1.0, digits=3, change_unit=None, change_scale=1.0, change_digits=1
+):
     change_unit = change_unit or unit
     change = f"{item['change'] * change_scale:+,.{change_digits}f} {change_unit}".rstrip()
-    return (f"  {label:<34}{_num(item['design'] * scale, digits):>14} -> "
-            f"{_num(item['check'] * scale, digits):>14} {unit:<9}(change {change})")
+    return (
+        f"  {label:<34}{_num(item['design'] * scale, digits):>14} -> "
+        f"{_num(item['check'] * scale, digits):>14} {unit:<9}(change {change})"
+    )
 
 
-_QUANTITY_LABELS = [("c3", "launch C3", 3), ("dla", "launch DLA", 3), ("dsm", "DSM", 5),
-                    ("flyby_vinf_in", "flyby v-infinity in", 5),
-                    ("flyby_vinf_out", "flyby v-infinity out", 5),
-                    ("flyby_altitude", "flyby altitude", 1), ("turn_angle", "turn", 4),
-                    ("max_turn_angle", "largest turn at minimum altitude", 4),
-                    ("flyby_burn", "flyby periapsis burn", 5),
-                    ("arrival_vinf", "arrival v-infinity", 5), ("total_dv", "total dv", 5),
-                    ("outgoing_sma_au", "outgoing semi-major axis", 6),
-                    ("outgoing_eccentricity", "outgoing eccentricity", 6),
-                    ("outgoing_inclination_deg", "outgoing inclination", 5),
-                    ("outgoing_aphelion_au", "outgoing aphelion", 6)]
+_QUANTITY_LABELS = [
+    ("c3", "launch C3", 3),
+    ("dla", "launch DLA", 3),
+    ("dsm", "DSM", 5),
+    ("flyby_vinf_in", "flyby v-infinity in", 5),
+    ("flyby_vinf_out", "flyby v-infinity out", 5),
+    ("flyby_altitude", "flyby altitude", 1),
+    ("turn_angle", "turn", 4),
+    ("max_turn_angle", "largest turn at minimum altitude", 4),
+    ("flyby_burn", "flyby periapsis burn", 5),
+    ("arrival_vinf", "arrival v-infinity", 5),
+    ("total_dv", "total dv", 5),
+    ("outgoing_sma_au", "outgoing semi-major axis", 6),
+    ("outgoing_eccentricity", "outgoing eccentricity", 6),
+    ("outgoing_inclination_deg", "outgoing inclination", 5),
+    ("outgoing_aphelion_au", "outgoing aphelion", 6),
+]
 
 
 def _ephemeris_lines(eph) -> list:
@@ -201,21 +245,27 @@ def _ephemeris_lines(eph) -> list:
     if eph.get("problem"):
         return lines + [f"  {eph['problem']}"]
     q = eph["quantities"]
-    lines.append(f"  DSM point moved {_num(q['dsm_position_change_km']['check'], 4)} km, "
-                 f"flyby body moved {_num(q['body_position_change_at_flyby_km']['check'], 4)} km "
-                 "from the design's")
+    lines.append(
+        f"  DSM point moved {_num(q['dsm_position_change_km']['check'], 4)} km, "
+        f"flyby body moved {_num(q['body_position_change_at_flyby_km']['check'], 4)} km "
+        "from the design's"
+    )
     lines.append(f"  {'':<34}{'design':>16}    {'re-flown':>16}")
     for key, label, digits in _QUANTITY_LABELS:
         if key in q:
             item = q[key]
-            lines.append(f"  {label:<34}{_num(item['design'], digits):>16} -> "
-                         f"{_num(item['check'], digits):>16} {item['unit']}")
+            lines.append(
+                f"  {label:<34}{_num(item['design'], digits):>16} -> "
+                f"{_num(item['check'], digits):>16} {item['unit']}"
+            )
     lines.append("  stated limits (margin >= 0 holds; design margin asked in brackets)")
     for row in eph["limits"]:
         state = "holds" if row["holds"] else "BROKEN"
         asked = f"[{row['required_margin']:g}]" if row.get("required_margin") else ""
-        lines.append(f"    {row['limit']:<26}{_num(row['design'], 6):>14} -> "
-                     f"{_num(row['check'], 6):>14} {row['unit']:<9}{asked:>7} {state}")
+        lines.append(
+            f"    {row['limit']:<26}{_num(row['design'], 6):>14} -> "
+            f"{_num(row['check'], 6):>14} {row['unit']:<9}{asked:>7} {state}"
+        )
     return lines
 
 
@@ -226,9 +276,11 @@ def _case_lines(title, case) -> list:
     if case.get("note"):
         lines.append(f"    ({case['note']})")
     if "soi_radius_km" in case:
-        lines.append(f"    sphere of influence {_num(case['soi_radius_km'], 0)} km, entered "
-                     f"{_num(case['soi_entry_days_before_flyby'], 2)} days before the flyby "
-                     "on the conic")
+        lines.append(
+            f"    sphere of influence {_num(case['soi_radius_km'], 0)} km, entered "
+            f"{_num(case['soi_entry_days_before_flyby'], 2)} days before the flyby "
+            "on the conic"
+        )
     lines += [
         f"    at the DSM   position differs by "
         f"{_num(case['dsm_position_difference_km'], 0):>12} km, velocity by "
@@ -269,23 +321,33 @@ def verdict_line(report) -> str:
 
 def render(report) -> str:
     """The text of verification.txt."""
-    lines = [f"leverage verification: {report['problem']} ({report['status']})",
-             f"  CAUTION: {report['caution']}", f"  {report['frame']}", "",
-             verdict_line(report), ""]
+    lines = [
+        f"leverage verification: {report['problem']} ({report['status']})",
+        f"  CAUTION: {report['caution']}",
+        f"  {report['frame']}",
+        "",
+        verdict_line(report),
+        "",
+    ]
     for eph in report["ephemeris"]:
         lines += _ephemeris_lines(eph) + [""]
     tb = report["two_body"]
-    lines.append(f"Conic arcs integrated numerically, Sun only ({tb['method']}, "
-                 f"rtol {tb['rtol']:g})")
+    lines.append(
+        f"Conic arcs integrated numerically, Sun only ({tb['method']}, rtol {tb['rtol']:g})"
+    )
     for row in tb["arcs"]:
-        lines.append(f"  {row['arc']:<18} {row['days']:8.1f} days  mismatch at {row['end']}: "
-                     f"{row['position_mismatch_km']:.3g} km, "
-                     f"{row['velocity_mismatch_m_s']:.3g} m/s")
+        lines.append(
+            f"  {row['arc']:<18} {row['days']:8.1f} days  mismatch at {row['end']}: "
+            f"{row['position_mismatch_km']:.3g} km, "
+            f"{row['velocity_mismatch_m_s']:.3g} m/s"
+        )
     pm = report["point_masses"]
-    lines += ["", f"Sun and planets as point masses ({', '.join(pm['bodies'])}; positions from "
-                  f"{pm['source']})",
-              "  differences are from the patched-conic design; they are not errors of the "
-              "integration"]
+    lines += [
+        "",
+        f"Sun and planets as point masses ({', '.join(pm['bodies'])}; positions from "
+        f"{pm['source']})",
+        "  differences are from the patched-conic design; they are not errors of the integration",
+    ]
     lines += _case_lines(f"without {record_body(report)}", pm["other_planets"])
     lines += _case_lines("all planets", pm["all_planets"])
     lines += ["", "This check covers:"] + [f"  - {item}" for item in report["covers"]]
@@ -319,16 +381,22 @@ def headline(report) -> str:
     eph = report["ephemeris"][0]
     if "quantities" in eph:
         q = eph["quantities"]
-        parts.append(f"re-flown DSM {q['dsm']['change'] * 1e3:+.4f} m/s, flyby v-inf "
-                     f"{q['flyby_vinf_in']['change'] * 1e3:+.4f} m/s")
+        parts.append(
+            f"re-flown DSM {q['dsm']['change'] * 1e3:+.4f} m/s, flyby v-inf "
+            f"{q['flyby_vinf_in']['change'] * 1e3:+.4f} m/s"
+        )
     pm = report["point_masses"]
     moved = []
     if "skipped" not in pm["other_planets"]:
-        moved.append(f"{pm['other_planets']['end_position_difference_km']:,.0f} km from the "
-                     f"conic at the flyby epoch (without {record_body(report)})")
+        moved.append(
+            f"{pm['other_planets']['end_position_difference_km']:,.0f} km from the "
+            f"conic at the flyby epoch (without {record_body(report)})"
+        )
     if "skipped" not in pm["all_planets"]:
-        moved.append(f"{pm['all_planets']['end_position_difference_km']:,.0f} km at "
-                     "sphere-of-influence entry (all planets)")
+        moved.append(
+            f"{pm['all_planets']['end_position_difference_km']:,.0f} km at "
+            "sphere-of-influence entry (all planets)"
+        )
     if moved:
         parts.append("point masses put the spacecraft " + ", ".join(moved))
     return "verification: " + "; ".join(parts)

@@ -11,6 +11,7 @@ Outside sources:
 - Standish's Table 1 (the Earth row is the Earth-Moon barycentre), see
   test_ephemeris.py.
 """
+
 import numpy as np
 import pytest
 from astropy import constants as const
@@ -52,9 +53,11 @@ def test_jupiter_system_gm_vs_planet_gm():
 
 def test_radii_vs_iau_2015_nominal():
     assert bodies.planet("earth").equatorial_radius_km == pytest.approx(
-        const.R_earth.to_value("km"), abs=0.05)
+        const.R_earth.to_value("km"), abs=0.05
+    )
     assert bodies.planet("jupiter").equatorial_radius_km == pytest.approx(
-        const.R_jup.to_value("km"), abs=0.5)
+        const.R_jup.to_value("km"), abs=0.5
+    )
 
 
 def test_lookup_is_case_insensitive():

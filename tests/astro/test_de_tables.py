@@ -16,6 +16,7 @@ Outside sources checked against:
   Williams and Boggs 2008, JPL IOM 343R-08-003, constants table; quoted from memory
   to the digits given), checked against the constant stored in the ephemeris file.
 """
+
 import struct
 from pathlib import Path
 
@@ -58,9 +59,11 @@ def jplephem_heliocentric(name, ts, emrat_weight=None):
     """Heliocentric ecliptic J2000 (km, km/s) from jplephem's own evaluation.
 
     Dates as J2000 + fraction (tdb2) to keep jplephem's time resolution."""
+
     def pv(set_name):
         r, v = EPH.position_and_velocity(set_name, 2451545.0, ts / DAY_S)
         return r.T, v.T / DAY_S
+
     if name == "earth":
         weight = emrat_weight if emrat_weight is not None else 1.0 / (1.0 + EPH.EMRAT)
         (re, ve), (rm, vm) = pv("earthmoon"), pv("moon")
@@ -93,8 +96,7 @@ def test_bundled_problem_spans_are_covered():
 # 1.0e-5 km and 3.4e-5 mm/s. The position part is about jplephem's own time
 # resolution (it adds the day count since 1899 to the fraction: ~6e-7 s, 2e-5 km at
 # 30 km/s), not the table's.
-@pytest.mark.parametrize("name, tol_km, tol_mm_s", [("earth", 1e-4, 1.5e-3),
-                                                    ("mars", 1e-4, 3e-4)])
+@pytest.mark.parametrize("name, tol_km, tol_mm_s", [("earth", 1e-4, 1.5e-3), ("mars", 1e-4, 3e-4)])
 def test_kernel_matches_jplephem(name, tol_km, tol_mm_s, earth, epochs):
     p = earth if name == "earth" else packed(D.build_table("de421", name, T0, T1))
     r, v = states(p, epochs)
@@ -110,8 +112,9 @@ def test_de423_package_matches_its_jplephem():
     ts = np.linspace(T0 + 1.0, T1 - 1.0, 500)
     r, v = states(packed(D.build_table("de423", "earth", T0, T1)), ts)
     w = 1.0 / (1.0 + eph.EMRAT)
-    parts = {n: eph.position_and_velocity(n, 2451545.0, ts / DAY_S)
-             for n in ("earthmoon", "moon", "sun")}
+    parts = {
+        n: eph.position_and_velocity(n, 2451545.0, ts / DAY_S) for n in ("earthmoon", "moon", "sun")
+    }
     r_ref = (parts["earthmoon"][0] - w * parts["moon"][0] - parts["sun"][0]).T
     v_ref = (parts["earthmoon"][1] - w * parts["moon"][1] - parts["sun"][1]).T / DAY_S
     # Measured: 2.1e-5 km, 1.5e-4 mm/s.
@@ -154,8 +157,11 @@ def test_earth_against_erfa_epv00(earth):
 
 
 # ERFA plan94 note 5, max vs DE200 over 1800-2100: L ("), B ("), R (km).
-PLAN94 = {"venus": (7.0, 1.0, 1_100.0), "mars": (26.0, 1.0, 9_000.0),
-          "jupiter": (78.0, 6.0, 82_000.0)}
+PLAN94 = {
+    "venus": (7.0, 1.0, 1_100.0),
+    "mars": (26.0, 1.0, 9_000.0),
+    "jupiter": (78.0, 6.0, 82_000.0),
+}
 
 
 @pytest.mark.parametrize("name", list(PLAN94))
@@ -170,10 +176,13 @@ def test_planets_against_erfa_plan94(name):
     ts = np.linspace(T0 + DAY_S, T1 - DAY_S, 200)
     r, _ = states(packed(D.build_table("de421", name, T0, T1)), ts)
     r_ref, _ = _builtin(name, ts)
+
     def lon(x):
         return np.arctan2(x[:, 1], x[:, 0])
+
     def lat(x):
         return np.arcsin(x[:, 2] / np.linalg.norm(x, axis=1))
+
     d_lon = np.abs((lon(r) - lon(r_ref) + np.pi) % (2.0 * np.pi) - np.pi) / ARCSEC
     d_lat = np.abs(lat(r) - lat(r_ref)) / ARCSEC
     d_rad = np.abs(np.linalg.norm(r, axis=1) - np.linalg.norm(r_ref, axis=1))
@@ -192,8 +201,10 @@ def test_earth_emb_offset_uses_one_plus_emrat(earth):
     # (its truncation), 1.1e-5 km with the file's own EMRAT.
     ts = np.linspace(T0 + DAY_S, T1 - DAY_S, 300)
     r, _ = states(earth, ts)
-    emb = (EPH.position("earthmoon", 2451545.0, ts / DAY_S)
-           - EPH.position("sun", 2451545.0, ts / DAY_S)).T @ D.ICRF_TO_ECLIPTIC.T
+    emb = (
+        EPH.position("earthmoon", 2451545.0, ts / DAY_S)
+        - EPH.position("sun", 2451545.0, ts / DAY_S)
+    ).T @ D.ICRF_TO_ECLIPTIC.T
     moon = np.linalg.norm(EPH.position("moon", 2451545.0, ts / DAY_S), axis=0)
 
     def offset_error(r_earth):
@@ -215,14 +226,15 @@ def test_nan_outside_the_table_and_inside_at_its_ends(earth):
         r, v = E.body_state_in(earth, 0, t)
         assert np.all(np.isfinite(r)) and np.all(np.isfinite(v))
     # The header alone cannot be evaluated: NaN rather than a wrong kind.
-    r, _ = E.body_state(earth[:E.EPHEMERIS_SIZE], 0.5 * (T0 + T1))
+    r, _ = E.body_state(earth[: E.EPHEMERIS_SIZE], 0.5 * (T0 + T1))
     assert np.all(np.isnan(r))
 
 
 def test_dates_outside_the_ephemeris_are_refused():
     with pytest.raises(ProblemError, match="outside the ephemeris span 1899-12-04 .. 2200"):
-        D.build_table("de421", "earth", (2190 - 2000) * 365.25 * DAY_S,
-                      (2210 - 2000) * 365.25 * DAY_S)
+        D.build_table(
+            "de421", "earth", (2190 - 2000) * 365.25 * DAY_S, (2210 - 2000) * 365.25 * DAY_S
+        )
     with pytest.raises(ProblemError, match="unknown ephemeris source"):
         D.build_table("de000", "earth", T0, T1)
 
@@ -233,6 +245,7 @@ def test_ten_year_table_fits_in_memory():
 
 
 # ------------------------------------------------------------- the compiled model
+
 
 def test_fitness_on_de_table_and_failure_outside(demo_path):
     compiled = load_problem(demo_path).compile()
@@ -247,10 +260,11 @@ def test_fitness_on_de_table_and_failure_outside(demo_path):
     assert np.all(np.isfinite(f_de))
     # Same points, Earth instead of the mean-element EMB: most evaluations solve on both.
     assert np.sum(f_de != trajectory.FAIL_OBJECTIVE) >= 0.8 * np.sum(
-        f_mean != trajectory.FAIL_OBJECTIVE)
+        f_mean != trajectory.FAIL_OBJECTIVE
+    )
     q = trajectory.details(xs[0], p)
     r_launch, _ = E.body_state_in(p, L.P_BODY_EPH, q[L.Q_T_LAUNCH])
-    np.testing.assert_allclose(q[L.Q_R_LAUNCH:L.Q_R_LAUNCH + 3], r_launch)
+    np.testing.assert_allclose(q[L.Q_R_LAUNCH : L.Q_R_LAUNCH + 3], r_launch)
     # A launch (or a return) outside the table: a failed evaluation, not an exception.
     late = xs[0].copy()
     late[L.X_LAUNCH_EPOCH_DAYS] = end / DAY_S + 10.0
@@ -267,11 +281,15 @@ def test_planet_target_switched_small_body_kept(problems_dir):
     start, end = D.problem_span_s(compiled)
     p = D.with_de_ephemeris(compiled.params, "de421", start, end)
     # The invented small body keeps its osculating elements.
-    np.testing.assert_array_equal(p[L.P_TARGET_EPH:L.P_TARGET_EPH + E.EPHEMERIS_SIZE],
-                                  compiled.params[L.P_TARGET_EPH:L.P_TARGET_EPH + E.EPHEMERIS_SIZE])
+    np.testing.assert_array_equal(
+        p[L.P_TARGET_EPH : L.P_TARGET_EPH + E.EPHEMERIS_SIZE],
+        compiled.params[L.P_TARGET_EPH : L.P_TARGET_EPH + E.EPHEMERIS_SIZE],
+    )
     # A planet target is switched too; switching again rebuilds rather than appends.
     base = compiled.params.copy()
-    base[L.P_TARGET_EPH:L.P_TARGET_EPH + E.EPHEMERIS_SIZE] = bodies.PLANETS["mars"].ephemeris_array()
+    base[L.P_TARGET_EPH : L.P_TARGET_EPH + E.EPHEMERIS_SIZE] = bodies.PLANETS[
+        "mars"
+    ].ephemeris_array()
     p1 = D.with_de_ephemeris(base, "de421", start, end)
     assert p1[L.P_TARGET_EPH] == E.KIND_CHEBYSHEV and p1[L.P_TARGET_EPH + E.CHEB_NAIF_ID] == 4
     p2 = D.with_de_ephemeris(p1, "de423", start, end)
@@ -288,14 +306,26 @@ def test_planet_target_switched_small_body_kept(problems_dir):
 
 # --------------------------------------------------------------- SPK kernel files
 
+
 def write_spk(path, segments):
     """A small SPK file (DAF, type 2 segments) from (target, centre, start s, granule
     s, coefficients (n, 3, m) km) tuples, following NAIF's DAF and SPK required
     reading (record layout as jplephem reads it)."""
     with open(path, "w+b") as f:
-        record = struct.pack("<8sII60sIII8s603s28s297s", b"DAF/SPK ", 2, 6,
-                             b"leverage test".ljust(60), 2, 2, 3 * 128 + 1, b"LTL-IEEE",
-                             b"\0" * 603, FTPSTR, b"\0" * 297)
+        record = struct.pack(
+            "<8sII60sIII8s603s28s297s",
+            b"DAF/SPK ",
+            2,
+            6,
+            b"leverage test".ljust(60),
+            2,
+            2,
+            3 * 128 + 1,
+            b"LTL-IEEE",
+            b"\0" * 603,
+            FTPSTR,
+            b"\0" * 297,
+        )
         f.write(record + b"\0" * 1024 + b" " * 1024)
         daf = DAF(f)
         for target, centre, start, granule, coef in segments:
@@ -303,8 +333,9 @@ def write_spk(path, segments):
             mids = start + (np.arange(n) + 0.5) * granule
             rows = np.column_stack([mids, np.full(n, granule / 2), coef.reshape(n, 3 * m)])
             data = np.concatenate([rows.ravel(), [start, granule, 2 + 3 * m, n]])
-            daf.add_array(b"leverage test", (start, start + n * granule, target, centre, 1, 2),
-                          data)
+            daf.add_array(
+                b"leverage test", (start, start + n * granule, target, centre, 1, 2), data
+            )
 
 
 def _excerpt(name, scale=1.0):
@@ -319,13 +350,22 @@ def _excerpt(name, scale=1.0):
 def test_spk_file_gives_the_packaged_tables(tmp_path):
     path = tmp_path / "de421-excerpt.bsp"
     w = 1.0 / (1.0 + EPH.EMRAT)
-    write_spk(path, [(3, 0, *_excerpt("earthmoon")), (399, 3, *_excerpt("moon", -w)),
-                     (10, 0, *_excerpt("sun")), (4, 0, *_excerpt("mars"))])
+    write_spk(
+        path,
+        [
+            (3, 0, *_excerpt("earthmoon")),
+            (399, 3, *_excerpt("moon", -w)),
+            (10, 0, *_excerpt("sun")),
+            (4, 0, *_excerpt("mars")),
+        ],
+    )
     ts = np.linspace(T0, T1, 3001)
     for name in ("earth", "mars"):
         spk = D.build_table(str(path), name, T0, T1)
         pkg = D.build_table("de421", name, T0, T1)
-        np.testing.assert_array_equal(spk.header[[2, 3, 4, 5, 6, 7]], pkg.header[[2, 3, 4, 5, 6, 7]])
+        np.testing.assert_array_equal(
+            spk.header[[2, 3, 4, 5, 6, 7]], pkg.header[[2, 3, 4, 5, 6, 7]]
+        )
         r1, v1 = states(packed(spk), ts)
         r2, v2 = states(packed(pkg), ts)
         # Measured: 3.7e-9 km and 8e-14 km/s (Earth; Mars identical).

@@ -10,6 +10,7 @@ Outside sources:
 - Python's datetime (proleptic Gregorian calendar, no leap seconds) for the number
   of calendar days between two dates.
 """
+
 from datetime import date, datetime
 
 import pytest
@@ -23,11 +24,14 @@ TDB_TT_MAX_S = 0.002  # |TDB - TT| < 1.7 ms (common practice), rounded up
 def test_j2000_epoch_in_utc():
     assert times.tdb_seconds("2000-01-01T11:58:55.816") == pytest.approx(0.0, abs=1e-3)
     assert times.tdb_days("2000-01-01T12:00:00", scale="tdb") == 0.0
-    assert times.tdb_seconds("2000-01-01T12:00:00", scale="tt") == pytest.approx(0.0, abs=TDB_TT_MAX_S)
+    assert times.tdb_seconds("2000-01-01T12:00:00", scale="tt") == pytest.approx(
+        0.0, abs=TDB_TT_MAX_S
+    )
 
 
-@pytest.mark.parametrize("when", ["2017-06-01T00:00:00", "2024-02-29T18:30:00",
-                                  "2035-12-31T23:00:00"])
+@pytest.mark.parametrize(
+    "when", ["2017-06-01T00:00:00", "2024-02-29T18:30:00", "2035-12-31T23:00:00"]
+)
 def test_tt_minus_utc_after_2016_leap_second(when):
     # IERS Bulletin C: TT - UTC = 37 + 32.184 = 69.184 s after 2017-01-01 (no leap
     # second announced since).

@@ -12,6 +12,7 @@ Most runs evolve their islands in this process (--workers 1, the same champion a
 worker processes, see test_runner.py) and skip the pictures and verification that
 follow a run (issue 5's, tested with them); the demo run keeps both, as a user sees it.
 """
+
 import csv
 import hashlib
 import json
@@ -53,10 +54,11 @@ def documented_log_header() -> list[str]:
 
 # ---------------------------------------------------------------- helpers
 
+
 def agrees(printed: str, value: float) -> bool:
     """True when ``printed`` is ``value`` rounded to the decimals shown."""
     decimals = len(printed.split(".")[1]) if "." in printed else 0
-    return abs(float(printed.replace(",", "")) - value) <= 0.5 * 10 ** -decimals + 1e-9 * abs(value)
+    return abs(float(printed.replace(",", "")) - value) <= 0.5 * 10**-decimals + 1e-9 * abs(value)
 
 
 def find(text: str, pattern: str) -> tuple:
@@ -78,9 +80,16 @@ def check_summary_against_record(text: str, record: dict):
     name, sha = find(text, r"^problem\s+(\S+)\s+\(sha256 ([0-9a-f]+)\)")
     assert name == p["file"] and p["sha256"].startswith(sha)
     algo, islands, pop, gens, seed, polish = find(
-        text, r"^search\s+(\w+), (\d+) islands x (\d+), (\d+) generations, seed (\d+), polish (\w+)")
+        text, r"^search\s+(\w+), (\d+) islands x (\d+), (\d+) generations, seed (\d+), polish (\w+)"
+    )
     assert (algo, int(islands), int(pop), int(gens), int(seed), polish) == (
-        s["algorithm"], s["islands"], s["population"], s["generations"], s["seed"], s["polish"])
+        s["algorithm"],
+        s["islands"],
+        s["population"],
+        s["generations"],
+        s["seed"],
+        s["polish"],
+    )
     evals, wall = find(text, r"^effort\s+([\d,]+) evaluations in " + NUM + " s")
     assert int(evals.replace(",", "")) == run["evaluations"] and agrees(wall, run["wall_time_s"])
     # In its own unit and natural sign (record["objective_shown"]), not as minimised.
@@ -91,8 +100,9 @@ def check_summary_against_record(text: str, record: dict):
     (feasible,) = find(text, r"^holds in the search model:\s+(yes|NO)")
     assert (feasible == "yes") == record["feasible"]
     (verified,) = find(text, r"^holds in the verification: (yes|NO|not run yet)")
-    assert {"yes": True, "NO": False, "not run yet": None}[verified] == \
-        record["verification"]["holds"]
+    assert {"yes": True, "NO": False, "not run yet": None}[verified] == record["verification"][
+        "holds"
+    ]
     assert "feasible: yes" not in text
 
     for label, event in (("launch", "launch"), ("DSM", "dsm"), ("return flyby", "flyby")):
@@ -105,34 +115,61 @@ def check_summary_against_record(text: str, record: dict):
     assert agrees(c3, value(record, "c3")) and agrees(vinf, value(record, "launch_vinf"))
     (dsm,) = find(text, rf"^\s+DSM\s+{DATE}\s+{NUM}\s+{NUM} km/s")[2:]
     assert agrees(dsm, value(record, "dsm"))
-    vin, alt = find(text, rf"^\s+return flyby\s+{DATE}\s+{NUM}\s+v-inf {NUM} km/s, "
-                          rf"altitude {NUM} km")[2:]
-    assert agrees(vin, value(record, "flyby_vinf_in")) and agrees(alt, value(record, "flyby_altitude"))
+    vin, alt = find(
+        text,
+        rf"^\s+return flyby\s+{DATE}\s+{NUM}\s+v-inf {NUM} km/s, "
+        rf"altitude {NUM} km",
+    )[2:]
+    assert agrees(vin, value(record, "flyby_vinf_in")) and agrees(
+        alt, value(record, "flyby_altitude")
+    )
 
     c3, dla, rla = find(text, rf"^launch\s+C3 {NUM} km\^2/s\^2, DLA {NUM} deg, RLA {NUM} deg")
     assert agrees(c3, value(record, "c3"))
     assert agrees(dla, value(record, "dla")) and agrees(rla, value(record, "rla"))
-    got = find(text, rf"^DSM\s+{NUM} km/s\s+\(radial {NUM} km/s, along-track {NUM} km/s, "
-                     rf"normal {NUM} km/s\)")
+    got = find(
+        text,
+        rf"^DSM\s+{NUM} km/s\s+\(radial {NUM} km/s, along-track {NUM} km/s, "
+        rf"normal {NUM} km/s\)",
+    )
     for printed, key in zip(got, ("dsm", "dsm_radial", "dsm_along_track", "dsm_normal")):
         assert agrees(printed, value(record, key)), key
     revs, root = find(text, r"Lambert arc: (\d+) revolutions?, (low|high)-path root")
     assert int(revs) == value(record, "lambert_revolutions")
     assert (root == "low") == bool(value(record, "lambert_low_path"))
-    got = find(text, rf"^flyby\s+altitude {NUM} km, turn {NUM} deg \(largest allowed {NUM} deg\), "
-                     rf"B-plane angle {NUM} deg")
-    for printed, key in zip(got, ("flyby_altitude", "turn_angle", "max_turn_angle", "bplane_angle")):
+    got = find(
+        text,
+        rf"^flyby\s+altitude {NUM} km, turn {NUM} deg \(largest allowed {NUM} deg\), "
+        rf"B-plane angle {NUM} deg",
+    )
+    for printed, key in zip(
+        got, ("flyby_altitude", "turn_angle", "max_turn_angle", "bplane_angle")
+    ):
         assert agrees(printed, value(record, key)), key
-    got = find(text, rf"^v-inf\s+launch {NUM} km/s, flyby in {NUM} km/s, out {NUM} km/s, "
-                     rf"gain {NUM} km/s")
+    got = find(
+        text,
+        rf"^v-inf\s+launch {NUM} km/s, flyby in {NUM} km/s, out {NUM} km/s, "
+        rf"gain {NUM} km/s",
+    )
     for printed, key in zip(got, ("launch_vinf", "flyby_vinf_in", "flyby_vinf_out", "vinf_gain")):
         assert agrees(printed, value(record, key)), key
     (ratio,) = find(text, rf"^leverage\s+{NUM} km/s per km/s")
     assert agrees(ratio, value(record, "leverage_ratio"))
-    got = find(text, rf"^outgoing\s+a {NUM} au, e {NUM}, i {NUM} deg, perihelion {NUM} au, "
-                     rf"aphelion {NUM} au")
-    for printed, key in zip(got, ("outgoing_sma", "outgoing_eccentricity", "outgoing_inclination",
-                                  "outgoing_perihelion", "outgoing_aphelion")):
+    got = find(
+        text,
+        rf"^outgoing\s+a {NUM} au, e {NUM}, i {NUM} deg, perihelion {NUM} au, "
+        rf"aphelion {NUM} au",
+    )
+    for printed, key in zip(
+        got,
+        (
+            "outgoing_sma",
+            "outgoing_eccentricity",
+            "outgoing_inclination",
+            "outgoing_perihelion",
+            "outgoing_aphelion",
+        ),
+    ):
         assert agrees(printed, value(record, key)), key
 
     assert record["margins"], "a run always has margins"
@@ -140,7 +177,8 @@ def check_summary_against_record(text: str, record: dict):
     for limit, m in record["margins"].items():
         # name, stated limit, margin asked, margin in the search model, in the verification
         asked, printed, verified, state = find(
-            text, rf"^\s+{limit}\s+.*?\s{NUM}\s+{NUM}\s+(\S+)\s+(?:\S+\s+)?(ok|VIOLATED)$")
+            text, rf"^\s+{limit}\s+.*?\s{NUM}\s+{NUM}\s+(\S+)\s+(?:\S+\s+)?(ok|VIOLATED)$"
+        )
         assert agrees(asked, m["required_margin"]) and agrees(printed, m["margin"]), limit
         assert (state == "ok") == m["holds"], limit
         assert m["holds"] == (m["margin"] >= m["required_margin"] - 1e-9), limit
@@ -180,7 +218,8 @@ def check_run_folder(out: Path, problem: Path, seed: int | None = None) -> dict:
     assert d["c3"]["unit"] == "km^2/s^2" and d["dsm"]["unit"] == "km/s"
     assert value(record, "c3") == pytest.approx(value(record, "launch_vinf") ** 2, rel=1e-9)
     assert value(record, "vinf_gain") == pytest.approx(
-        value(record, "flyby_vinf_in") - value(record, "launch_vinf"), abs=1e-9)
+        value(record, "flyby_vinf_in") - value(record, "launch_vinf"), abs=1e-9
+    )
     assert [e["event"] for e in record["events"]][:3] == ["launch", "dsm", "flyby"]
 
     summary = (out / "summary.txt").read_text(encoding="utf-8")
@@ -216,6 +255,7 @@ def check_convergence_log(path: Path, record: dict):
 
 
 # ---------------------------------------------------------------- runs
+
 
 @pytest.mark.slow
 def test_demo_run_from_the_readme(tmp_path, full_size, capsys):
@@ -253,14 +293,31 @@ def test_no_feasible_design_exits_3(tmp_path, no_pictures, capsys):
     and at most 0.5 km/s of DSM. Earth moves at ~30 km/s and the spacecraft leaves it at
     under 35 km/s, so even a head-on return is far below 70 km/s."""
     text = (PROBLEMS / "demo.toml").read_text(encoding="utf-8")
-    text = text.replace("min_outgoing_vinf_km_s = 7.5",
-                        "min_outgoing_vinf_km_s = 70.0\ndsm_budget_km_s = 0.5")
+    text = text.replace(
+        "min_outgoing_vinf_km_s = 7.5", "min_outgoing_vinf_km_s = 70.0\ndsm_budget_km_s = 0.5"
+    )
     assert "70.0" in text
     problem = tmp_path / "unreachable.toml"
     problem.write_text(text, encoding="utf-8")
     out = tmp_path / "out"
-    assert main(["run", str(problem), "--out", str(out), "--quiet", "--workers", "1",
-                 "--generations", "40", "--population", "16"]) == 3
+    assert (
+        main(
+            [
+                "run",
+                str(problem),
+                "--out",
+                str(out),
+                "--quiet",
+                "--workers",
+                "1",
+                "--generations",
+                "40",
+                "--population",
+                "16",
+            ]
+        )
+        == 3
+    )
     record = json.loads((out / "best.json").read_text(encoding="utf-8"))
     assert record["feasible"] is False
     assert record["margins"]["min_outgoing_vinf"]["holds"] is False
@@ -304,6 +361,7 @@ def test_check_lists_variables_with_bounds_and_units(name, capsys):
     assert main(["check", str(path), "--samples", "3"]) == 0
     out = capsys.readouterr().out
     from leverage.problem.load import load_problem
+
     compiled = load_problem(path).compile()
     for var, lo, hi, unit in zip(compiled.names, compiled.lower, compiled.upper, compiled.units):
         line = next((ln for ln in out.splitlines() if ln.split()[:1] == [var]), None)

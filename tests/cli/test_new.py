@@ -3,6 +3,7 @@ checks cleanly, lists every schema key, and an existing file is not overwritten.
 
 Outside sources: none (the schema table in leverage/schema.py is the reference).
 """
+
 import pytest
 
 from leverage.cli import main
@@ -25,7 +26,9 @@ def test_template_loads_and_checks(tmp_path, template, capsys):
     if template == "target":
         assert problem.target is not None
     if template == "mass":
-        assert problem.vehicle is not None and problem.values["goal"]["kind"] == "max_delivered_mass"
+        assert (
+            problem.vehicle is not None and problem.values["goal"]["kind"] == "max_delivered_mass"
+        )
     if template == "front":
         assert problem.compile().n_obj == 2
     if template == "multi-year":

@@ -4,6 +4,7 @@ No outside numbers are involved: the table must repeat each record's own values.
 fixture is a real small run of the (invented) demo problem; a second and third
 folder are copies of it with one problem-file setting and some record fields changed.
 """
+
 import json
 import shutil
 
@@ -23,14 +24,19 @@ def folders(demo_result, tmp_path_factory):
     b = root / "higher-flyby"
     shutil.copytree(demo_result, b)
     text = (b / "problem.toml").read_text()
-    (b / "problem.toml").write_text(text.replace("min_altitude_km = 300.0",
-                                                 "min_altitude_km = 1000.0"))
+    (b / "problem.toml").write_text(
+        text.replace("min_altitude_km = 300.0", "min_altitude_km = 1000.0")
+    )
     record = read_json(b / "best.json")
     record["margins"]["min_flyby_altitude"]["margin"] = -12.5
     record["margins"]["min_flyby_altitude"]["holds"] = False
     record["feasible"] = False
-    record["verification"] = {"holds": False, "status": "done", "broken": [
-        {"limit": "min_flyby_altitude", "check": -12.5, "unit": "km"}], "margins": []}
+    record["verification"] = {
+        "holds": False,
+        "status": "done",
+        "broken": [{"limit": "min_flyby_altitude", "check": -12.5, "unit": "km"}],
+        "margins": [],
+    }
     record["run"]["evaluations"] = 123456
     (b / "best.json").write_text(json.dumps(record))
     return a, b
@@ -96,13 +102,19 @@ def test_show_says_whether_a_result_was_refined(folders, capsys, tmp_path):
     assert main(["show", str(folder)]) == 0
     assert "refined   not yet (leverage refine RESULT_DIR" in capsys.readouterr().out
     (folder / "refined").mkdir()
-    (folder / "refined" / "refined.json").write_text(json.dumps(
-        {"status": "converged", "derived": {"dsm": {"value": 0.8011, "unit": "km/s",
-                                                    "patched_conic": 0.8112}}}))
+    (folder / "refined" / "refined.json").write_text(
+        json.dumps(
+            {
+                "status": "converged",
+                "derived": {"dsm": {"value": 0.8011, "unit": "km/s", "patched_conic": 0.8112}},
+            }
+        )
+    )
     assert main(["show", str(folder)]) == 0
     out = capsys.readouterr().out
     assert "refined   converged in an n-body model; DSM 0.8112 -> 0.8011 km/s (-10.1 m/s)" in out
     assert main(["show", str(folder), str(a)]) == 0
-    row = next(ln for ln in capsys.readouterr().out.splitlines()
-               if ln.startswith("refined DSM (km/s)"))
+    row = next(
+        ln for ln in capsys.readouterr().out.splitlines() if ln.startswith("refined DSM (km/s)")
+    )
     assert row.split()[-2:] == ["0.8011", "not"] or row.endswith("not yet")

@@ -14,6 +14,7 @@ Outside sources:
 The Earth row of Standish's Table 1 is the Earth-Moon barycentre; it is compared with
 astropy's 'earth-moon-barycenter' (plan94's EMB), not with the Earth.
 """
+
 import astropy.units as u
 import numpy as np
 import pytest
@@ -65,10 +66,13 @@ def reference():
     sun_v = sun_v.xyz.to_value(u.km / u.s).T
     out = {"sun": sun_p}
     for name in PLANETS:
-        p, v = get_body_barycentric_posvel(ASTROPY_NAME.get(name, name), times,
-                                           ephemeris="builtin")
-        out[name] = (p.xyz.to_value(u.km).T, v.xyz.to_value(u.km / u.s).T,
-                     p.xyz.to_value(u.km).T - sun_p, v.xyz.to_value(u.km / u.s).T - sun_v)
+        p, v = get_body_barycentric_posvel(ASTROPY_NAME.get(name, name), times, ephemeris="builtin")
+        out[name] = (
+            p.xyz.to_value(u.km).T,
+            v.xyz.to_value(u.km / u.s).T,
+            p.xyz.to_value(u.km).T - sun_p,
+            v.xyz.to_value(u.km / u.s).T - sun_v,
+        )
     return out
 
 
@@ -135,11 +139,15 @@ def test_mean_elements_at_j2000_sun_distance():
 
 # ---------------------------------------------------------------- osculating orbits
 
-@pytest.mark.parametrize("elements", [
-    (2.3 * AU_KM, 0.25, 12.0, 80.0, 150.0, 40.0),
-    (0.9 * AU_KM, 0.6, 3.0, 300.0, 20.0, -170.0),
-    (5.2 * AU_KM, 0.05, 1.3, 100.0, 275.0, 10.0),
-])
+
+@pytest.mark.parametrize(
+    "elements",
+    [
+        (2.3 * AU_KM, 0.25, 12.0, 80.0, 150.0, 40.0),
+        (0.9 * AU_KM, 0.6, 3.0, 300.0, 20.0, -170.0),
+        (5.2 * AU_KM, 0.05, 1.3, 100.0, 275.0, 10.0),
+    ],
+)
 def test_osculating_state_follows_two_body_motion(elements):
     epoch = 123456789.0  # s TDB past J2000
     eph = osculating_array(*elements, epoch)

@@ -13,6 +13,7 @@ Outside sources:
 - Geometry of an unpowered flyby (common practice): |v_inf| unchanged, the angle
   between the asymptotes is the turn angle, the velocity turns toward the planet.
 """
+
 import numpy as np
 import pytest
 from hypothesis import assume, given, settings
@@ -39,9 +40,10 @@ def _direction(lon_lat):
 
 # ---------------------------------------------------------------- hyperbola relations
 
+
 def test_hyperbola_sma_and_ecc():
     # Curtis sec. 8.9 (a = -mu/v^2, e = 1 + r_p v^2/mu), checked on Example 8.6's numbers.
-    assert flyby.hyperbola_sma(MU_VENUS, 3.7345) == pytest.approx(-MU_VENUS / 3.7345 ** 2, rel=1e-15)
+    assert flyby.hyperbola_sma(MU_VENUS, 3.7345) == pytest.approx(-MU_VENUS / 3.7345**2, rel=1e-15)
     assert flyby.hyperbola_sma(MU_VENUS, 3.7345) == pytest.approx(-23296.0, abs=1.0)
     assert flyby.hyperbola_ecc(MU_VENUS, 3.7345, 6352.0) == pytest.approx(1.2727, abs=1e-4)
 
@@ -53,7 +55,9 @@ def test_periapsis_for_turn_inverts_turn_angle(mu, vinf, turn):
     assert rp > 0.0
     assert flyby.turn_angle(mu, vinf, rp) == pytest.approx(turn, rel=1e-9, abs=1e-12)
     # and the other way round
-    assert flyby.periapsis_for_turn(mu, vinf, flyby.turn_angle(mu, vinf, rp)) == pytest.approx(rp, rel=1e-7)
+    assert flyby.periapsis_for_turn(mu, vinf, flyby.turn_angle(mu, vinf, rp)) == pytest.approx(
+        rp, rel=1e-7
+    )
 
 
 def test_zero_turn_needs_infinite_periapsis():
@@ -64,7 +68,7 @@ def test_zero_turn_needs_infinite_periapsis():
 @given(st.floats(1e3, 1.3e8), st.floats(0.5, 30.0), st.floats(1e3, 1e6), st.floats(1.01, 10.0))
 def test_max_turn_is_the_turn_at_minimum_periapsis(mu, vinf, rp_min, factor):
     delta_max = flyby.max_turn(mu, vinf, rp_min)
-    e = 1.0 + rp_min * vinf ** 2 / mu  # Curtis sec. 8.9
+    e = 1.0 + rp_min * vinf**2 / mu  # Curtis sec. 8.9
     assert delta_max == pytest.approx(2.0 * np.arcsin(1.0 / e), rel=1e-12)
     # A higher pass turns less.
     assert flyby.turn_angle(mu, vinf, factor * rp_min) < delta_max
@@ -72,9 +76,11 @@ def test_max_turn_is_the_turn_at_minimum_periapsis(mu, vinf, rp_min, factor):
 
 # ---------------------------------------------------------------- B-plane geometry
 
+
 @settings(deadline=None, max_examples=60)
-@given(unit_dirs, st.floats(0.5, 20.0), st.floats(0.0, np.pi), st.floats(0.0, 2.0 * np.pi),
-       unit_dirs)
+@given(
+    unit_dirs, st.floats(0.5, 20.0), st.floats(0.0, np.pi), st.floats(0.0, 2.0 * np.pi), unit_dirs
+)
 def test_outgoing_vinf_geometry(direction, speed, turn, theta, pole_dir):
     vin = speed * _direction(direction)
     pole = _direction(pole_dir)
@@ -95,8 +101,13 @@ def test_outgoing_vinf_geometry(direction, speed, turn, theta, pole_dir):
 
 
 @settings(deadline=None, max_examples=60)
-@given(unit_dirs, st.floats(0.5, 20.0), st.floats(0.01, np.pi - 0.01),
-       st.floats(0.0, 2.0 * np.pi), unit_dirs)
+@given(
+    unit_dirs,
+    st.floats(0.5, 20.0),
+    st.floats(0.01, np.pi - 0.01),
+    st.floats(0.0, 2.0 * np.pi),
+    unit_dirs,
+)
 def test_bplane_angle_of_inverts_outgoing_vinf(direction, speed, turn, theta, pole_dir):
     vin = speed * _direction(direction)
     pole = _direction(pole_dir)
@@ -108,6 +119,7 @@ def test_bplane_angle_of_inverts_outgoing_vinf(direction, speed, turn, theta, po
 
 
 # ---------------------------------------------------------------- Curtis Example 8.6
+
 
 def _curtis_8_6_arrival():
     """Heliocentric state at Venus in the book's axes: x = V (Venus's velocity),
@@ -128,20 +140,26 @@ def _curtis_8_6_arrival():
 
 def test_curtis_example_8_6_vinf_and_turn():
     r_v, v_v, v_sc = _curtis_8_6_arrival()
-    np.testing.assert_allclose(np.cross(r_v, v_v) / np.linalg.norm(np.cross(r_v, v_v)),
-                               [0.0, 0.0, 1.0], atol=1e-15)
+    np.testing.assert_allclose(
+        np.cross(r_v, v_v) / np.linalg.norm(np.cross(r_v, v_v)), [0.0, 0.0, 1.0], atol=1e-15
+    )
     vinf = v_sc - v_v
     # Independent recomputation of Curtis Example 8.6: v_inf = 3.7345 km/s.
     assert np.linalg.norm(vinf) == pytest.approx(3.7345, abs=2e-4)
     rp = 6052.0 + 300.0  # Curtis Example 8.6: Venus radius 6052 km, altitude 300 km
     # Curtis Example 8.6: turn angle 103.6 deg.
-    assert np.degrees(flyby.turn_angle(MU_VENUS, np.linalg.norm(vinf), rp)) == pytest.approx(103.6, abs=0.05)
+    assert np.degrees(flyby.turn_angle(MU_VENUS, np.linalg.norm(vinf), rp)) == pytest.approx(
+        103.6, abs=0.05
+    )
 
 
-@pytest.mark.parametrize("side, v_after", [
-    ("dark", (31.73, 1.766)),     # Curtis Example 8.6 (a): dark-side approach, (V, S) km/s
-    ("sunlit", (37.14, -3.074)),  # Curtis Example 8.6 (b): sunlit-side approach
-])
+@pytest.mark.parametrize(
+    "side, v_after",
+    [
+        ("dark", (31.73, 1.766)),  # Curtis Example 8.6 (a): dark-side approach, (V, S) km/s
+        ("sunlit", (37.14, -3.074)),  # Curtis Example 8.6 (b): sunlit-side approach
+    ],
+)
 def test_curtis_example_8_6_post_flyby_velocity(side, v_after):
     r_v, v_v, v_sc = _curtis_8_6_arrival()
     vinf = v_sc - v_v
@@ -173,8 +191,14 @@ MU_SUN = 1.32712440041279419e11
 
 
 @settings(deadline=None, max_examples=60)
-@given(st.floats(0.5, 30.0), st.floats(0.02, 0.4), unit_dirs, st.floats(0.0, np.pi),
-       st.floats(0.0, 2.0 * np.pi), st.floats(0.0, 2.0 * np.pi))
+@given(
+    st.floats(0.5, 30.0),
+    st.floats(0.02, 0.4),
+    unit_dirs,
+    st.floats(0.0, np.pi),
+    st.floats(0.0, 2.0 * np.pi),
+    st.floats(0.0, 2.0 * np.pi),
+)
 def test_tisserand_conserved_and_sets_vinf(a_body_au, vinf_ratio, direction, turn, theta, phase):
     a_body = a_body_au * AU
     speed = np.sqrt(MU_SUN / a_body)
@@ -209,8 +233,9 @@ def test_turn_matches_poliastro_compute_flyby(vinf, rp):
     mu = 398_600.4418  # Earth, IERS Conventions (2010)
     v_body = np.array([-10.0, 27.0, 0.3])
     vin = vinf * _direction((0.7, 0.4))
-    v_out, delta = compute_flyby((v_body + vin) * u.km / u.s, v_body * u.km / u.s,
-                                 mu * u.km ** 3 / u.s ** 2, rp * u.km)
+    v_out, delta = compute_flyby(
+        (v_body + vin) * u.km / u.s, v_body * u.km / u.s, mu * u.km**3 / u.s**2, rp * u.km
+    )
     vout_poliastro = v_out.to_value(u.km / u.s) - v_body
     turn = flyby.turn_angle(mu, vinf, rp)
     assert delta.to_value(u.rad) == pytest.approx(turn, rel=1e-12)

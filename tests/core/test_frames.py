@@ -11,6 +11,7 @@ Outside sources:
   the EME2000 equator, at RA = pole RA + 90 deg (IAU WGCCRE convention);
   RTN/RSW frame (Vallado, Fundamentals of Astrodynamics and Applications, sec. 3.3).
 """
+
 import astropy.units as u
 import numpy as np
 import pytest
@@ -43,8 +44,9 @@ def test_equatorial_to_ecliptic_matches_astropy():
 
 def test_ecliptic_to_equatorial_matches_astropy():
     vs = _directions(40, 2)
-    coords = SkyCoord(CartesianRepresentation(vs.T * u.km),
-                      frame=BarycentricMeanEcliptic(equinox="J2000"))
+    coords = SkyCoord(
+        CartesianRepresentation(vs.T * u.km), frame=BarycentricMeanEcliptic(equinox="J2000")
+    )
     ref = coords.transform_to(ICRS()).cartesian.xyz.to_value(u.km).T
     for v, v_ref in zip(vs, ref):
         ours = frames.ecliptic_to_equatorial(v)
@@ -66,8 +68,9 @@ def test_round_trip_and_length(vec):
     v = np.array(vec)
     eq = frames.ecliptic_to_equatorial(v)
     assert np.linalg.norm(eq) == pytest.approx(np.linalg.norm(v), rel=1e-14, abs=1e-12)
-    np.testing.assert_allclose(frames.equatorial_to_ecliptic(eq), v, rtol=0,
-                               atol=1e-14 * max(1.0, np.linalg.norm(v)))
+    np.testing.assert_allclose(
+        frames.equatorial_to_ecliptic(eq), v, rtol=0, atol=1e-14 * max(1.0, np.linalg.norm(v))
+    )
 
 
 # ---------------------------------------------------------------- launch asymptote
@@ -115,9 +118,14 @@ def test_launch_asymptote_zero_vector():
     assert frames.launch_asymptote(np.zeros(3), *EARTH_POLE) == (0.0, 0.0, 0.0)
 
 
-@pytest.mark.parametrize("pole_ra_deg, pole_dec_deg", [(317.269202, 54.432516),  # Mars
-                                                       (268.056595, 64.495303),  # Jupiter
-                                                       (40.0, -20.0)])
+@pytest.mark.parametrize(
+    "pole_ra_deg, pole_dec_deg",
+    [
+        (317.269202, 54.432516),  # Mars
+        (268.056595, 64.495303),  # Jupiter
+        (40.0, -20.0),
+    ],
+)
 def test_launch_asymptote_body_equator(pole_ra_deg, pole_dec_deg):
     ra, dec = np.radians(pole_ra_deg), np.radians(pole_dec_deg)
 
@@ -127,8 +135,12 @@ def test_launch_asymptote_body_equator(pole_ra_deg, pole_dec_deg):
     pole = eme(ra, dec)
     node = eme(ra + 0.5 * np.pi, 0.0)  # x axis: RA = pole RA + 90 deg on the equator
     y_axis = np.cross(pole, node)
-    for vec, dla_ref, rla_ref in [(pole, 90.0, None), (node, 0.0, 0.0), (y_axis, 0.0, 90.0),
-                                  (-node, 0.0, 180.0)]:
+    for vec, dla_ref, rla_ref in [
+        (pole, 90.0, None),
+        (node, 0.0, 0.0),
+        (y_axis, 0.0, 90.0),
+        (-node, 0.0, 180.0),
+    ]:
         _, dla, rla = frames.launch_asymptote(frames.equatorial_to_ecliptic(2.5 * vec), ra, dec)
         assert np.degrees(dla) == pytest.approx(dla_ref, abs=1e-7)
         if rla_ref is not None:
@@ -136,6 +148,7 @@ def test_launch_asymptote_body_equator(pole_ra_deg, pole_dec_deg):
 
 
 # ---------------------------------------------------------------- local frames
+
 
 def test_rtn_components_known_vectors():
     # Circular orbit along +y at +x: R = x, T = y, N = z.

@@ -14,6 +14,7 @@ Outside sources:
   r = a (1 - e cos E), escape speed sqrt(2) times circular speed; conservation of
   energy and angular momentum; time reversibility.
 """
+
 import numpy as np
 import pytest
 from hypothesis import assume, given, settings
@@ -35,6 +36,7 @@ MU_EARTH_CURTIS = 398600.0  # Curtis's value in his examples.
 
 
 # ---------------------------------------------------------------- published cases
+
 
 def test_vallado_example_2_4():
     r0 = np.array([1131.340, -2282.343, 6672.423])
@@ -65,7 +67,9 @@ def test_curtis_example_3_5_propagation():
     # r = 48 497 km; the book rounds the time to 1 s (about 0.0024 deg, ~5 km there).
     r, v, ok = propagate(MU_EARTH_CURTIS, r0, v0, 4141.0)
     assert ok
-    assert np.degrees(elements_from_state(MU_EARTH_CURTIS, r, v)[5]) == pytest.approx(100.0, abs=0.01)
+    assert np.degrees(elements_from_state(MU_EARTH_CURTIS, r, v)[5]) == pytest.approx(
+        100.0, abs=0.01
+    )
     assert np.linalg.norm(r) == pytest.approx(48497.0, abs=10.0)
     # Curtis Example 3.5: three hours later (t = 14 941 s) r = 163 180 km, v = 10.51 km/s.
     # The book carries 4-5 significant figures through the hyperbolic Kepler
@@ -94,11 +98,13 @@ def test_vallado_example_2_5_elements():
 
 # ---------------------------------------------------------------- Kepler's equation
 
+
 @pytest.mark.parametrize("ecc", [0.0, 0.01, 0.1, 0.3, 0.5, 0.7, 0.8, 0.9, 0.95])
 def test_eccentric_from_mean_matches_brentq(ecc):
     for m in np.linspace(-np.pi, np.pi, 73)[:-1]:
-        ref = brentq(lambda e_anom: e_anom - ecc * np.sin(e_anom) - m, -np.pi - 1.0,
-                     np.pi + 1.0, xtol=1e-15)
+        ref = brentq(
+            lambda e_anom: e_anom - ecc * np.sin(e_anom) - m, -np.pi - 1.0, np.pi + 1.0, xtol=1e-15
+        )
         assert eccentric_from_mean(m, ecc) == pytest.approx(ref, abs=1e-10)
 
 
@@ -120,13 +126,19 @@ def test_true_from_eccentric_known_values():
 
 # ---------------------------------------------------------------- elements <-> state
 
+
 def _angle_diff(x, y):
     return abs((x - y + np.pi) % (2.0 * np.pi) - np.pi)
 
 
-elements = st.tuples(st.floats(7000.0, 2e8), st.floats(0.01, 0.9), st.floats(0.05, np.pi - 0.05),
-                     st.floats(0.0, 2 * np.pi), st.floats(0.0, 2 * np.pi),
-                     st.floats(-np.pi, np.pi))
+elements = st.tuples(
+    st.floats(7000.0, 2e8),
+    st.floats(0.01, 0.9),
+    st.floats(0.05, np.pi - 0.05),
+    st.floats(0.0, 2 * np.pi),
+    st.floats(0.0, 2 * np.pi),
+    st.floats(-np.pi, np.pi),
+)
 
 
 @settings(deadline=None, max_examples=60)
@@ -141,7 +153,8 @@ def test_elements_round_trip(el):
     assert orbit_energy(mu, r, v) == pytest.approx(-mu / (2.0 * a), rel=1e-10)
     h = np.cross(r, v)
     h_ref = np.sqrt(mu * a * (1.0 - ecc * ecc)) * np.array(
-        [np.sin(inc) * np.sin(raan), -np.sin(inc) * np.cos(raan), np.cos(inc)])
+        [np.sin(inc) * np.sin(raan), -np.sin(inc) * np.cos(raan), np.cos(inc)]
+    )
     np.testing.assert_allclose(h, h_ref, rtol=0, atol=1e-10 * np.linalg.norm(h_ref))
     # Round trip through elements_from_state.
     a2, e2, i2, raan2, argp2, nu2 = elements_from_state(mu, r, v)
@@ -156,8 +169,13 @@ def test_elements_round_trip(el):
 
 # ---------------------------------------------------------------- propagation properties
 
-states = st.tuples(st.floats(6600.0, 60000.0), st.floats(0.2, 1.8), st.floats(0.0, np.pi),
-                   st.floats(0.0, 2.0 * np.pi), st.floats(-1.2, 1.2))
+states = st.tuples(
+    st.floats(6600.0, 60000.0),
+    st.floats(0.2, 1.8),
+    st.floats(0.0, np.pi),
+    st.floats(0.0, 2.0 * np.pi),
+    st.floats(-1.2, 1.2),
+)
 
 
 def _state(radius, speed_over_circular, flight_dir, lon, lat):
@@ -208,14 +226,33 @@ def test_forward_then_backward_returns_start(state, tof):
     assert np.linalg.norm(v2 - v0) <= 1e-9 * max(np.linalg.norm(v0), np.linalg.norm(v1))
 
 
-@pytest.mark.parametrize("state, tof", [
-    # Nearly rectilinear ellipses (e = 0.992 .. 0.99995) found by a random search:
-    # poliastro 0.17's vallado kernel, used before, ran out of its 350 iterations here.
-    ((25592.329184002796, 1.3024207119184414, 0.007602773979682048, 3.2403211767015083,
-      -1.0516555044243472), 179731.48641604325),
-    ((12386.921932480756, 0.5606802599487024, 0.1728130800044501, 0.10445066776326027,
-      -0.44696110600045336), -172050.1378376695),
-])
+@pytest.mark.parametrize(
+    "state, tof",
+    [
+        # Nearly rectilinear ellipses (e = 0.992 .. 0.99995) found by a random search:
+        # poliastro 0.17's vallado kernel, used before, ran out of its 350 iterations here.
+        (
+            (
+                25592.329184002796,
+                1.3024207119184414,
+                0.007602773979682048,
+                3.2403211767015083,
+                -1.0516555044243472,
+            ),
+            179731.48641604325,
+        ),
+        (
+            (
+                12386.921932480756,
+                0.5606802599487024,
+                0.1728130800044501,
+                0.10445066776326027,
+                -0.44696110600045336,
+            ),
+            -172050.1378376695,
+        ),
+    ],
+)
 def test_nearly_rectilinear_ellipse(state, tof):
     r0, v0 = _state(*state)
     r, v, ok = propagate(MU_EARTH, r0, v0, tof)
@@ -224,7 +261,7 @@ def test_nearly_rectilinear_ellipse(state, tof):
     assert ecc > 0.99
     # Independent check: r = a (1 - e cos E) from Kepler's equation (brentq).
     e0 = np.arccos((1.0 - np.linalg.norm(r0) / a) / ecc) * np.sign(r0 @ v0)
-    m = wrap_pi(e0 - ecc * np.sin(e0) + np.sqrt(MU_EARTH / a ** 3) * tof)
+    m = wrap_pi(e0 - ecc * np.sin(e0) + np.sqrt(MU_EARTH / a**3) * tof)
     e_anom = brentq(lambda x: x - ecc * np.sin(x) - m, -np.pi - 1.0, np.pi + 1.0, xtol=1e-15)
     assert np.linalg.norm(r) == pytest.approx(a * (1.0 - ecc * np.cos(e_anom)), rel=1e-7)
     assert orbit_energy(MU_EARTH, r, v) == pytest.approx(orbit_energy(MU_EARTH, r0, v0), rel=1e-9)
@@ -234,8 +271,13 @@ def test_hyperbola_nearly_radial_inbound():
     # Found by a random search: poliastro 0.17's vallado kernel, used before, never
     # returned here (its hyperbolic starting guess is the log of a negative number,
     # and its Stumpff series loops forever on NaN).
-    r0, v0 = _state(41740.27580812939, 1.4144068159144652, 3.1366488398587995,
-                    5.758408967619512, -0.6058819747284524)
+    r0, v0 = _state(
+        41740.27580812939,
+        1.4144068159144652,
+        3.1366488398587995,
+        5.758408967619512,
+        -0.6058819747284524,
+    )
     tof = 41002.101597896864
     r, v, ok = propagate(MU_EARTH, r0, v0, tof)
     assert ok
@@ -257,7 +299,7 @@ def test_hyperbola_very_long_times(tof, rel):
     r, v, ok = propagate(MU_EARTH, r0, v0, tof)
     assert ok
     v_inf = np.sqrt(v0 @ v0 - 2.0 * MU_EARTH / 7000.0)
-    assert orbit_energy(MU_EARTH, r, v) == pytest.approx(0.5 * v_inf ** 2, rel=1e-9)
+    assert orbit_energy(MU_EARTH, r, v) == pytest.approx(0.5 * v_inf**2, rel=1e-9)
     if rel is not None:
         # Far out r = v_inf |t| + (mu / v_inf^2) ln(...) (common practice): the log
         # term is ~5e-5 of r at 1e9 s and ~5e-8 at 1e12 s.
@@ -280,16 +322,22 @@ def test_non_finite_input_returns_flag(bad):
 
 
 @settings(deadline=None, max_examples=60)
-@given(st.floats(7000.0, 100000.0), st.floats(0.0, 0.9), st.floats(0.0, np.pi),
-       st.floats(0.0, 2.0 * np.pi), st.floats(0.0, 2.0 * np.pi), st.floats(-np.pi, np.pi),
-       st.floats(-3.0, 3.0))
+@given(
+    st.floats(7000.0, 100000.0),
+    st.floats(0.0, 0.9),
+    st.floats(0.0, np.pi),
+    st.floats(0.0, 2.0 * np.pi),
+    st.floats(0.0, 2.0 * np.pi),
+    st.floats(-np.pi, np.pi),
+    st.floats(-3.0, 3.0),
+)
 def test_matches_keplers_equation(a, ecc, inc, raan, argp, m0, periods):
     # Independent path for an ellipse: advance the mean anomaly by n t and solve
     # Kepler's equation with brentq (reference root finder), then r = a (1 - e cos E)
     # and the in-plane angle from the true anomaly.
     assume(a * (1.0 - ecc) > 6378.0)
     r0, v0 = state_from_elements(MU_EARTH, a, ecc, inc, raan, argp, m0)
-    n = np.sqrt(MU_EARTH / a ** 3)
+    n = np.sqrt(MU_EARTH / a**3)
     tof = periods * 2.0 * np.pi / n
     r, v, ok = propagate(MU_EARTH, r0, v0, tof)
     assert ok
@@ -317,7 +365,7 @@ def test_zero_time_returns_start(state):
 def test_whole_periods_return_start():
     # An ellipse is periodic with T = 2 pi sqrt(a^3/mu) (Kepler's third law).
     r0, v0 = state_from_elements(MU_EARTH, 26600.0, 0.7, 1.1, 0.3, 4.0, 0.2)
-    period = 2.0 * np.pi * np.sqrt(26600.0 ** 3 / MU_EARTH)
+    period = 2.0 * np.pi * np.sqrt(26600.0**3 / MU_EARTH)
     r, v, ok = propagate(MU_EARTH, r0, v0, 7.0 * period)
     assert ok
     np.testing.assert_allclose(r, r0, atol=1e-9 * 26600.0)
@@ -326,6 +374,7 @@ def test_whole_periods_return_start():
 
 # ---------------------------------------------------------------- escape speed / parabola
 
+
 @settings(deadline=None, max_examples=30)
 @given(st.floats(6600.0, 60000.0), st.floats(0.3, np.pi - 0.3), st.floats(1000.0, 5e5))
 def test_escape_speed_orbit_stays_parabolic(radius, flight_dir, tof):
@@ -333,10 +382,10 @@ def test_escape_speed_orbit_stays_parabolic(radius, flight_dir, tof):
     r0 = np.array([radius, 0.0, 0.0])
     v_circ = np.sqrt(MU_EARTH / radius)
     v0 = np.sqrt(2.0) * v_circ * np.array([np.cos(flight_dir), np.sin(flight_dir), 0.0])
-    assert abs(orbit_energy(MU_EARTH, r0, v0)) <= 1e-12 * v_circ ** 2
+    assert abs(orbit_energy(MU_EARTH, r0, v0)) <= 1e-12 * v_circ**2
     r, v, ok = propagate(MU_EARTH, r0, v0, tof)
     assert ok
-    assert abs(orbit_energy(MU_EARTH, r, v)) <= 1e-9 * v_circ ** 2
+    assert abs(orbit_energy(MU_EARTH, r, v)) <= 1e-9 * v_circ**2
     assert np.linalg.norm(r) > 0.0
 
 
@@ -349,7 +398,7 @@ def test_parabola_from_periapsis_follows_barker(t):
     r0 = np.array([rp, 0.0, 0.0])
     v0 = np.array([0.0, np.sqrt(2.0 * MU_EARTH / rp), 0.0])
     h = rp * v0[1]
-    mp = MU_EARTH ** 2 * t / h ** 3
+    mp = MU_EARTH**2 * t / h**3
     z = 3.0 * mp + np.sqrt((3.0 * mp) ** 2 + 1.0)
     nu = 2.0 * np.arctan(z ** (1.0 / 3.0) - z ** (-1.0 / 3.0))
     r_ref = h * h / MU_EARTH / (1.0 + np.cos(nu))
@@ -373,8 +422,11 @@ def test_agrees_with_poliastro_farnocchia():
         r, v, ok = propagate(mu, r0, v0, tof)
         assert ok
         r_ref, v_ref = farnocchia_rv(mu, r0, v0, tof)
-        worst = max(worst, np.linalg.norm(r - r_ref) / np.linalg.norm(r_ref),
-                    np.linalg.norm(v - v_ref) / np.linalg.norm(v_ref))
+        worst = max(
+            worst,
+            np.linalg.norm(r - r_ref) / np.linalg.norm(r_ref),
+            np.linalg.norm(v - v_ref) / np.linalg.norm(v_ref),
+        )
     assert worst < 1e-8, worst
 
 

@@ -9,6 +9,7 @@ Outside sources:
 - Two-body propagation (leverage.core.kepler.propagate, itself checked against
   Vallado and Curtis in test_kepler.py): a Lambert solution must reach r2 in tof.
 """
+
 import numpy as np
 import pytest
 from hypothesis import assume, given, settings
@@ -22,15 +23,18 @@ MU_EARTH = 398600.4418  # IERS 2010 value, used by Vallado and Der in these exam
 
 
 def _solve(mu, r1, r2, tof, revs=0, prograde=True, low_path=True):
-    return lambert(mu, np.asarray(r1, float), np.asarray(r2, float), float(tof),
-                   revs, prograde, low_path)
+    return lambert(
+        mu, np.asarray(r1, float), np.asarray(r2, float), float(tof), revs, prograde, low_path
+    )
 
 
 # ---------------------------------------------------------------- published cases
 
+
 def test_curtis_example_5_2():
-    v1, v2, ok = _solve(MU_EARTH_CURTIS, (5000.0, 10000.0, 2100.0),
-                        (-14600.0, 2500.0, 7000.0), 3600.0)
+    v1, v2, ok = _solve(
+        MU_EARTH_CURTIS, (5000.0, 10000.0, 2100.0), (-14600.0, 2500.0, 7000.0), 3600.0
+    )
     assert ok
     # Curtis, Example 5.2: v1, v2 (km/s), printed to 5 significant figures.
     np.testing.assert_allclose(v1, [-5.9925, 1.9254, 3.2456], atol=1e-4)
@@ -40,8 +44,9 @@ def test_curtis_example_5_2():
 def test_vallado_lambert_example():
     # mu = 398600.4418 km^3/s^2 (the value Vallado uses for the Earth); with it the
     # published velocities are met to better than 1e-6 km/s.
-    v1, v2, ok = _solve(MU_EARTH, (15945.34, 0.0, 0.0),
-                        (12214.83899, 10249.46731, 0.0), 76.0 * 60.0)
+    v1, v2, ok = _solve(
+        MU_EARTH, (15945.34, 0.0, 0.0), (12214.83899, 10249.46731, 0.0), 76.0 * 60.0
+    )
     assert ok
     # Vallado, Fundamentals of Astrodynamics and Applications, Lambert example
     # (short way, 76 min), from memory.
@@ -53,12 +58,15 @@ DER_I_R1 = (2249.171260, 1898.007100, 5639.599193)
 DER_I_R2 = (1744.495443, -4601.556054, 4043.864391)
 
 
-@pytest.mark.parametrize("prograde, v1_ref, v2_ref", [
-    # Der (2011), Example I, prograde solution.
-    (True, (-2.09572809, 3.92602196, -4.94516810), (2.46309613, 0.84490197, 6.10890863)),
-    # Der (2011), Example I, retrograde solution.
-    (False, (1.94312182, -4.35300015, 4.54630439), (-2.38885563, -1.42519647, -5.95772225)),
-])
+@pytest.mark.parametrize(
+    "prograde, v1_ref, v2_ref",
+    [
+        # Der (2011), Example I, prograde solution.
+        (True, (-2.09572809, 3.92602196, -4.94516810), (2.46309613, 0.84490197, 6.10890863)),
+        # Der (2011), Example I, retrograde solution.
+        (False, (1.94312182, -4.35300015, 4.54630439), (-2.38885563, -1.42519647, -5.95772225)),
+    ],
+)
 def test_der_example_1(prograde, v1_ref, v2_ref):
     v1, v2, ok = _solve(MU_EARTH, DER_I_R1, DER_I_R2, 1618.50, 0, prograde)
     assert ok
@@ -96,8 +104,10 @@ def test_der_example_2_one_revolution_both_roots():
     # Der's v1 for 36000 s gives our v2, not his, to 1e-8 km/s), so that last
     # printed digit cannot be met; all other components agree to 1e-7.
     for v1_ref, v2_ref in published:
-        matches = [np.allclose(v1, v1_ref, atol=1e-6) and np.allclose(v2, v2_ref, atol=1e-6)
-                   for v1, v2 in solutions]
+        matches = [
+            np.allclose(v1, v1_ref, atol=1e-6) and np.allclose(v2, v2_ref, atol=1e-6)
+            for v1, v2 in solutions
+        ]
         assert sum(matches) == 1
 
 
@@ -119,8 +129,14 @@ def test_der_example_2_second_root_published_v2_inconsistency():
 
 # ---------------------------------------------------------------- failure modes
 
-@pytest.mark.parametrize("r2", [(4498.342520, 3796.014200, 11279.198386),  # 2 r1: 0 deg
-                                (-2249.171260, -1898.007100, -5639.599193)])  # -r1: 180 deg
+
+@pytest.mark.parametrize(
+    "r2",
+    [
+        (4498.342520, 3796.014200, 11279.198386),  # 2 r1: 0 deg
+        (-2249.171260, -1898.007100, -5639.599193),
+    ],
+)  # -r1: 180 deg
 def test_collinear_returns_flag(r2):
     v1, v2, ok = _solve(MU_EARTH, DER_I_R1, r2, 3600.0)
     assert not ok
@@ -146,6 +162,7 @@ def test_negative_revolutions_returns_flag():
 
 
 # ---------------------------------------------------------------- branch helpers
+
 
 def test_branch_revs_numbering():
     # Documented numbering: 0 is M = 0; 2M-1 and 2M are the two roots of M.
@@ -177,11 +194,14 @@ def test_branches_give_der_solutions():
         v1, _, ok = _solve(MU_EARTH, DER_II_R1, DER_II_R2, 36000.0, revs, True, low)
         assert ok
         v1s.append(v1)
-    np.testing.assert_allclose(v1s[0], [2.000652697, 0.387688615, -2.666947760], atol=1e-7)  # Der Ex. II
+    np.testing.assert_allclose(
+        v1s[0], [2.000652697, 0.387688615, -2.666947760], atol=1e-7
+    )  # Der Ex. II
     assert np.linalg.norm(v1s[1] - v1s[2]) > 0.1
 
 
 # ---------------------------------------------------------------- propagation property
+
 
 def _vector(radius, lon, lat):
     return radius * np.array([np.cos(lat) * np.cos(lon), np.cos(lat) * np.sin(lon), np.sin(lat)])
@@ -221,10 +241,12 @@ def test_zero_rev_solution_reaches_r2(ra, lona, lata, rb, lonb, latb, tof, progr
 
 
 @settings(deadline=None, max_examples=40)
-@given(radii, lons, lats, radii, lons, lats, st.floats(20000.0, 200000.0), st.booleans(),
-       st.booleans())
-def test_one_rev_solution_reaches_r2_when_ok(ra, lona, lata, rb, lonb, latb, tof, prograde,
-                                             low_path):
+@given(
+    radii, lons, lats, radii, lons, lats, st.floats(20000.0, 200000.0), st.booleans(), st.booleans()
+)
+def test_one_rev_solution_reaches_r2_when_ok(
+    ra, lona, lata, rb, lonb, latb, tof, prograde, low_path
+):
     r1, r2 = _vector(ra, lona, lata), _vector(rb, lonb, latb)
     sin_angle = np.linalg.norm(np.cross(r1, r2)) / (ra * rb)
     assume(sin_angle > 0.05)

@@ -6,6 +6,7 @@ the planet's (or a whole fraction of a whole number of planet periods) meets the
 planet again at the same point after that time, and by symmetry of the unchanged
 orbits its arrival v-infinity equals its departure v-infinity.
 """
+
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -16,7 +17,7 @@ from leverage.core.ephemeris import body_state
 from leverage.core.kepler import elements_from_state, propagate
 
 MU = GM_SUN_KM3_S2
-PLANET_PERIOD_S = 2.0 * np.pi * np.sqrt(AU_KM ** 3 / MU)  # Kepler's third law
+PLANET_PERIOD_S = 2.0 * np.pi * np.sqrt(AU_KM**3 / MU)  # Kepler's third law
 
 
 def _planet(phase_deg):
@@ -33,14 +34,20 @@ def _departure(eph, period_ratio, in_plane, out_of_plane):
     along = v_p / np.linalg.norm(v_p)
     out = r_p / np.linalg.norm(r_p)
     normal = np.cross(out, along)
-    direction = (np.cos(out_of_plane) * (np.cos(in_plane) * along + np.sin(in_plane) * out)
-                 + np.sin(out_of_plane) * normal)
+    direction = (
+        np.cos(out_of_plane) * (np.cos(in_plane) * along + np.sin(in_plane) * out)
+        + np.sin(out_of_plane) * normal
+    )
     return r_p, v_p, speed * direction - v_p
 
 
 @settings(deadline=None, max_examples=30)
-@given(st.sampled_from([(2.0, 2), (1.0, 1), (1.5, 3), (0.75, 3), (0.5, 1)]),
-       st.floats(-0.6, 0.6), st.floats(-0.4, 0.4), st.floats(0.0, 360.0))
+@given(
+    st.sampled_from([(2.0, 2), (1.0, 1), (1.5, 3), (0.75, 3), (0.5, 1)]),
+    st.floats(-0.6, 0.6),
+    st.floats(-0.4, 0.4),
+    st.floats(0.0, 360.0),
+)
 def test_loop_returns_with_same_vinf(ratio_and_planet_revs, in_plane, out_of_plane, phase):
     ratio, planet_revs = ratio_and_planet_revs
     # Spacecraft period = ratio x planet period; both are back after planet_revs

@@ -9,6 +9,7 @@ when every margin slot is >= 0. The penalty's size inside the objective is compa
 an independent re-implementation (benchmarks/unit_aware_baseline.py) in
 tests/core/test_unit_aware.py.
 """
+
 import math
 from pathlib import Path
 
@@ -41,8 +42,11 @@ def test_margin_penalty_is_zero_iff_the_margin_holds(m, s):
 
 
 @settings(deadline=None, max_examples=300)
-@given(m1=st.floats(min_value=-1e6, max_value=0.0), m2=st.floats(min_value=-1e6, max_value=0.0),
-       s=st.floats(min_value=1e-3, max_value=1e9))
+@given(
+    m1=st.floats(min_value=-1e6, max_value=0.0),
+    m2=st.floats(min_value=-1e6, max_value=0.0),
+    s=st.floats(min_value=1e-3, max_value=1e9),
+)
 # Found by this test: both violations so small that v + v^2 is below the floor value
 # SMALLEST_PENALTY, where both penalties are the floor and "twice" cannot hold.
 @example(m1=-2.2250738585072014e-308, m2=-2.225073858507e-311, s=1.0)
@@ -61,7 +65,7 @@ def test_each_violated_margin_alone_costs_its_formula(slot):
     exactly weight * (1 + 1) (v = 1), whichever margin it is; half a scale, 0.5 + 0.25."""
     for v, cost in ((1.0, 2.0), (0.5, 0.75)):
         q = np.zeros(L.N_Q)
-        q[L.Q_MARGIN_ALT_KM:L.Q_MARGIN_ALT_KM + L.N_MARGINS] = np.inf
+        q[L.Q_MARGIN_ALT_KM : L.Q_MARGIN_ALT_KM + L.N_MARGINS] = np.inf
         q[L.Q_MARGIN_ALT_KM + slot] = -v * MARGIN_SCALES[slot]
         assert total_penalty(q, 10.0) == pytest.approx(10.0 * cost, rel=1e-12)
 
@@ -73,13 +77,18 @@ def test_margin_penalty_is_continuous_at_the_limit():
 
 
 @settings(deadline=None, max_examples=300)
-@given(margins=st.lists(st.one_of(st.floats(allow_nan=False), st.just(math.inf)),
-                        min_size=L.N_MARGINS, max_size=L.N_MARGINS),
-       weight=st.floats(min_value=1e-30, max_value=1e3))
+@given(
+    margins=st.lists(
+        st.one_of(st.floats(allow_nan=False), st.just(math.inf)),
+        min_size=L.N_MARGINS,
+        max_size=L.N_MARGINS,
+    ),
+    weight=st.floats(min_value=1e-30, max_value=1e3),
+)
 @example(margins=[-5e-324] + [math.inf] * (L.N_MARGINS - 1), weight=1e-30)
 def test_total_penalty_is_zero_iff_every_margin_holds(margins, weight):
     q = np.zeros(L.N_Q)
-    q[L.Q_MARGIN_ALT_KM:L.Q_MARGIN_ALT_KM + L.N_MARGINS] = margins
+    q[L.Q_MARGIN_ALT_KM : L.Q_MARGIN_ALT_KM + L.N_MARGINS] = margins
     pen = total_penalty(q, weight)
     assert pen >= 0.0
     assert (pen == 0.0) == all(m >= 0.0 for m in margins), (margins, pen)
@@ -97,13 +106,15 @@ def _demo():
 
 
 @settings(deadline=None, max_examples=400)
-@given(u=st.lists(st.floats(min_value=-0.2, max_value=1.2), min_size=L.N_X_LOOP, max_size=L.N_X_LOOP))
+@given(
+    u=st.lists(st.floats(min_value=-0.2, max_value=1.2), min_size=L.N_X_LOOP, max_size=L.N_X_LOOP)
+)
 def test_demo_penalty_is_zero_exactly_when_every_margin_holds(u):
     """End to end: points a little beyond the bounds too, so limits do get violated."""
     c = _demo()
-    x = c.lower + np.asarray(u[:len(c.lower)]) * (c.upper - c.lower)
+    x = c.lower + np.asarray(u[: len(c.lower)]) * (c.upper - c.lower)
     q = details(x, c.params)
-    margins = q[L.Q_MARGIN_ALT_KM:L.Q_MARGIN_ALT_KM + L.N_MARGINS]
+    margins = q[L.Q_MARGIN_ALT_KM : L.Q_MARGIN_ALT_KM + L.N_MARGINS]
     assert (q[L.Q_PENALTY] == 0.0) == bool(np.all(margins >= 0.0)), (x, margins)
     if q[L.Q_OK] != 1.0:
         assert q[L.Q_PENALTY] > 0.0

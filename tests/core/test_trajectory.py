@@ -19,6 +19,7 @@ Outside sources, beside each check:
   after one period: a loop with a zero DSM by construction.
 The random points are drawn from the demo problem (problems/demo.toml, invented).
 """
+
 import math
 from pathlib import Path
 
@@ -50,12 +51,10 @@ def demo():
 
 
 def vec(q, slot):
-    return np.array(q[slot:slot + 3])
+    return np.array(q[slot : slot + 3])
 
 
-
-POINTS = st.lists(st.floats(min_value=0.0, max_value=1.0), min_size=L.N_X_LOOP,
-                  max_size=L.N_X_LOOP)
+POINTS = st.lists(st.floats(min_value=0.0, max_value=1.0), min_size=L.N_X_LOOP, max_size=L.N_X_LOOP)
 
 
 def demo_point(u, revolutions=None):
@@ -72,8 +71,16 @@ def demo_point(u, revolutions=None):
 # Found by this test: a near-parabolic Lambert arc (e = 0.985, 41 km/s of DSM) on which
 # poliastro's universal-variable iteration did not settle at that one time of flight;
 # core.kepler.propagate (own safeguarded solver) must handle it.
-NEAR_PARABOLIC = [0.00390625, 0.7515833207860543, 0.65625, 0.283273024983046, 0.3125,
-                  0.6635009004673834, 0.0, 0.0]
+NEAR_PARABOLIC = [
+    0.00390625,
+    0.7515833207860543,
+    0.65625,
+    0.283273024983046,
+    0.3125,
+    0.6635009004673834,
+    0.0,
+    0.0,
+]
 
 
 @settings(deadline=None, max_examples=200)
@@ -150,8 +157,7 @@ def test_identities_of_one_evaluation(u, revs):
     # Outgoing orbit from the stored post-flyby state: inclination and vis-viva.
     v_out = vec(q, L.Q_V_FLYBY_OUT)
     h_out = np.cross(r2, v_out)
-    assert q[L.Q_OUT_INC] == pytest.approx(math.acos(h_out[2] / np.linalg.norm(h_out)),
-                                           abs=1e-9)
+    assert q[L.Q_OUT_INC] == pytest.approx(math.acos(h_out[2] / np.linalg.norm(h_out)), abs=1e-9)
     energy = 0.5 * (v_out @ v_out) - MU_SUN / np.linalg.norm(r2)
     assert q[L.Q_OUT_A] == pytest.approx(-MU_SUN / (2.0 * energy), rel=1e-8)
     if q[L.Q_OUT_E] < 1.0:
@@ -164,12 +170,15 @@ def _two_body(t, y):
     return np.concatenate([y[3:], -MU_SUN * r / np.linalg.norm(r) ** 3])
 
 
-@pytest.mark.parametrize("u", [
-    NEAR_PARABOLIC,
-    [0.1, 0.9, 0.6, 0.5, 0.3, 0.2, 0.1, 0.5],
-    [0.7, 0.2, 0.1, 0.8, 0.9, 0.7, 0.5, 0.2],
-    [0.4, 0.5, 0.9, 0.3, 0.5, 0.5, 0.9, 0.9],
-])
+@pytest.mark.parametrize(
+    "u",
+    [
+        NEAR_PARABOLIC,
+        [0.1, 0.9, 0.6, 0.5, 0.3, 0.2, 0.1, 0.5],
+        [0.7, 0.2, 0.1, 0.8, 0.9, 0.7, 0.5, 0.2],
+        [0.4, 0.5, 0.9, 0.3, 0.5, 0.5, 0.9, 0.9],
+    ],
+)
 def test_coast_and_arc_agree_with_an_independent_integrator(u):
     """scipy DOP853 from the stored launch state reaches the stored DSM point, and from
     the stored post-DSM state reaches the body at the flyby. Measured: within 2.4 m and
@@ -188,6 +197,7 @@ def test_coast_and_arc_agree_with_an_independent_integrator(u):
 
 # ------------------------------------------------- a zero DSM by construction
 
+
 def _circular_body_case(periods: int, revolutions, vinf=3.0, dsm_fraction=0.3):
     """Demo parameters with the body on a circular 1 au orbit, and a launch whose
     heliocentric speed equals the body's: the orbit has the body's period, so after
@@ -195,27 +205,30 @@ def _circular_body_case(periods: int, revolutions, vinf=3.0, dsm_fraction=0.3):
     c = demo()
     p = c.params.copy()
     a = bodies.AU_KM
-    p[L.P_BODY_EPH:L.P_BODY_EPH + EPHEMERIS_SIZE] = bodies.osculating_array(
-        a, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0)
+    p[L.P_BODY_EPH : L.P_BODY_EPH + EPHEMERIS_SIZE] = bodies.osculating_array(
+        a, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0
+    )
     p[L.P_REV_MIN], p[L.P_REV_MAX] = revolutions
     # No outgoing requirement: the branch is then chosen by DSM alone (with the demo's
     # 7.5 km/s requirement a branch with a large DSM and a large v_inf would win).
     p[L.P_REQ_VINF_OUT_KMS] = 0.0
     vb = math.sqrt(MU_SUN / a)
-    period_days = 2 * math.pi * math.sqrt(a ** 3 / MU_SUN) / DAY
+    period_days = 2 * math.pi * math.sqrt(a**3 / MU_SUN) / DAY
     # |vb + vinf u| = vb  <=>  u . along = -vinf / (2 vb): in-plane angle 180 deg back
     # along the velocity, tilted out of plane so that cos(elevation) = vinf / (2 vb).
     elevation = math.degrees(math.acos(vinf / (2 * vb)))
-    x = np.array([100.0, vinf, 180.0, elevation, periods * period_days, dsm_fraction,
-                  1000.0, 0.0])
+    x = np.array([100.0, vinf, 180.0, elevation, periods * period_days, dsm_fraction, 1000.0, 0.0])
     return x, p, details(x, p)
 
 
-@pytest.mark.parametrize("periods, revolutions, expected_revs", [
-    (1, (0, 0), 0),
-    (2, (0, 2), 1),   # the kernel must pick the one-revolution branch on its own
-    (3, (0, 2), 2),
-])
+@pytest.mark.parametrize(
+    "periods, revolutions, expected_revs",
+    [
+        (1, (0, 0), 0),
+        (2, (0, 2), 1),  # the kernel must pick the one-revolution branch on its own
+        (3, (0, 2), 2),
+    ],
+)
 def test_resonant_loop_has_zero_dsm(periods, revolutions, expected_revs):
     x, p, q = _circular_body_case(periods, revolutions)
     assert q[L.Q_OK] == 1.0
@@ -226,7 +239,8 @@ def test_resonant_loop_has_zero_dsm(periods, revolutions, expected_revs):
     # the spacecraft orbit is the circle of the body's radius, tilted: heliocentric
     # speed at launch equals the body's circular speed.
     assert np.linalg.norm(vec(q, L.Q_V_LAUNCH)) == pytest.approx(
-        math.sqrt(MU_SUN / bodies.AU_KM), rel=1e-12)
+        math.sqrt(MU_SUN / bodies.AU_KM), rel=1e-12
+    )
 
 
 def test_off_resonance_loop_needs_a_dsm():

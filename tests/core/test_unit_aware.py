@@ -14,6 +14,7 @@ against our 1e-10, and its planet velocity about a Standish mean-motion centre).
 0.45 m/s and 1e-5, ten times those. poliastro compiles its kernels on first use (~30 s
 under load, once per session); each point then takes ~8 ms.
 """
+
 import numpy as np
 import pytest
 
@@ -30,7 +31,8 @@ def test_demo_points_agree_with_the_unit_aware_evaluation(demo_path):
     setting = baseline.Setting(compiled, problem.body)
     rng = np.random.default_rng(5)
     xs = compiled.lower + rng.uniform(0.0, 1.0, (40, len(compiled.lower))) * (
-        compiled.upper - compiled.lower)
+        compiled.upper - compiled.lower
+    )
     compared = 0
     for x in xs:
         theirs = baseline.evaluate(x, setting)

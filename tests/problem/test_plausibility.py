@@ -5,6 +5,7 @@ They are warnings (the file loads, ``Problem.warnings``), one stderr line each f
 ``leverage check`` exits 7 when its feasibility screen finds the goal unreachable.
 Unit facts used: 1 km/s = 1000 m/s; 1 year = 365.25 days (Julian year); pi rad = 180 deg.
 """
+
 from pathlib import Path
 
 import pytest
@@ -45,8 +46,8 @@ def test_shipped_problems_raise_no_warning(path):
 def test_speed_typed_in_m_per_s_is_named_with_key_value_and_slip():
     slips = load_problem_text(problem_text(vinf="7500")).warnings
     assert [str(s) for s in slips] == [
-        "[goal] min_outgoing_vinf_km_s = 7500: over 50 km/s; typed in m/s? "
-        "7500 m/s is 7.5 km/s"]
+        "[goal] min_outgoing_vinf_km_s = 7500: over 50 km/s; typed in m/s? 7500 m/s is 7.5 km/s"
+    ]
 
 
 def test_years_typed_as_days_is_named_in_the_refusal_it_causes():
@@ -64,8 +65,9 @@ def test_years_typed_as_days_warns_when_the_file_is_otherwise_valid():
     assert slip.key == "[loop] duration_days" and "[730, 1096] days" in slip.hint
 
 
-@pytest.mark.parametrize("angles, shown", [("[-3.1416, 3.1416]", "-180 deg"),
-                                           ("[-1.57, 1.57]", "-89.95 deg")])
+@pytest.mark.parametrize(
+    "angles, shown", [("[-3.1416, 3.1416]", "-180 deg"), ("[-1.57, 1.57]", "-89.95 deg")]
+)
 def test_radians_in_a_degree_key_warn(angles, shown):
     text = problem_text(launch=f"in_plane_angle_deg = {angles}\n")
     (slip,) = load_problem_text(text).warnings
@@ -80,8 +82,10 @@ def test_whole_degrees_and_ordinary_values_do_not_warn():
 
 def test_check_prints_one_warning_line_per_slip_and_exits_7_when_unreachable(tmp_path, capsys):
     path = tmp_path / "slip.toml"
-    path.write_text(problem_text(vinf="7500", launch="out_of_plane_angle_deg = [-1.5708, 1.5708]\n"),
-                    encoding="utf-8")
+    path.write_text(
+        problem_text(vinf="7500", launch="out_of_plane_angle_deg = [-1.5708, 1.5708]\n"),
+        encoding="utf-8",
+    )
     assert main(["check", str(path), "--samples", "1"]) == EXIT_UNREACHABLE == 7
     out, err = capsys.readouterr()
     lines = err.splitlines()

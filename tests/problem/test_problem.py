@@ -12,6 +12,7 @@ the file, the key and the value, and never a traceback. The corpus of bad files 
 in tests/problem/bad_problems/; each states the fragments its message must contain on
 ``# expect:`` lines.
 """
+
 import math
 from pathlib import Path
 
@@ -42,8 +43,11 @@ duration_days = [700.0, 800.0]
 
 
 def expectations(path: Path) -> list[str]:
-    return [line.split(":", 1)[1].strip() for line in path.read_text(encoding="utf-8").splitlines()
-            if line.startswith("# expect:")]
+    return [
+        line.split(":", 1)[1].strip()
+        for line in path.read_text(encoding="utf-8").splitlines()
+        if line.startswith("# expect:")
+    ]
 
 
 def one_error_line(capsys) -> str:
@@ -57,6 +61,7 @@ def one_error_line(capsys) -> str:
 
 
 # ---------------------------------------------------------------- valid files
+
 
 def test_minimal_file_gets_the_documented_defaults(tmp_path):
     path = tmp_path / "minimal.toml"
@@ -111,13 +116,16 @@ def test_offset_datetime_is_the_same_instant_in_utc(tmp_path):
     plain = tmp_path / "plain.toml"
     plain.write_text(MINIMAL, encoding="utf-8")
     offset = tmp_path / "offset.toml"
-    offset.write_text(MINIMAL.replace('"2031-01-01"', "2031-01-01T02:00:00+02:00"),
-                      encoding="utf-8")
+    offset.write_text(
+        MINIMAL.replace('"2031-01-01"', "2031-01-01T02:00:00+02:00"), encoding="utf-8"
+    )
     assert load_problem(offset).compile().lower[0] == pytest.approx(
-        load_problem(plain).compile().lower[0], abs=1e-9)
+        load_problem(plain).compile().lower[0], abs=1e-9
+    )
 
 
 # ---------------------------------------------------------------- bad files
+
 
 def test_the_corpus_is_large_enough():
     assert len(BAD_FILES) >= 20
@@ -165,14 +173,18 @@ def test_non_utf8_file_is_refused(tmp_path, capsys):
 
 # ---------------------------------------------------------------- bad command lines
 
-@pytest.mark.parametrize("option, value, fragment", [
-    ("--seed", "-1", "at least 0"),
-    ("--algorithm", "nope", "expected one of"),
-    ("--islands", "0", "at least 1"),
-    ("--population", "2", "at least 8"),
-    ("--generations", "0", "at least 1"),
-    ("--generations", "many", "invalid int value"),
-])
+
+@pytest.mark.parametrize(
+    "option, value, fragment",
+    [
+        ("--seed", "-1", "at least 0"),
+        ("--algorithm", "nope", "expected one of"),
+        ("--islands", "0", "at least 1"),
+        ("--population", "2", "at least 8"),
+        ("--generations", "0", "at least 1"),
+        ("--generations", "many", "invalid int value"),
+    ],
+)
 def test_bad_command_line_value_gives_one_line(option, value, fragment, tmp_path, capsys):
     out = tmp_path / "out"
     code = main(["run", str(ROOT / "problems" / "demo.toml"), "--out", str(out), option, value])

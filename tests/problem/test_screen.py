@@ -10,6 +10,7 @@ burn at an apsis is also computed from vis-viva and angular momentum alone (Curt
 secs. 2.4, 2.8), independently of Tisserand's relation. The problems are the invented demo
 (problems/demo.toml) and goals made impossible by construction from it.
 """
+
 import json
 from pathlib import Path
 
@@ -41,9 +42,17 @@ def test_without_a_dsm_the_return_vinf_is_the_launch_vinf(demo_path):
 
 def test_unreachable_outgoing_vinf(demo_path, tmp_path):
     # 15 km/s from C3 <= 10 (3.2 km/s) with at most 0.3 km/s of DSM: impossible.
-    problem = edited(demo_path, tmp_path, [
-        ("max_c3_km2_s2 = 24.0", "max_c3_km2_s2 = 10.0"),
-        ("min_outgoing_vinf_km_s = 7.5", "min_outgoing_vinf_km_s = 15.0\ndsm_budget_km_s = 0.3")])
+    problem = edited(
+        demo_path,
+        tmp_path,
+        [
+            ("max_c3_km2_s2 = 24.0", "max_c3_km2_s2 = 10.0"),
+            (
+                "min_outgoing_vinf_km_s = 7.5",
+                "min_outgoing_vinf_km_s = 15.0\ndsm_budget_km_s = 0.3",
+            ),
+        ],
+    )
     result = screen(problem)
     assert result.verdict == "unreachable"
     (req,) = result.requirements
@@ -55,11 +64,18 @@ def test_unreachable_outgoing_vinf(demo_path, tmp_path):
 def test_unreachable_inclination_beyond_one_turn(demo_path, tmp_path):
     # A 70 deg inclination needs a v-infinity near the body's orbital speed; at C3 <= 10
     # and 0.2 km/s of DSM the turn at the minimum periapsis cannot tilt the orbit so far.
-    problem = edited(demo_path, tmp_path, [
-        ("max_c3_km2_s2 = 24.0", "max_c3_km2_s2 = 10.0"),
-        ("min_outgoing_vinf_km_s = 7.5",
-         "min_outgoing_inclination_deg = 70.0\ndsm_budget_km_s = 0.2"),
-        ("outgoing_vinf_km_s = 0.01", "")])
+    problem = edited(
+        demo_path,
+        tmp_path,
+        [
+            ("max_c3_km2_s2 = 24.0", "max_c3_km2_s2 = 10.0"),
+            (
+                "min_outgoing_vinf_km_s = 7.5",
+                "min_outgoing_inclination_deg = 70.0\ndsm_budget_km_s = 0.2",
+            ),
+            ("outgoing_vinf_km_s = 0.01", ""),
+        ],
+    )
     result = screen(problem)
     assert result.verdict == "unreachable"
     assert result.requirements[0].best < 70.0
@@ -86,15 +102,15 @@ def _return_vinf_by_vis_viva(v0, dv, at_aphelion, sign):
     at r = 1 with v-infinity v0 and a tangential burn sign*dv at perihelion or aphelion,
     from vis-viva and the conservation of angular momentum only (Curtis, Orbital
     Mechanics for Engineering Students, secs. 2.4 and 2.8; from memory) - no Tisserand."""
-    h0 = 1.0 + v0                              # perihelion speed at r = 1 (mu = 1)
+    h0 = 1.0 + v0  # perihelion speed at r = 1 (mu = 1)
     a0 = 1.0 / (2.0 - h0 * h0)
     r = 2.0 * a0 - 1.0 if at_aphelion else 1.0
-    v = h0 / r + sign * dv                     # speed after the burn, tangential
+    v = h0 / r + sign * dv  # speed after the burn, tangential
     h = r * v
-    speed2 = v * v + 2.0 * (1.0 / 1.0 - 1.0 / r)   # energy: at r = 1
-    vr2 = speed2 - h * h                       # radial part squared at r = 1
+    speed2 = v * v + 2.0 * (1.0 / 1.0 - 1.0 / r)  # energy: at r = 1
+    vr2 = speed2 - h * h  # radial part squared at r = 1
     if vr2 < 0.0:
-        return None                            # the new orbit does not reach r = 1
+        return None  # the new orbit does not reach r = 1
     return float(np.sqrt((h - 1.0) ** 2 + vr2))
 
 
@@ -106,8 +122,11 @@ def test_return_vinf_after_an_apsis_dsm_matches_vis_viva(demo_path, v0_kms, dv_k
     model.v_launch = np.array([v0_kms / model.v_b])
     model.pump = np.array([0.0])
     w, vt, vr, v0 = model.returns(dv_kms)
-    expected = [_return_vinf_by_vis_viva(v0_kms / model.v_b, dv_kms / model.v_b, apo, sign)
-                for apo in (False, True) for sign in (1.0, -1.0)]
+    expected = [
+        _return_vinf_by_vis_viva(v0_kms / model.v_b, dv_kms / model.v_b, apo, sign)
+        for apo in (False, True)
+        for sign in (1.0, -1.0)
+    ]
     expected = sorted(e for e in expected if e is not None)
     assert len(expected) >= 3
     np.testing.assert_allclose(sorted(w), expected, rtol=1e-12)

@@ -8,6 +8,7 @@ burn: arrival v-infinity 0, the same DSM, and the same flyby (altitude and B-pla
 angle) as the loop design. Two-body elements from the state by
 leverage.core.kepler.elements_from_state (poliastro's rv2coe).
 """
+
 import json
 import math
 
@@ -25,9 +26,18 @@ from leverage.run.runner import Progress, run, settings_from
 from leverage.search.udp import LeveragingUDP
 
 # A loop design of the demo problem (launch 2031-01-02, C3 24, DSM 0.81 km/s); an input.
-LOOP_X = np.array([11324.242769311377, 4.898979421815853, 0.5322180159120646,
-                   0.0030776171387154904, 694.204620302563, 0.3162039673292123,
-                   3796.914319294155, -89.87353521951206])
+LOOP_X = np.array(
+    [
+        11324.242769311377,
+        4.898979421815853,
+        0.5322180159120646,
+        0.0030776171387154904,
+        694.204620302563,
+        0.3162039673292123,
+        3796.914319294155,
+        -89.87353521951206,
+    ]
+)
 LEG_DAYS = 250.0
 
 BASE = """
@@ -85,17 +95,24 @@ def loop_design(demo_path):
 def known_target_file(tmp_path, demo_path, flyby="unpowered"):
     """Problem file whose target sits on the loop design's outgoing orbit."""
     q = loop_design(demo_path)
-    r = q[L.Q_R_FLYBY:L.Q_R_FLYBY + 3]
-    v = q[L.Q_V_FLYBY_OUT:L.Q_V_FLYBY_OUT + 3]
+    r = q[L.Q_R_FLYBY : L.Q_R_FLYBY + 3]
+    v = q[L.Q_V_FLYBY_OUT : L.Q_V_FLYBY_OUT + 3]
     a, e, i, raan, argp, nu = elements_from_state(bodies.GM_SUN_KM3_S2, r, v)
     ecc_anom = 2.0 * math.atan(math.sqrt((1 - e) / (1 + e)) * math.tan(nu / 2))
     mean_anom = ecc_anom - e * math.sin(ecc_anom)
     epoch = times.from_tdb_seconds(q[L.Q_T_FLYBY]).isot
-    text = BASE.format(open=times.utc_date((LOOP_X[0] - 5) * 86400.0),
-                       close=times.utc_date((LOOP_X[0] + 5) * 86400.0),
-                       a=a / bodies.AU_KM, e=e, i=math.degrees(i), raan=math.degrees(raan),
-                       argp=math.degrees(argp), m=math.degrees(mean_anom), epoch=epoch,
-                       flyby=flyby)
+    text = BASE.format(
+        open=times.utc_date((LOOP_X[0] - 5) * 86400.0),
+        close=times.utc_date((LOOP_X[0] + 5) * 86400.0),
+        a=a / bodies.AU_KM,
+        e=e,
+        i=math.degrees(i),
+        raan=math.degrees(raan),
+        argp=math.degrees(argp),
+        m=math.degrees(mean_anom),
+        epoch=epoch,
+        flyby=flyby,
+    )
     path = tmp_path / f"known-{flyby}.toml"
     path.write_text(text)
     return path, q
@@ -111,10 +128,10 @@ def test_known_target_needs_no_extra_burn(tmp_path, demo_path, flyby):
     x = np.append(LOOP_X[:6], LEG_DAYS)
     q = udp.details(x)
     assert q[L.Q_OK] == 1.0
-    assert q[L.Q_VINF_ARRIVAL] < 1e-6                                   # km/s
+    assert q[L.Q_VINF_ARRIVAL] < 1e-6  # km/s
     assert q[L.Q_DSM] == pytest.approx(q_loop[L.Q_DSM], abs=1e-12)
     # The periapsis the flyby needs (powered-flyby relation) is the loop design's.
-    assert q[L.Q_ALT] == pytest.approx(q_loop[L.Q_ALT], abs=1e-3)      # km
+    assert q[L.Q_ALT] == pytest.approx(q_loop[L.Q_ALT], abs=1e-3)  # km
     assert q[L.Q_BPLANE] == pytest.approx(q_loop[L.Q_BPLANE], abs=1e-8)  # rad
     assert q[L.Q_FLYBY_DV] < 1e-8
     assert abs(q[L.Q_VINF_OUT] - q[L.Q_VINF_IN]) < 1e-8
@@ -195,24 +212,34 @@ def test_planet_target_uses_its_mean_elements(tmp_path, demo_path):
     assert problem.target.is_planet and problem.target.name == "Mars"
     compiled = problem.compile()
     # the default ephemeris (DE421) gives the target a Chebyshev table of Mars (NAIF 4)
-    header = compiled.params[L.P_TARGET_EPH:L.P_TARGET_EPH + E.EPHEMERIS_SIZE]
+    header = compiled.params[L.P_TARGET_EPH : L.P_TARGET_EPH + E.EPHEMERIS_SIZE]
     assert header[0] == E.KIND_CHEBYSHEV and header[E.CHEB_NAIF_ID] == 4
     assert "DE421" in compiled.ephemeris
     # asked for mean elements, it has Standish's Mars row
     path.write_text(text + '\n[ephemeris]\nsource = "mean_elements"\n')
     p = load_problem(path).compile().params
-    assert np.array_equal(p[L.P_TARGET_EPH:L.P_TARGET_EPH + E.EPHEMERIS_SIZE],
-                          bodies.planet("mars").ephemeris_array())
+    assert np.array_equal(
+        p[L.P_TARGET_EPH : L.P_TARGET_EPH + E.EPHEMERIS_SIZE],
+        bodies.planet("mars").ephemeris_array(),
+    )
 
 
-@pytest.mark.parametrize("section, missing", [
-    ('name = "rock"\nleg_duration_days = [100.0, 200.0]', "[target] name"),
-    ('name = "rock"\nsemi_major_axis_au = 1.5\nleg_duration_days = [100.0, 200.0]',
-     "[target] eccentricity"),
-    ('name = "mars"\nleg_duration_days = [100.0, 200.0]\narrival_open_utc = "2034-01-01"\n'
-     'arrival_close_utc = "2033-01-01"', "[target] arrival_close_utc"),
-    ('name = "mars"', "[target] leg_duration_days"),
-])
+@pytest.mark.parametrize(
+    "section, missing",
+    [
+        ('name = "rock"\nleg_duration_days = [100.0, 200.0]', "[target] name"),
+        (
+            'name = "rock"\nsemi_major_axis_au = 1.5\nleg_duration_days = [100.0, 200.0]',
+            "[target] eccentricity",
+        ),
+        (
+            'name = "mars"\nleg_duration_days = [100.0, 200.0]\narrival_open_utc = "2034-01-01"\n'
+            'arrival_close_utc = "2033-01-01"',
+            "[target] arrival_close_utc",
+        ),
+        ('name = "mars"', "[target] leg_duration_days"),
+    ],
+)
 def test_incomplete_targets_are_refused_in_one_line(tmp_path, demo_path, section, missing):
     path = tmp_path / "bad.toml"
     path.write_text(demo_path.read_text() + "\n[target]\n" + section + "\n")
@@ -224,7 +251,10 @@ def test_incomplete_targets_are_refused_in_one_line(tmp_path, demo_path, section
 
 def test_arrival_weight_without_target_is_refused(tmp_path, demo_path):
     path = tmp_path / "bad.toml"
-    path.write_text(demo_path.read_text().replace('kind = "min_dsm"',
-                                                  'kind = "min_dsm"\narrival_vinf_weight = 1.0'))
+    path.write_text(
+        demo_path.read_text().replace(
+            'kind = "min_dsm"', 'kind = "min_dsm"\narrival_vinf_weight = 1.0'
+        )
+    )
     with pytest.raises(ProblemError, match="arrival_vinf_weight .*needs a \\[target\\]"):
         load_problem(path)

@@ -9,6 +9,7 @@ Outside sources:
   that dv = g0 Isp leaves 1/e of the mass.
 - The launch-vehicle table and the problem files are invented (problems/delivered-mass.toml).
 """
+
 import math
 
 import numpy as np
@@ -43,6 +44,7 @@ def test_rocket_equation_matches_integrated_constant_thrust_flight():
 
     def reached(t, y):
         return y[0] - dv_target
+
     reached.terminal = True
     sol = solve_ivp(rhs, (0.0, 1e6), [0.0, m0], events=reached, rtol=1e-11, atol=1e-9)
     m_final = sol.y_events[0][0][1]
@@ -91,7 +93,8 @@ def test_model_delivered_mass_is_the_rocket_equation_and_falls_with_dsm(problems
         q = udp.details(x)
         assert q[L.Q_OK] == 1.0
         expect = veh.injected_mass(q[L.Q_C3]) * math.exp(
-            -q[L.Q_TOTAL_DV] / (scipy.constants.g / 1000.0 * veh.specific_impulse_s))
+            -q[L.Q_TOTAL_DV] / (scipy.constants.g / 1000.0 * veh.specific_impulse_s)
+        )
         assert math.isclose(q[L.Q_M_DELIVERED], expect, rel_tol=1e-12)
         rows.append((q[L.Q_TOTAL_DV], q[L.Q_M_DELIVERED]))
     rows.sort()
@@ -111,12 +114,17 @@ def test_c3_outside_the_table_is_infeasible(problems_dir):
     assert q[L.Q_PENALTY] > 0.0
 
 
-@pytest.mark.parametrize("edit, key", [
-    ("injected_mass_kg = [1500.0, 1250.0, 1020.0, 820.0, 640.0]",
-     "injected_mass_kg = [1500.0, 1250.0]"),
-    ("c3_km2_s2 = [0.0, 10.0, 20.0, 30.0, 40.0]", "c3_km2_s2 = [0.0, 20.0, 10.0, 30.0, 40.0]"),
-    ("specific_impulse_s = 320.0", "specific_impulse_s = -3.0"),
-])
+@pytest.mark.parametrize(
+    "edit, key",
+    [
+        (
+            "injected_mass_kg = [1500.0, 1250.0, 1020.0, 820.0, 640.0]",
+            "injected_mass_kg = [1500.0, 1250.0]",
+        ),
+        ("c3_km2_s2 = [0.0, 10.0, 20.0, 30.0, 40.0]", "c3_km2_s2 = [0.0, 20.0, 10.0, 30.0, 40.0]"),
+        ("specific_impulse_s = 320.0", "specific_impulse_s = -3.0"),
+    ],
+)
 def test_bad_vehicle_tables_are_refused_in_one_line(problems_dir, tmp_path, edit, key):
     text = (problems_dir / "delivered-mass.toml").read_text().replace(edit, key)
     path = tmp_path / "bad.toml"
@@ -129,7 +137,7 @@ def test_bad_vehicle_tables_are_refused_in_one_line(problems_dir, tmp_path, edit
 
 def test_mass_goal_without_a_vehicle_is_refused(problems_dir, tmp_path):
     text = (problems_dir / "delivered-mass.toml").read_text()
-    text = text[:text.index("[vehicle]")] + text[text.index("[search]"):]
+    text = text[: text.index("[vehicle]")] + text[text.index("[search]") :]
     path = tmp_path / "novehicle.toml"
     path.write_text(text)
     with pytest.raises(ProblemError, match=r"\[goal\] kind .*needs a \[vehicle\] section"):
@@ -141,12 +149,16 @@ def test_delivered_mass_template_runs(problems_dir, tmp_path, full_size):
     problem = _mass_problem(problems_dir)
     small = None if full_size else {"generations": 300, "population": 24}
     settings = settings_from(problem, small)
-    outcome = run(problem, settings, tmp_path / "out", Progress(1, enabled=False), echo=lambda *a: None)
+    outcome = run(
+        problem, settings, tmp_path / "out", Progress(1, enabled=False), echo=lambda *a: None
+    )
     import json
+
     record = json.loads((tmp_path / "out" / "best.json").read_text())
     assert outcome.status == "complete" and outcome.feasible and record["feasible"]
     der = record["derived"]
     m0, dv = der["injected_mass"]["value"], der["total_dv"]["value"]
     assert der["delivered_mass"]["value"] == pytest.approx(
-        m0 * math.exp(-dv / (G0_KM_S2 * 320.0)), rel=1e-9)
+        m0 * math.exp(-dv / (G0_KM_S2 * 320.0)), rel=1e-9
+    )
     assert "mass      injected" in (tmp_path / "out" / "summary.txt").read_text()

@@ -6,6 +6,7 @@ and Applications, 4th ed., sec. 1.3-2.2), and scipy's solve_ivp (DOP853) as an
 independent integrator of the same two-body motion. The fixture is a real small run
 of the (invented) demo problem.
 """
+
 import copy
 import math
 
@@ -71,9 +72,14 @@ def test_samples_match_scipy_integration(record):
 
 def test_outgoing_span_is_one_period_of_the_outgoing_orbit(record):
     ev = event_states(record)
-    a = -MU / (2 * (0.5 * ev["flyby"]["v_out"] @ ev["flyby"]["v_out"]
-                    - MU / np.linalg.norm(ev["flyby"]["r"])))
-    period = 2 * math.pi * math.sqrt(a ** 3 / MU)  # Kepler's third law
+    a = -MU / (
+        2
+        * (
+            0.5 * ev["flyby"]["v_out"] @ ev["flyby"]["v_out"]
+            - MU / np.linalg.norm(ev["flyby"]["r"])
+        )
+    )
+    period = 2 * math.pi * math.sqrt(a**3 / MU)  # Kepler's third law
     assert outgoing_span_s(ev["flyby"]["r"], ev["flyby"]["v_out"]) == pytest.approx(period)
     outgoing = design_arcs(record, n=20)[-1]
     assert outgoing.stop_s - outgoing.start_s == pytest.approx(period)
@@ -99,9 +105,16 @@ def _with_arrival(record, days=300.0):
     t = ev["flyby"]["t"] + days * DAY_S
     r, v, ok = propagate(MU, ev["flyby"]["r"], ev["flyby"]["v_out"], days * DAY_S)
     assert ok
-    rec["events"].append({"event": "arrival", "epoch_tdb_s": t, "utc": "2035-01-01 00:00:00",
-                          "position_km": list(r), "velocity_km_s": list(v),
-                          "target_velocity_km_s": list(v * 0.98)})
+    rec["events"].append(
+        {
+            "event": "arrival",
+            "epoch_tdb_s": t,
+            "utc": "2035-01-01 00:00:00",
+            "position_km": list(r),
+            "velocity_km_s": list(v),
+            "target_velocity_km_s": list(v * 0.98),
+        }
+    )
     rec["problem"]["target"] = "Invented target"
     return rec, r
 

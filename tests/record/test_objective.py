@@ -4,6 +4,7 @@ Checked against the model's own derived quantities at sampled points: the natura
 of the minimised objective, less its penalty, must equal the delivered mass (kg) or
 the v-infinity gain (km/s) the model computed there.
 """
+
 from pathlib import Path
 
 import numpy as np
@@ -15,14 +16,19 @@ from leverage.search.udp import LeveragingUDP
 
 PROBLEMS = Path(__file__).resolve().parents[2] / "problems"
 
-MAX_GAIN = (PROBLEMS / "demo.toml").read_text().replace(
-    'kind = "min_dsm"', 'kind = "max_gain"\ndsm_budget_km_s = 1.5')
+MAX_GAIN = (
+    (PROBLEMS / "demo.toml")
+    .read_text()
+    .replace('kind = "min_dsm"', 'kind = "max_gain"\ndsm_budget_km_s = 1.5')
+)
 
 
 def _points(compiled, n=40, seed=3):
     rng = np.random.default_rng(seed)
-    return [compiled.lower + rng.random(compiled.lower.shape) * (compiled.upper - compiled.lower)
-            for _ in range(n)]
+    return [
+        compiled.lower + rng.random(compiled.lower.shape) * (compiled.upper - compiled.lower)
+        for _ in range(n)
+    ]
 
 
 def _check(problem, slot, name, unit):

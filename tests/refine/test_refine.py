@@ -18,6 +18,7 @@ speed 31.7820 km/s (+0.009%); two-body energy
 4.4e-16 and angular momentum 3.7e-16 relative over 5 years; IAS15 vs DOP853 on the
 refined demo: 1.0 / 3.6 / 0.014 km and 0.10 / 0.27 / 0.04 mm/s at the segment ends.
 """
+
 import json
 import math
 import shutil
@@ -34,17 +35,29 @@ from leverage.refine.integrators import Ias15
 from leverage.reports import oem
 
 FIXTURE = Path(__file__).parent / "refine_demo"  # best.json + problem.toml of the demo run
-MU_VENUS = 324_900.0        # Curtis Example 8.6 / Table A.2
-MU_SUN_CURTIS = 1.3271e11   # Curtis Example 8.6
+MU_VENUS = 324_900.0  # Curtis Example 8.6 / Table A.2
+MU_SUN_CURTIS = 1.3271e11  # Curtis Example 8.6
 MU_SUN = 1.32712440041279419e11
 AU = 149_597_870.7
 # The refined demo design (unknowns in Refiner.names order) found by
 # `leverage refine tests/refine/refine_demo` on this branch.
-REFINED_DEMO_Z = [-0.9280451710153803, -4.81078231090574, -0.9253248381610617,
-                  -0.012144997371222679, 3.141006577427875, -0.5901812666511763,
-                  -0.5443173563783942, -0.0117643185227364, -0.2962256496865946,
-                  0.26064702116091365, -1.6046405558731789, 2.0628035559702003,
-                  -8.529009409930596, -3.40344856658763, -1.569829901762065]
+REFINED_DEMO_Z = [
+    -0.9280451710153803,
+    -4.81078231090574,
+    -0.9253248381610617,
+    -0.012144997371222679,
+    3.141006577427875,
+    -0.5901812666511763,
+    -0.5443173563783942,
+    -0.0117643185227364,
+    -0.2962256496865946,
+    0.26064702116091365,
+    -1.6046405558731789,
+    2.0628035559702003,
+    -8.529009409930596,
+    -3.40344856658763,
+    -1.569829901762065,
+]
 
 
 class _OneBody:
@@ -77,8 +90,9 @@ def test_integrated_flyby_reproduces_curtis_example_8_6():
     # Dark-side approach (Curtis 8.6 (a)): B points away from the Sun.
     s, t, r = flyby.bplane_frame(vin, np.array([0.0, 0.0, 1.0]))
     theta = 0.0 if t @ (-r_v) < 0 else np.pi
-    vout_conic = flyby.outgoing_vinf(vin, flyby.turn_angle(MU_VENUS, speed, rp), theta,
-                                     np.array([0.0, 0.0, 1.0]))
+    vout_conic = flyby.outgoing_vinf(
+        vin, flyby.turn_angle(MU_VENUS, speed, rp), theta, np.array([0.0, 0.0, 1.0])
+    )
     # Periapsis state of that hyperbola (as Refiner's start), then integrate both ways
     # with Venus alone for 3e8 s (~1e9 km out: the velocity is on the asymptote to 2e-5).
     p_hat = vin / speed - vout_conic / speed
@@ -86,15 +100,16 @@ def test_integrated_flyby_reproduces_curtis_example_8_6():
     q_hat = vin / speed + vout_conic / speed
     q_hat /= np.linalg.norm(q_hat)
     r0 = rp * p_hat
-    v0 = math.sqrt(speed ** 2 + 2 * MU_VENUS / rp) * q_hat
+    v0 = math.sqrt(speed**2 + 2 * MU_VENUS / rp) * q_hat
     prop = Ias15(_OneBody(MU_VENUS))
     _, v_before = prop.propagate(0.0, r0, v0, -3.0e8)
     _, v_after = prop.propagate(0.0, r0, v0, 3.0e8)
-    turn = math.degrees(math.acos(v_before @ v_after / np.linalg.norm(v_before)
-                                  / np.linalg.norm(v_after)))
-    assert turn == pytest.approx(103.6, rel=1e-3)           # Curtis: 103.6 deg
+    turn = math.degrees(
+        math.acos(v_before @ v_after / np.linalg.norm(v_before) / np.linalg.norm(v_after))
+    )
+    assert turn == pytest.approx(103.6, rel=1e-3)  # Curtis: 103.6 deg
     v_helio = v_v + v_after
-    book = np.hypot(31.73, 1.766)                           # Curtis 8.6 (a)
+    book = np.hypot(31.73, 1.766)  # Curtis 8.6 (a)
     assert np.linalg.norm(v_helio) == pytest.approx(book, rel=1e-3)
     np.testing.assert_allclose(v_helio[:2], (31.73, 1.766), atol=0.01)
 
@@ -104,8 +119,8 @@ def test_two_body_energy_and_angular_momentum_conserved_over_five_years():
     r1, v1 = Ias15(_OneBody(MU_SUN)).propagate(0.0, r0, v0, 5 * 365.25 * 86400.0)
     energy = lambda r, v: v @ v / 2 - MU_SUN / np.linalg.norm(r)  # noqa: E731
     h0, h1 = np.cross(r0, v0), np.cross(r1, v1)
-    assert abs(energy(r1, v1) / energy(r0, v0) - 1.0) < 5e-15     # measured 4.4e-16
-    assert np.linalg.norm(h1 - h0) / np.linalg.norm(h0) < 5e-15   # measured 3.7e-16
+    assert abs(energy(r1, v1) / energy(r0, v0) - 1.0) < 5e-15  # measured 4.4e-16
+    assert np.linalg.norm(h1 - h0) / np.linalg.norm(h0) < 5e-15  # measured 3.7e-16
 
 
 @pytest.fixture(scope="module")
@@ -129,8 +144,9 @@ def test_departure_c3_and_dla_follow_the_conic_relations(demo_refiner):
     c3, dla = ref.departure_c3_dla(r_rel, v_rel)
     # Vallado eq. 2-80 / Curtis 2.103: C3 = v_p^2 - 2 mu/r_p = |v_inf|^2.
     assert np.linalg.norm(r_rel) == pytest.approx(6378.1 + 200.0, rel=1e-12)
-    assert c3 == pytest.approx(np.linalg.norm(v_rel) ** 2 - 2 * mu / np.linalg.norm(r_rel),
-                               rel=1e-12)
+    assert c3 == pytest.approx(
+        np.linalg.norm(v_rel) ** 2 - 2 * mu / np.linalg.norm(r_rel), rel=1e-12
+    )
     assert c3 == pytest.approx(vinf @ vinf, rel=1e-10)
     eps = math.radians(84381.448 / 3600.0)
     z_eq = math.sin(eps) * vinf[1] + math.cos(eps) * vinf[2]
@@ -138,8 +154,9 @@ def test_departure_c3_and_dla_follow_the_conic_relations(demo_refiner):
     # Flown with the Earth alone, the departure leaves along the asymptote at v_inf.
     _, v_far = Ias15(_OneBody(mu)).propagate(0.0, r_rel, v_rel, 3.0e7)
     assert np.linalg.norm(v_far) ** 2 == pytest.approx(c3, rel=1e-3)
-    assert math.degrees(math.acos(v_far @ vinf / np.linalg.norm(v_far)
-                                  / np.linalg.norm(vinf))) < 0.05
+    assert (
+        math.degrees(math.acos(v_far @ vinf / np.linalg.norm(v_far) / np.linalg.norm(vinf))) < 0.05
+    )
 
 
 def test_ias15_and_dop853_agree_on_the_refined_demo(demo_refiner):
@@ -162,18 +179,25 @@ def test_ias15_and_dop853_agree_on_the_refined_demo(demo_refiner):
 def test_refine_converges_the_demo(tmp_path):
     folder = tmp_path / "demo"
     shutil.copytree(FIXTURE, folder)
-    proc = subprocess.run([sys.executable, "-m", "leverage", "refine", str(folder),
-                           "--max-steps", "3"], capture_output=True, text=True, timeout=600)
+    proc = subprocess.run(
+        [sys.executable, "-m", "leverage", "refine", str(folder), "--max-steps", "3"],
+        capture_output=True,
+        text=True,
+        timeout=600,
+    )
     assert proc.returncode == 0, proc.stderr[-500:]
     assert "refine: matching" in proc.stderr and "km/s" in proc.stderr
     out = folder / "refined"
-    assert sorted(p.name for p in out.iterdir()) == ["refined.json", "states.oem",
-                                                     "summary.txt", "trajectory.png"]
+    assert sorted(p.name for p in out.iterdir()) == [
+        "refined.json",
+        "states.oem",
+        "summary.txt",
+        "trajectory.png",
+    ]
     rec = json.loads((out / "refined.json").read_text())
     assert rec["status"] == "converged" and rec["feasible"]
     assert all(m["holds"] for m in rec["margins"].values())
-    assert set(rec["margins"]) >= {"max_c3", "dla_band", "min_flyby_altitude",
-                                   "min_outgoing_vinf"}
+    assert set(rec["margins"]) >= {"max_c3", "dla_band", "min_flyby_altitude", "min_outgoing_vinf"}
     assert rec["largest_constraint_error"]["dsm_join_position"]["value"] < 1.0
     dsm = rec["derived"]["dsm"]
     assert dsm["unit"] == "km/s" and dsm["patched_conic"] == pytest.approx(0.8127, abs=1e-4)
@@ -192,10 +216,15 @@ def test_refine_reports_a_limit_it_cannot_meet(tmp_path):
     folder = tmp_path / "demo"
     shutil.copytree(FIXTURE, folder)
     problem = folder / "problem.toml"
-    problem.write_text(problem.read_text().replace("min_outgoing_vinf_km_s = 7.5",
-                                                   "min_outgoing_vinf_km_s = 9.5"))
-    proc = subprocess.run([sys.executable, "-m", "leverage", "refine", str(folder),
-                           "--max-steps", "1"], capture_output=True, text=True, timeout=600)
+    problem.write_text(
+        problem.read_text().replace("min_outgoing_vinf_km_s = 7.5", "min_outgoing_vinf_km_s = 9.5")
+    )
+    proc = subprocess.run(
+        [sys.executable, "-m", "leverage", "refine", str(folder), "--max-steps", "1"],
+        capture_output=True,
+        text=True,
+        timeout=600,
+    )
     assert proc.returncode == 6
     last = proc.stderr.strip().splitlines()[-1]
     # Measured: missed by 0.5502 km/s (9.5 km/s asked of a loop built for 7.5).

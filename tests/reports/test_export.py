@@ -14,6 +14,7 @@ Outside sources:
   under 2 ms since 2017, from memory).
 The fixture is a real small run of the (invented) demo problem.
 """
+
 import csv
 import io
 import math
@@ -31,8 +32,15 @@ from leverage.reports.export import csv_text, oem_text, tdb_seconds
 
 # From CCSDS 502.0-B-2 section 5 (from memory): required keywords in required order.
 STANDARD_HEADER = ["CCSDS_OEM_VERS", "CREATION_DATE", "ORIGINATOR"]
-STANDARD_METADATA = ["OBJECT_NAME", "OBJECT_ID", "CENTER_NAME", "REF_FRAME", "TIME_SYSTEM",
-                     "START_TIME", "STOP_TIME"]
+STANDARD_METADATA = [
+    "OBJECT_NAME",
+    "OBJECT_ID",
+    "CENTER_NAME",
+    "REF_FRAME",
+    "TIME_SYSTEM",
+    "START_TIME",
+    "STOP_TIME",
+]
 STEP_H = 24.0
 
 
@@ -61,7 +69,7 @@ def test_oem_header_and_metadata_follow_the_standard(oem_file):
     assert len(blocks) == 3  # one segment per arc: launch-DSM, DSM-flyby, outgoing
     for start in blocks:
         stop = lines.index("META_STOP", start)
-        meta = [ln for ln in lines[start + 1:stop] if not ln.startswith("COMMENT")]
+        meta = [ln for ln in lines[start + 1 : stop] if not ln.startswith("COMMENT")]
         assert _keywords(meta) == STANDARD_METADATA
         values = dict(ln.split(" = ", 1) for ln in meta)
         assert values["CENTER_NAME"] == "SUN"
@@ -76,7 +84,7 @@ def test_oem_header_and_metadata_follow_the_standard(oem_file):
 def test_oem_data_lines_have_an_epoch_and_six_numbers(oem_file):
     lines = oem_file.splitlines()
     stop = lines.index("META_STOP")
-    data = [ln for ln in lines[stop + 1:lines.index("META_START", stop)] if ln]
+    data = [ln for ln in lines[stop + 1 : lines.index("META_START", stop)] if ln]
     for ln in data:
         parts = ln.split()
         assert len(parts) == 7
@@ -90,20 +98,22 @@ def test_oem_reads_back_to_the_same_states(oem_file, record):
     assert len(message.segments) == len(arcs)
     for seg, arc in zip(message.segments, arcs):
         t = tdb_seconds(seg.epochs)
-        assert np.max(np.abs(t - arc.t_tdb_s)) < 2e-6          # microsecond epochs
+        assert np.max(np.abs(t - arc.t_tdb_s)) < 2e-6  # microsecond epochs
         r = ecliptic_to_equatorial(arc.r_km)
         v = ecliptic_to_equatorial(arc.v_km_s)
-        assert np.max(np.abs(seg.states[:, :3] - r)) < 1e-6     # 1 mm, written to 1 mm
-        assert np.max(np.abs(seg.states[:, 3:] - v)) < 1e-9     # written to 1 mm/s / 1000
+        assert np.max(np.abs(seg.states[:, :3] - r)) < 1e-6  # 1 mm, written to 1 mm
+        assert np.max(np.abs(seg.states[:, 3:] - v)) < 1e-9  # written to 1 mm/s / 1000
         assert seg.meta("START_TIME") == seg.epochs[0]
         assert seg.meta("STOP_TIME") == seg.epochs[-1]
         assert np.all(np.diff(t) > 0)
     # segments meet at the events: the DSM and flyby epochs end one and start the next
     ev = event_states(record)
-    assert tdb_seconds([message.segments[0].epochs[-1]])[0] == pytest.approx(ev["dsm"]["t"],
-                                                                              abs=2e-6)
+    assert tdb_seconds([message.segments[0].epochs[-1]])[0] == pytest.approx(
+        ev["dsm"]["t"], abs=2e-6
+    )
     assert tdb_seconds([message.segments[1].epochs[-1]])[0] == pytest.approx(
-        ev["flyby"]["t"], abs=2e-6)
+        ev["flyby"]["t"], abs=2e-6
+    )
 
 
 def test_eme2000_states_are_the_ecliptic_ones_rotated_by_the_obliquity(oem_file, record):
@@ -115,17 +125,22 @@ def test_eme2000_states_are_the_ecliptic_ones_rotated_by_the_obliquity(oem_file,
     assert np.allclose(seg.states[0, :3], expected, rtol=0, atol=1e-6)
 
 
-@pytest.mark.parametrize("broken, message", [
-    (lambda t: t.replace("CCSDS_OEM_VERS = 2.0\n", ""), "must start with CCSDS_OEM_VERS"),
-    (lambda t: t.replace("ORIGINATOR", "ORIGIN", 1), "missing required keyword ORIGINATOR"),
-    (lambda t: t.replace("REF_FRAME = EME2000\n", "", 1), "missing required keyword REF_FRAME"),
-    (lambda t: _swap(t, "CENTER_NAME = SUN", "REF_FRAME = EME2000"), "out of order"),
-    (lambda t: t.replace("CENTER_NAME = SUN", "CENTER_NAME = SUN\nCOLOUR = RED", 1),
-     "COLOUR not allowed"),
-    (lambda t: t.replace("META_STOP", "META_END", 1), "expected 'KEYWORD = value'"),
-    (lambda t: _first_data_line_plus(t, " 1.0"), "bad data line"),
-    (lambda t: _first_data_line_plus(t, " 1.0 2.0 3.0"), None),  # with accelerations: fine
-])
+@pytest.mark.parametrize(
+    "broken, message",
+    [
+        (lambda t: t.replace("CCSDS_OEM_VERS = 2.0\n", ""), "must start with CCSDS_OEM_VERS"),
+        (lambda t: t.replace("ORIGINATOR", "ORIGIN", 1), "missing required keyword ORIGINATOR"),
+        (lambda t: t.replace("REF_FRAME = EME2000\n", "", 1), "missing required keyword REF_FRAME"),
+        (lambda t: _swap(t, "CENTER_NAME = SUN", "REF_FRAME = EME2000"), "out of order"),
+        (
+            lambda t: t.replace("CENTER_NAME = SUN", "CENTER_NAME = SUN\nCOLOUR = RED", 1),
+            "COLOUR not allowed",
+        ),
+        (lambda t: t.replace("META_STOP", "META_END", 1), "expected 'KEYWORD = value'"),
+        (lambda t: _first_data_line_plus(t, " 1.0"), "bad data line"),
+        (lambda t: _first_data_line_plus(t, " 1.0 2.0 3.0"), None),  # with accelerations: fine
+    ],
+)
 def test_reader_refuses_broken_messages(oem_file, broken, message):
     if message is None:
         oem.read(broken(oem_file))
@@ -159,8 +174,9 @@ def test_csv_table_names_frame_and_both_time_scales(record):
     assert len(rows) == sum(a.t_tdb_s.size for a in arcs)
     assert {r["frame"] for r in rows} == {"heliocentric ecliptic J2000"}
     first = rows[0]
-    assert np.allclose([float(first[c]) for c in ("x_km", "y_km", "z_km")], arcs[0].r_km[0],
-                       rtol=0, atol=1e-6)
+    assert np.allclose(
+        [float(first[c]) for c in ("x_km", "y_km", "z_km")], arcs[0].r_km[0], rtol=0, atol=1e-6
+    )
     assert float(first["tdb_seconds_past_j2000"]) == pytest.approx(arcs[0].t_tdb_s[0], abs=1e-6)
     # TDB - UTC is 69.184 s (TAI-UTC 37 s + 32.184 s) give or take under 2 ms
     utc = datetime.fromisoformat(first["epoch_utc"])
@@ -176,8 +192,21 @@ def test_export_command_writes_files_and_refuses_bad_options(demo_result, tmp_pa
     assert main(["export", str(demo_result), "--format", "oem", "--output", str(out)]) == 0
     assert oem.read(out.read_text()).segments
     out_csv = tmp_path / "design.csv"
-    assert main(["export", str(demo_result), "--format", "csv", "--step-hours", "12",
-                 "--output", str(out_csv)]) == 0
+    assert (
+        main(
+            [
+                "export",
+                str(demo_result),
+                "--format",
+                "csv",
+                "--step-hours",
+                "12",
+                "--output",
+                str(out_csv),
+            ]
+        )
+        == 0
+    )
     assert out_csv.read_text().startswith("arc,epoch_utc,epoch_tdb")
     capsys.readouterr()
     assert main(["export", str(demo_result), "--format", "oem", "--step-hours", "0"]) == 2

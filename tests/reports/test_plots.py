@@ -7,6 +7,7 @@ distance from the line joining a front's ends, after scaling) is common practice
 Fixtures: a real small run of the (invented) demo problem; front and sweep tables
 are written here with the columns the front search and the sweep write.
 """
+
 import csv
 import shutil
 import struct
@@ -103,9 +104,13 @@ def test_convergence_draws_the_log(folder, record):
 def test_convergence_adds_the_hypervolume_when_logged(folder, record, tmp_path):
     dest = tmp_path / "run"
     shutil.copytree(folder, dest)
-    rows = [["evolution", "island", "evaluations", "best_objective", "hypervolume"],
-            [1, 0, 100, 2.0, 0.5], [2, 0, 200, 1.5, 0.8], [1, 1, 100, 2.5, 0.4],
-            [2, 1, 200, 1.2, 0.9]]
+    rows = [
+        ["evolution", "island", "evaluations", "best_objective", "hypervolume"],
+        [1, 0, 100, 2.0, 0.5],
+        [2, 0, 200, 1.5, 0.8],
+        [1, 1, 100, 2.5, 0.4],
+        [2, 1, 200, 1.2, 0.9],
+    ]
     with open(dest / "convergence.csv", "w", newline="") as fh:
         csv.writer(fh).writerows(rows)
     pic = plots.convergence(record, dest)
@@ -132,8 +137,17 @@ def test_front_draws_front_csv_with_its_knee(folder, record, tmp_path):
     with open(dest / "front.csv", "w", newline="") as fh:
         out = csv.writer(fh)
         # column names as the front search writes them (derived quantity + unit)
-        out.writerow(["member", "knee", "objective_total_dv_km_s", "dsm_km_s",
-                      "dsm_radial_km_s", "vinf_gain_km_s", "outgoing_inclination_deg"])
+        out.writerow(
+            [
+                "member",
+                "knee",
+                "objective_total_dv_km_s",
+                "dsm_km_s",
+                "dsm_radial_km_s",
+                "vinf_gain_km_s",
+                "outgoing_inclination_deg",
+            ]
+        )
         for k in range(dsm.size):
             out.writerow([k, int(k == knee), dsm[k], dsm[k], 0.1, gain[k], inc[k]])
     pic = plots.front(record, dest)
@@ -158,17 +172,30 @@ def test_front_reads_a_real_front_search_table(tmp_path, problems_dir):
     from leverage.cli import main
 
     out = tmp_path / "front"
-    code = main(["run", str(problems_dir / "trade-front.toml"), "--out", str(out),
-                 "--generations", "50", "--islands", "1", "--quiet"])
+    code = main(
+        [
+            "run",
+            str(problems_dir / "trade-front.toml"),
+            "--out",
+            str(out),
+            "--generations",
+            "50",
+            "--islands",
+            "1",
+            "--quiet",
+        ]
+    )
     assert code in (0, 3)
     with open(out / "front.csv", newline="") as fh:
         rows = list(csv.DictReader(fh))
     pic = plots.front(read_json(out / "best.json"), out)
     assert_sensible_png(pic.path)
-    assert np.allclose(pic.artists["front"].get_offsets()[:, 0],
-                       [float(r["dsm_km_s"]) for r in rows])
-    assert np.allclose(pic.artists["front"].get_offsets()[:, 1],
-                       [float(r["vinf_gain_km_s"]) for r in rows])
+    assert np.allclose(
+        pic.artists["front"].get_offsets()[:, 0], [float(r["dsm_km_s"]) for r in rows]
+    )
+    assert np.allclose(
+        pic.artists["front"].get_offsets()[:, 1], [float(r["vinf_gain_km_s"]) for r in rows]
+    )
 
 
 def test_launch_window_draws_the_sweep_table(folder, record, tmp_path):
@@ -179,17 +206,27 @@ def test_launch_window_draws_the_sweep_table(folder, record, tmp_path):
     feasible = [1, 1, "", 0]
     with open(dest / "sweep.csv", "w", newline="") as fh:
         out = csv.writer(fh)
-        out.writerow(["slice", "start_utc", "end_utc", "best_objective", "feasible",
-                      "launch_utc"])
+        out.writerow(["slice", "start_utc", "end_utc", "best_objective", "feasible", "launch_utc"])
         for k in range(4):
-            out.writerow([k + 1, f"2031-0{k + 1}-01T00:00:00", f"2031-0{k + 2}-01T00:00:00",
-                          objective[k], feasible[k], dates[k]])
+            out.writerow(
+                [
+                    k + 1,
+                    f"2031-0{k + 1}-01T00:00:00",
+                    f"2031-0{k + 2}-01T00:00:00",
+                    objective[k],
+                    feasible[k],
+                    dates[k],
+                ]
+            )
     pic = plots.launch_window(record, dest)
     assert_sensible_png(pic.path)
     line = pic.artists["scan"]
     assert list(line.get_ydata()) == [1.2, 0.9, 1.1]  # the unfinished slice is left out
     assert [d.strftime("%Y-%m-%d") for d in line.get_xdata()] == [
-        "2031-01-10", "2031-02-10", "2031-04-12"]
+        "2031-01-10",
+        "2031-02-10",
+        "2031-04-12",
+    ]
     assert len(pic.artists["infeasible"].get_offsets()) == 1
     # the best feasible slice is ringed
     assert pic.artists["best"].get_offsets()[0][1] == 0.9

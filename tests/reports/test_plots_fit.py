@@ -6,6 +6,7 @@ artist's window extent against the figure's bounding box (display pixels at the
 picture's own dpi, which is what savefig writes). Checked on the demo's result and
 on a small real run of the target-leg template.
 """
+
 import shutil
 from pathlib import Path
 
@@ -41,8 +42,12 @@ def texts_outside(fig) -> list[str]:
         if not t.get_visible() or not t.get_text().strip() or id(t) in undrawn:
             continue
         e = t.get_window_extent(renderer)
-        if (e.x0 < box.x0 - TOLERANCE_PX or e.y0 < box.y0 - TOLERANCE_PX
-                or e.x1 > box.x1 + TOLERANCE_PX or e.y1 > box.y1 + TOLERANCE_PX):
+        if (
+            e.x0 < box.x0 - TOLERANCE_PX
+            or e.y0 < box.y0 - TOLERANCE_PX
+            or e.x1 > box.x1 + TOLERANCE_PX
+            or e.y1 > box.y1 + TOLERANCE_PX
+        ):
             out.append(f"{t.get_text()!r} at {e.bounds} outside {box.bounds}")
     return out
 
@@ -57,8 +62,9 @@ def target_result(tmp_path_factory):
     problem = load_problem(PROBLEMS / "target-leg.toml")
     settings = settings_from(problem, {"generations": 100, "islands": 1, "population": 32})
     out = tmp_path_factory.mktemp("target") / "run"
-    outcome = run(problem, settings, out, Progress(1, enabled=False), echo=lambda *a: None,
-                  after=False)
+    outcome = run(
+        problem, settings, out, Progress(1, enabled=False), echo=lambda *a: None, after=False
+    )
     assert outcome.status == "complete"
     return out
 

@@ -8,6 +8,7 @@ summary prints must be the ``lowpath`` that, given to that routine, reproduces t
 recorded arc (and the other label must not). Designs: the invented demo problem with
 one-revolution arcs only (both roots tried at every evaluation).
 """
+
 import re
 
 import astropy.units as u
@@ -32,7 +33,8 @@ def designs(demo_path):
     found = {}
     for _ in range(400):
         x = compiled.lower + rng.uniform(0.0, 1.0, compiled.lower.shape) * (
-            compiled.upper - compiled.lower)
+            compiled.upper - compiled.lower
+        )
         record = base_record(problem, settings_from(problem), "complete")
         record.update(design_record(compiled, udp, x))
         if not record["derived"]["lambert_revolutions"]["value"] == 1:
@@ -60,12 +62,12 @@ def test_printed_root_is_poliastros_lowpath(designs, label):
     r2 = np.array(flyby["position_km"]) * u.km
     v1 = np.array(dsm["velocity_after_km_s"])
     tof = (flyby["epoch_tdb_s"] - dsm["epoch_tdb_s"]) * u.s
-    k = 132_712_440_041.279419 * u.km ** 3 / u.s ** 2  # GM of the Sun, DE440
+    k = 132_712_440_041.279419 * u.km**3 / u.s**2  # GM of the Sun, DE440
     solved = {}
     for lowpath in (True, False):
         v0, _ = izzo.lambert(k, r1, r2, tof, M=1, prograde=True, lowpath=lowpath, rtol=1e-10)
         solved[lowpath] = v0.to_value(u.km / u.s)
     same = solved[label == "low"]
     other = solved[label != "low"]
-    assert np.linalg.norm(same - v1) < 1e-6              # km/s: the recorded arc
-    assert np.linalg.norm(other - v1) > 1e-3             # the other root is another arc
+    assert np.linalg.norm(same - v1) < 1e-6  # km/s: the recorded arc
+    assert np.linalg.norm(other - v1) > 1e-3  # the other root is another arc

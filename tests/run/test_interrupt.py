@@ -7,6 +7,7 @@ documentation (a signal sent to a process group reaches every member; exit statu
 interrupted run exits 130). The resumed run is compared with an uninterrupted run of
 the same seed: both must end on the very same champion and log.
 """
+
 import csv
 import json
 import os
@@ -85,9 +86,12 @@ def outliving(pids, grace_s: float = 60.0) -> list:
 def start_and_stop(problem: Path, out: Path, sig, group: bool, min_rows: int):
     """Start a run, send ``sig`` once ``min_rows`` log rows exist; return
     (exit code, seconds from signal to exit, worker pids seen, stderr)."""
-    proc = subprocess.Popen(leverage("run", problem, "--out", out, "--quiet"),
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                            start_new_session=True)
+    proc = subprocess.Popen(
+        leverage("run", problem, "--out", out, "--quiet"),
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        start_new_session=True,
+    )
     try:
         deadline = time.monotonic() + TIMEOUT_S
         while len(log_rows(out)) < min_rows:
@@ -117,8 +121,7 @@ def champion(folder: Path) -> tuple:
 def test_sigint_keeps_the_files_and_resume_matches_an_uninterrupted_run(demo_path, tmp_path):
     problem = problem_file(demo_path, tmp_path, generations=1200)  # 60 evolutions
     out = tmp_path / "stopped"
-    code, _, workers, err = start_and_stop(problem, out, signal.SIGINT, group=False,
-                                              min_rows=4)
+    code, _, workers, err = start_and_stop(problem, out, signal.SIGINT, group=False, min_rows=4)
     assert code == 130, err
     _, _, record = champion(out)
     assert record["status"] == "interrupted"
@@ -130,8 +133,12 @@ def test_sigint_keeps_the_files_and_resume_matches_an_uninterrupted_run(demo_pat
     assert (out / "checkpoint.pickle").is_file()
     assert not outliving(workers), "worker processes outlived the run"
 
-    resumed = subprocess.run(leverage("run", problem, "--resume", out, "--quiet"),
-                             capture_output=True, text=True, timeout=TIMEOUT_S)
+    resumed = subprocess.run(
+        leverage("run", problem, "--resume", out, "--quiet"),
+        capture_output=True,
+        text=True,
+        timeout=TIMEOUT_S,
+    )
     assert resumed.returncode in (0, 3), resumed.stderr
     x_resumed, f_resumed, rec_resumed = champion(out)
     assert rec_resumed["status"] == "complete"
@@ -148,11 +155,22 @@ def test_sigint_keeps_the_files_and_resume_matches_an_uninterrupted_run(demo_pat
     straight = finish(loaded, settings, compiled, udp, search, "complete")
     assert x_resumed == straight["decision_vector"]["values"]
     assert f_resumed == straight["objective"]
-    logged = [{k: float(v) if k not in ("island", "evolution", "generations", "evaluations")
-               else v for k, v in r.items() if k != "wall_time_s"} for r in log_rows(out)]
-    expected = [{k: (str(v) if k in ("island", "evolution", "generations", "evaluations")
-                     else v) for k, v in asdict(r).items() if k != "wall_time_s"}
-                for r in search.state.history]
+    logged = [
+        {
+            k: float(v) if k not in ("island", "evolution", "generations", "evaluations") else v
+            for k, v in r.items()
+            if k != "wall_time_s"
+        }
+        for r in log_rows(out)
+    ]
+    expected = [
+        {
+            k: (str(v) if k in ("island", "evolution", "generations", "evaluations") else v)
+            for k, v in asdict(r).items()
+            if k != "wall_time_s"
+        }
+        for r in search.state.history
+    ]
     assert logged == expected
 
 
@@ -163,8 +181,7 @@ def test_sigterm_stops_cleanly(demo_path, tmp_path, group):
     # multiprocessing pool the run then waited forever; here it must still exit.
     problem = problem_file(demo_path, tmp_path, generations=20000)  # far from done
     out = tmp_path / "run"
-    code, _, workers, err = start_and_stop(problem, out, signal.SIGTERM, group=group,
-                                              min_rows=4)
+    code, _, workers, err = start_and_stop(problem, out, signal.SIGTERM, group=group, min_rows=4)
     assert code == 130, err
     _, f, record = champion(out)
     assert record["status"] == "interrupted"

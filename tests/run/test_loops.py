@@ -7,6 +7,7 @@ third law; from memory) says a two-year loop from Earth at C3 <= 24 km^2/s^2 (pe
 under two years) returns on the first pass after the DSM (0 revolutions), while a
 three-year loop needs a whole revolution between the DSM and the return.
 """
+
 import json
 
 import numpy as np
@@ -22,9 +23,11 @@ WINDOWS = {"two-year": ([680.0, 780.0], 0), "three-year": ([1040.0, 1140.0], 1)}
 
 def loop_problem(demo_path, tmp_path, window, revolutions='"any"'):
     text = demo_path.read_text()
-    for old, new in [("duration_days = [650.0, 850.0]", f"duration_days = {window}"),
-                     ("dsm_fraction = [0.2, 0.8]", "dsm_fraction = [0.05, 0.95]"),
-                     ("revolutions = 0", f"revolutions = {revolutions}\nmax_revolutions = 2")]:
+    for old, new in [
+        ("duration_days = [650.0, 850.0]", f"duration_days = {window}"),
+        ("dsm_fraction = [0.2, 0.8]", "dsm_fraction = [0.05, 0.95]"),
+        ("revolutions = 0", f"revolutions = {revolutions}\nmax_revolutions = 2"),
+    ]:
         assert old in text
         text = text.replace(old, new)
     path = tmp_path / f"loop-{window[0]:.0f}-{revolutions.strip(chr(34))}.toml"
@@ -33,10 +36,15 @@ def loop_problem(demo_path, tmp_path, window, revolutions='"any"'):
 
 
 def test_any_keeps_the_best_branch_at_every_point(demo_path, tmp_path):
-    any_udp = LeveragingUDP.from_compiled(loop_problem(demo_path, tmp_path, [650.0, 1150.0])
-                                          .compile())
-    fixed = [LeveragingUDP.from_compiled(loop_problem(demo_path, tmp_path, [650.0, 1150.0],
-                                                      str(m)).compile()) for m in (0, 1, 2)]
+    any_udp = LeveragingUDP.from_compiled(
+        loop_problem(demo_path, tmp_path, [650.0, 1150.0]).compile()
+    )
+    fixed = [
+        LeveragingUDP.from_compiled(
+            loop_problem(demo_path, tmp_path, [650.0, 1150.0], str(m)).compile()
+        )
+        for m in (0, 1, 2)
+    ]
     compiled = loop_problem(demo_path, tmp_path, [650.0, 1150.0]).compile()
     rng = np.random.default_rng(7)
     for _ in range(40):
@@ -64,6 +72,7 @@ def test_each_loop_length_finds_its_own_optimum(demo_path, tmp_path, full_size, 
     # No other revolution count does better at the optimum found.
     f_found = record["objective"][0]
     for m in (0, 1, 2):
-        udp = LeveragingUDP.from_compiled(loop_problem(demo_path, tmp_path, window, str(m))
-                                          .compile())
+        udp = LeveragingUDP.from_compiled(
+            loop_problem(demo_path, tmp_path, window, str(m)).compile()
+        )
         assert udp.fitness(x)[0] >= f_found - 1e-12

@@ -17,6 +17,7 @@ Outside sources (each problem file in tests/run/published/ names its own in its 
 
 Model differences and the tolerances they justify are stated beside each check.
 """
+
 import math
 from pathlib import Path
 
@@ -37,7 +38,7 @@ HERE = Path(__file__).resolve().parent / "published"
 AU = bodies.AU_KM
 MU_SUN = bodies.GM_SUN_KM3_S2
 V_EARTH = math.sqrt(MU_SUN / AU)  # circular speed at 1 au, km/s
-YEAR_DAYS = 2.0 * math.pi * math.sqrt(AU ** 3 / MU_SUN) / 86400.0
+YEAR_DAYS = 2.0 * math.pi * math.sqrt(AU**3 / MU_SUN) / 86400.0
 
 
 def optimum(compiled, problem):
@@ -52,7 +53,7 @@ def optimum(compiled, problem):
 
 
 def vec(q, slot):
-    return np.array(q[slot:slot + 3])
+    return np.array(q[slot : slot + 3])
 
 
 def peri_apo_au(r, v):
@@ -61,6 +62,7 @@ def peri_apo_au(r, v):
 
 
 # ------------------------------------------------------------------ 1. Juno, flown
+
 
 @pytest.fixture(scope="module")
 def juno():
@@ -84,7 +86,7 @@ def test_juno_least_dsm_matches_the_flown_dsms(juno):
     the model differences above, not the optimizer (its seed scatter is < 0.001 km/s)."""
     _, q = juno
     assert q[L.Q_OK] == 1.0
-    margins = q[L.Q_MARGIN_ALT_KM:L.Q_MARGIN_ALT_KM + L.N_MARGINS]
+    margins = q[L.Q_MARGIN_ALT_KM : L.Q_MARGIN_ALT_KM + L.N_MARGINS]
     assert np.all(margins >= -1e-6), margins  # feasible, up to the polish's last digits
     assert q[L.Q_DSM] == pytest.approx(0.732, abs=0.05)
 
@@ -124,6 +126,7 @@ def test_juno_dsm_epoch_and_flyby_boost_near_the_flown_ones(juno):
 
 # ----------------------------------------------- 2. the analytic leveraging relation
 
+
 def _mean_anomaly(nu, ecc):
     ecc_anomaly = 2.0 * math.atan(math.sqrt((1.0 - ecc) / (1.0 + ecc)) * math.tan(0.5 * nu))
     return ecc_anomaly - ecc * math.sin(ecc_anomaly)
@@ -150,7 +153,7 @@ def leveraging_2to1_plus(vinf_launch_kms):
         p1 = h1 * h1
         e1 = 1.0 - p1 / ra
         nu = math.acos((p1 - 1.0) / e1)
-        t = math.pi * a0 ** 1.5 + a1 ** 1.5 * (math.pi + _mean_anomaly(nu, e1))
+        t = math.pi * a0**1.5 + a1**1.5 * (math.pi + _mean_anomaly(nu, e1))
         vr2 = 2.0 / 1.0 - 1.0 / a1 - h1 * h1
         vinf = math.sqrt((h1 - 1.0) ** 2 + vr2)
         return t - (4.0 * math.pi + nu), vinf, t
@@ -174,8 +177,9 @@ def test_optimum_on_a_circular_planet_is_the_analytic_leveraging_dsm(vinf_launch
     dsm, vinf_return, days, ra = leveraging_2to1_plus(vinf_launch)
     text = (HERE / "leveraging_2to1.toml").read_text()
     # The file is written for 5.2 km/s; the second case edits its two launch-dependent lines.
-    text = text.replace("= 27.04", f"= {vinf_launch ** 2:.4f}").replace(
-        "min_outgoing_vinf_km_s = 7.6829", f"min_outgoing_vinf_km_s = {vinf_return:.4f}")
+    text = text.replace("= 27.04", f"= {vinf_launch**2:.4f}").replace(
+        "min_outgoing_vinf_km_s = 7.6829", f"min_outgoing_vinf_km_s = {vinf_return:.4f}"
+    )
     text = text.replace("[707.0, 827.0]", f"[{days - 60:.1f}, {days + 60:.1f}]")
     path = tmp_path / "leveraging.toml"
     path.write_text(text)
@@ -183,8 +187,9 @@ def test_optimum_on_a_circular_planet_is_the_analytic_leveraging_dsm(vinf_launch
         assert f"= {vinf_return:.4f}" in (HERE / "leveraging_2to1.toml").read_text()
     problem = load_problem(path)
     compiled = problem.compile()
-    compiled.params[L.P_BODY_EPH:L.P_BODY_EPH + EPHEMERIS_SIZE] = bodies.osculating_array(
-        AU, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0)
+    compiled.params[L.P_BODY_EPH : L.P_BODY_EPH + EPHEMERIS_SIZE] = bodies.osculating_array(
+        AU, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0
+    )
     x, q = optimum(compiled, problem)
     assert q[L.Q_PENALTY] < 1e-9
     assert q[L.Q_DSM] == pytest.approx(dsm, abs=2e-5)

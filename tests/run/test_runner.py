@@ -12,6 +12,7 @@ champion; generations per island; progress on a terminal). Optimizer runs are ma
 slow and run at a small size unless --full-size; pictures and verification after a
 run are skipped here (issue 5's, tested with them).
 """
+
 import csv
 import io
 import json
@@ -72,12 +73,16 @@ def test_same_seed_and_islands_give_the_same_champion(tmp_path, full_size, no_pi
     process. Same champion, same log; another seed gives another champion."""
     size = [] if full_size else SMALL
     outs = {}
-    for label, extra in (("processes", ["--workers", "2"]), ("in-process", ["--workers", "1"]),
-                         ("other-seed", ["--workers", "1", "--seed", "6"])):
+    for label, extra in (
+        ("processes", ["--workers", "2"]),
+        ("in-process", ["--workers", "1"]),
+        ("other-seed", ["--workers", "1", "--seed", "6"]),
+    ):
         out = tmp_path / label
         seed = [] if "--seed" in extra else ["--seed", "5"]
-        code = main(["run", str(DEMO), "--out", str(out), "--quiet", "--islands", "2"]
-                    + size + seed + extra)
+        code = main(
+            ["run", str(DEMO), "--out", str(out), "--quiet", "--islands", "2"] + size + seed + extra
+        )
         assert code in (0, 3)
         outs[label] = out
     a, b, c = (best(outs[k]) for k in ("processes", "in-process", "other-seed"))
@@ -90,9 +95,14 @@ def test_same_seed_and_islands_give_the_same_champion(tmp_path, full_size, no_pi
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("loop, revs", [("[330.0, 400.0]", "0"),     # one year
-                                        ("[700.0, 760.0]", "[0, 1]")],  # a one-year orbit, twice
-                         ids=["one-year", "two-years"])
+@pytest.mark.parametrize(
+    "loop, revs",
+    [
+        ("[330.0, 400.0]", "0"),  # one year
+        ("[700.0, 760.0]", "[0, 1]"),
+    ],  # a one-year orbit, twice
+    ids=["one-year", "two-years"],
+)
 def test_known_answer_resonant_return_needs_no_dsm(loop, revs, tmp_path, full_size, no_pictures):
     problem = tmp_path / "resonant.toml"
     problem.write_text(KNOWN_ANSWER.format(loop=loop, revs=revs), encoding="utf-8")
@@ -141,8 +151,22 @@ def test_progress_is_one_live_line_on_a_terminal_and_plain_lines_otherwise():
 
 def _tiny_run(tmp_path, label, problem=DEMO, *extra):
     out = tmp_path / label
-    code = main(["run", str(problem), "--out", str(out), "--quiet", "--workers", "1",
-                 "--generations", "60", "--population", "16"] + list(extra))
+    code = main(
+        [
+            "run",
+            str(problem),
+            "--out",
+            str(out),
+            "--quiet",
+            "--workers",
+            "1",
+            "--generations",
+            "60",
+            "--population",
+            "16",
+        ]
+        + list(extra)
+    )
     assert code in (0, 3)
     return best(out)
 
@@ -174,7 +198,9 @@ def test_polish_never_worsens_the_champion(polish, tmp_path, no_pictures):
     records = {}
     for name in (polish, "none"):
         problem = tmp_path / f"{name}.toml"
-        problem.write_text(text.replace('polish = "bobyqa"', f'polish = "{name}"'), encoding="utf-8")
+        problem.write_text(
+            text.replace('polish = "bobyqa"', f'polish = "{name}"'), encoding="utf-8"
+        )
         records[name] = _tiny_run(tmp_path, f"out-{name}", problem)
     assert records[polish]["search"]["polish"] == polish
     assert records[polish]["objective"][0] <= records["none"]["objective"][0]

@@ -5,6 +5,7 @@ Outside sources: the calendar arithmetic is checked against astropy ``Time`` (UT
 TDB days past J2000, astropy 5.3) and Python's ``datetime``; the sweep's runs are held
 to ``leverage run`` on the same slice file and seed (the same champion, bit for bit).
 """
+
 import csv
 import json
 
@@ -66,18 +67,24 @@ def test_replace_key_refuses_a_window_it_cannot_find():
 
 
 def _row(n, start, end, objective, feasible):
-    return {"slice": n, "start_utc": start, "end_utc": end,
-            "best_objective": "" if objective is None else repr(objective),
-            "feasible": "" if objective is None else int(feasible)}
+    return {
+        "slice": n,
+        "start_utc": start,
+        "end_utc": end,
+        "best_objective": "" if objective is None else repr(objective),
+        "feasible": "" if objective is None else int(feasible),
+    }
 
 
 def test_launch_periods_are_runs_of_slices_within_budget():
-    rows = [_row(1, "2031-01-01", "2031-01-31", 0.9, True),
-            _row(2, "2031-01-31", "2031-03-02", 1.1, True),
-            _row(3, "2031-03-02", "2031-04-01", 0.5, False),   # a limit violated
-            _row(4, "2031-04-01", "2031-05-01", 0.8, True),
-            _row(5, "2031-05-01", "2031-05-31", None, False),  # not run yet
-            _row(6, "2031-05-31", "2031-06-30", 0.7, True)]
+    rows = [
+        _row(1, "2031-01-01", "2031-01-31", 0.9, True),
+        _row(2, "2031-01-31", "2031-03-02", 1.1, True),
+        _row(3, "2031-03-02", "2031-04-01", 0.5, False),  # a limit violated
+        _row(4, "2031-04-01", "2031-05-01", 0.8, True),
+        _row(5, "2031-05-01", "2031-05-31", None, False),  # not run yet
+        _row(6, "2031-05-31", "2031-06-30", 0.7, True),
+    ]
     spans = [(a["slice"], b["slice"]) for a, b in launch_periods(rows, None)]
     assert spans == [(1, 2), (4, 4), (6, 6)]
     spans = [(a["slice"], b["slice"]) for a, b in launch_periods(rows, 1.0)]
@@ -94,15 +101,29 @@ def read_csv(path):
 def test_small_sweep_writes_runs_table_and_resumes(demo_path, tmp_path, capsys, full_size):
     out = tmp_path / "sweep"
     size = [] if full_size else ["--generations", "60", "--population", "10"]
-    args = ["sweep", str(demo_path), "--slice-days", "150", "--seeds", "2", "--out", str(out),
-            "--workers", "2", *size]
+    args = [
+        "sweep",
+        str(demo_path),
+        "--slice-days",
+        "150",
+        "--seeds",
+        "2",
+        "--out",
+        str(out),
+        "--workers",
+        "2",
+        *size,
+    ]
     code = cli_main(args)
     captured = capsys.readouterr()
     assert code in (0, 3), captured.err
     rows = read_csv(out / "sweep.csv")
     assert [r["slice"] for r in rows] == ["1", "2", "3"]
     assert [(r["start_utc"], r["end_utc"]) for r in rows] == [
-        ("2031-01-01", "2031-05-31"), ("2031-05-31", "2031-10-28"), ("2031-10-28", "2031-12-31")]
+        ("2031-01-01", "2031-05-31"),
+        ("2031-05-31", "2031-10-28"),
+        ("2031-10-28", "2031-12-31"),
+    ]
     assert all(r["runs_done"] == "2" for r in rows)
     for sl in (1, 2, 3):
         for seed in (1, 2):
@@ -115,15 +136,17 @@ def test_small_sweep_writes_runs_table_and_resumes(demo_path, tmp_path, capsys, 
     assert "runs 6/6, slices done 3/3, best so far" in captured.err
 
     # The table's best of slice 2 is the better of its two runs ...
-    records = [json.loads((out / "runs" / f"slice-02-seed-{s}" / "best.json").read_text())
-               for s in (1, 2)]
+    records = [
+        json.loads((out / "runs" / f"slice-02-seed-{s}" / "best.json").read_text()) for s in (1, 2)
+    ]
     best = min(records, key=lambda r: (not r["feasible"], r["objective"][0]))
     assert float(rows[1]["best_objective"]) == best["objective"][0]
     assert rows[1]["result_folder"] == f"runs/slice-02-seed-{best['search']['seed']}"
     # ... and a sweep run is exactly a plain run of that slice's problem file and seed.
     sub = load_problem(out / "slices" / "slice-02.toml")
-    settings = settings_from(sub, {"seed": 2, **({} if full_size else
-                                                 {"generations": 60, "population": 10})})
+    settings = settings_from(
+        sub, {"seed": 2, **({} if full_size else {"generations": 60, "population": 10})}
+    )
     compiled = sub.compile()
     udp = LeveragingUDP.from_compiled(compiled, sub.name)
     search = make_search(compiled, udp, settings, SerialIslands())
@@ -135,8 +158,24 @@ def test_small_sweep_writes_runs_table_and_resumes(demo_path, tmp_path, capsys, 
     # Resume: only the run whose best.json is gone runs again; the table comes out the same.
     (out / "runs" / "slice-03-seed-1" / "best.json").unlink()
     table_before = (out / "sweep.csv").read_text()
-    assert cli_main(["sweep", str(demo_path), "--slice-days", "150", "--seeds", "2",
-                     "--resume", str(out), "--workers", "1", *size]) == code
+    assert (
+        cli_main(
+            [
+                "sweep",
+                str(demo_path),
+                "--slice-days",
+                "150",
+                "--seeds",
+                "2",
+                "--resume",
+                str(out),
+                "--workers",
+                "1",
+                *size,
+            ]
+        )
+        == code
+    )
     err = capsys.readouterr().err
     assert "5 of 6 runs already done, 1 to go" in err
     assert (out / "sweep.csv").read_text() == table_before
@@ -144,6 +183,20 @@ def test_small_sweep_writes_runs_table_and_resumes(demo_path, tmp_path, capsys, 
     # A second sweep into the folder is refused, and so is a resume that asks otherwise.
     assert cli_main(args) == 2
     assert "folder exists and is not empty" in capsys.readouterr().err
-    assert cli_main(["sweep", str(demo_path), "--slice-days", "100", "--seeds", "2",
-                     "--resume", str(out), *size]) == 2
+    assert (
+        cli_main(
+            [
+                "sweep",
+                str(demo_path),
+                "--slice-days",
+                "100",
+                "--seeds",
+                "2",
+                "--resume",
+                str(out),
+                *size,
+            ]
+        )
+        == 2
+    )
     assert "differs in its --slice-days" in capsys.readouterr().err

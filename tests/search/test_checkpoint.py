@@ -6,6 +6,7 @@ state, including the random engine (pygmo 2.19 docs, "Serialization"), and Pytho
 ``os.replace`` documentation that the rename is atomic on POSIX; the checks below
 hold the code to both (same champion after a save/load/continue as without one).
 """
+
 import pickle
 
 import numpy as np
@@ -19,8 +20,13 @@ from leverage.search import checkpoint
 from leverage.search.islands import ProcessIslands, SerialIslands
 from leverage.search.udp import LeveragingUDP
 
-SMALL = {"islands": 2, "population": 10, "generations": 60, "generations_per_migration": 10,
-         "seed": 7}
+SMALL = {
+    "islands": 2,
+    "population": 10,
+    "generations": 60,
+    "generations_per_migration": 10,
+    "seed": 7,
+}
 
 
 def small_search(problem, evolver=None, **over):
@@ -61,10 +67,14 @@ def test_save_load_continue_gives_the_same_champion(demo_path, tmp_path):
     np.testing.assert_array_equal(x, x_ref)
     np.testing.assert_array_equal(f, f_ref)
     # the history continues too: same rows as the straight run, wall time aside
-    strip = [(r.evolution, r.island, r.evaluations, r.best_objective, r.median_objective)
-             for r in resumed.state.history]
-    assert strip == [(r.evolution, r.island, r.evaluations, r.best_objective, r.median_objective)
-                     for r in straight.state.history]
+    strip = [
+        (r.evolution, r.island, r.evaluations, r.best_objective, r.median_objective)
+        for r in resumed.state.history
+    ]
+    assert strip == [
+        (r.evolution, r.island, r.evaluations, r.best_objective, r.median_objective)
+        for r in straight.state.history
+    ]
 
 
 @pytest.mark.slow
@@ -106,8 +116,15 @@ def test_write_bytes_atomic_replaces_whole_file(tmp_path):
 
 
 def test_resumed_settings_keep_the_run_and_only_grow_generations(demo_path):
-    saved = {"algorithm": "sade", "islands": 2, "population": 24, "generations": 400,
-             "generations_per_migration": 50, "seed": 1, "polish": "bobyqa"}
+    saved = {
+        "algorithm": "sade",
+        "islands": 2,
+        "population": 24,
+        "generations": 400,
+        "generations_per_migration": 50,
+        "seed": 1,
+        "polish": "bobyqa",
+    }
     same = resumed_settings(saved, {"seed": 1}, 3)
     assert same.generations == 400 and same.seed == 1
     longer = resumed_settings(saved, {"generations": 520}, 3)
@@ -121,12 +138,24 @@ def test_resumed_settings_keep_the_run_and_only_grow_generations(demo_path):
 @pytest.mark.slow
 def test_resume_refuses_another_problem_in_one_line(demo_path, tmp_path, capsys):
     out = tmp_path / "run"
-    assert cli_main(["run", str(demo_path), "--out", str(out), "--quiet", "--generations", "50",
-                     "--population", "8", "--islands", "1"]) in (0, 3)
+    assert cli_main(
+        [
+            "run",
+            str(demo_path),
+            "--out",
+            str(out),
+            "--quiet",
+            "--generations",
+            "50",
+            "--population",
+            "8",
+            "--islands",
+            "1",
+        ]
+    ) in (0, 3)
     capsys.readouterr()
     other = tmp_path / "other.toml"
-    other.write_text(demo_path.read_text().replace("max_c3_km2_s2 = 24.0",
-                                                   "max_c3_km2_s2 = 25.0"))
+    other.write_text(demo_path.read_text().replace("max_c3_km2_s2 = 24.0", "max_c3_km2_s2 = 25.0"))
     assert cli_main(["run", str(other), "--resume", str(out)]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1

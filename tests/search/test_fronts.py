@@ -9,6 +9,7 @@ from memory); the knee as the point farthest from the line through the extreme
 points (Das 1999, Structural Optimization 18; from memory). The template problem is
 invented (problems/trade-front.toml).
 """
+
 import csv
 import json
 
@@ -92,17 +93,22 @@ def test_reference_point_is_the_budget_and_zero_gain(problems_dir):
     assert reference_point(p).tolist() == [1.49, 0.0]
 
 
-@pytest.mark.parametrize("edit, message", [
-    ('dsm_budget_km_s = 1.5', 'needs a DSM budget'),
-    ('population = 64', 'nsga2 needs a multiple of 4'),
-    ('algorithm = "nsga2"', 'a front goal needs one of'),
-    ('objectives = ["total_dv", "gain"]', 'delivered_mass needs a [vehicle] section'),
-])
+@pytest.mark.parametrize(
+    "edit, message",
+    [
+        ("dsm_budget_km_s = 1.5", "needs a DSM budget"),
+        ("population = 64", "nsga2 needs a multiple of 4"),
+        ('algorithm = "nsga2"', "a front goal needs one of"),
+        ('objectives = ["total_dv", "gain"]', "delivered_mass needs a [vehicle] section"),
+    ],
+)
 def test_bad_front_files_are_refused_in_one_line(problems_dir, tmp_path, edit, message):
-    replace = {'dsm_budget_km_s = 1.5': '',
-               'population = 64': 'population = 30',
-               'algorithm = "nsga2"': 'algorithm = "sade"',
-               'objectives = ["total_dv", "gain"]': 'objectives = ["total_dv", "delivered_mass"]'}
+    replace = {
+        "dsm_budget_km_s = 1.5": "",
+        "population = 64": "population = 30",
+        'algorithm = "nsga2"': 'algorithm = "sade"',
+        'objectives = ["total_dv", "gain"]': 'objectives = ["total_dv", "delivered_mass"]',
+    }
     path = tmp_path / "bad.toml"
     path.write_text((problems_dir / "trade-front.toml").read_text().replace(edit, replace[edit]))
     with pytest.raises(ProblemError) as err:
@@ -112,8 +118,9 @@ def test_bad_front_files_are_refused_in_one_line(problems_dir, tmp_path, edit, m
 
 @pytest.mark.slow
 @pytest.mark.parametrize("algorithm", ["nsga2", "moead", "nspso"])
-def test_front_run_writes_a_feasible_non_dominated_front(problems_dir, tmp_path, full_size,
-                                                         algorithm):
+def test_front_run_writes_a_feasible_non_dominated_front(
+    problems_dir, tmp_path, full_size, algorithm
+):
     problem = load_problem(problems_dir / "trade-front.toml")
     small = {"algorithm": algorithm}
     if not full_size:
@@ -124,13 +131,14 @@ def test_front_run_writes_a_feasible_non_dominated_front(problems_dir, tmp_path,
     assert outcome.status == "complete" and outcome.feasible
     rows = list(csv.DictReader((out / "front.csv").open()))
     assert len(rows) >= 5
-    f = np.array([[float(r["objective_total_dv_km_s"]), float(r["objective_minus_gain_km_s"])]
-                  for r in rows])
+    f = np.array(
+        [[float(r["objective_total_dv_km_s"]), float(r["objective_minus_gain_km_s"])] for r in rows]
+    )
     for i in range(len(f)):
         for j in range(len(f)):
             assert i == j or not dominates(f[j], f[i])
     udp = LeveragingUDP.from_compiled(problem.compile())
-    x_cols = list(rows[0])[4:4 + 8]  # after member, knee and the two objectives
+    x_cols = list(rows[0])[4 : 4 + 8]  # after member, knee and the two objectives
     assert x_cols[0] == "x_launch_epoch_days" and x_cols[-1] == "x_bplane_angle_deg"
     header = (out / "front.csv").read_text().splitlines()[0].split(",")
     assert len(set(header)) == len(header)  # no column name repeats (issue 13)

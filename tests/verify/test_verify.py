@@ -17,6 +17,7 @@ Outside sources:
   positions and must be read back through the SPK path to the same positions;
 The fixture is a real small run of the (invented) demo problem, searched with DE421.
 """
+
 import json
 import math
 import shutil
@@ -51,12 +52,24 @@ DAY = 86400.0
 
 # ------------------------------------------------------------------ synthetic SPK
 
+
 def _empty_daf(path, nd=2, ni=6):
     """A DAF/SPK file with no arrays: file record, one empty summary and name record."""
     ftpstr = b"FTPSTR:\r:\n:\r\n:\r\x00:\x81:\x10\xce:ENDFTP"
-    record = struct.pack("<8sII60sIII8s603s28s297s", b"DAF/SPK ", nd, ni,
-                         b"leverage synthetic test kernel".ljust(60), 2, 2, 3 * 128 + 1,
-                         b"LTL-IEEE", b"\0" * 603, ftpstr, b"\0" * 297)
+    record = struct.pack(
+        "<8sII60sIII8s603s28s297s",
+        b"DAF/SPK ",
+        nd,
+        ni,
+        b"leverage synthetic test kernel".ljust(60),
+        2,
+        2,
+        3 * 128 + 1,
+        b"LTL-IEEE",
+        b"\0" * 603,
+        ftpstr,
+        b"\0" * 297,
+    )
     summary = struct.pack("<ddd", 0.0, 0.0, 0.0).ljust(1024, b"\0")
     names = b" " * 1024
     path.write_bytes(record + summary + names)
@@ -81,10 +94,10 @@ def write_synthetic_spk(path, t0, t1, interval_days=8.0, degree=13, skip=()):
         return src.barycentric(name, times)[0].reshape(n_rec, degree + 1, 3)
 
     emb = positions("earth-moon-barycenter")
-    bodies_pos = {(0, 10): positions("sun"), (0, 3): emb,
-                  (3, 399): positions("earth") - emb}
-    for k, name in enumerate(["mercury", "venus", "earth", "mars", "jupiter", "saturn",
-                              "uranus", "neptune"], start=1):
+    bodies_pos = {(0, 10): positions("sun"), (0, 3): emb, (3, 399): positions("earth") - emb}
+    for k, name in enumerate(
+        ["mercury", "venus", "earth", "mars", "jupiter", "saturn", "uranus", "neptune"], start=1
+    ):
         if k != 3:
             bodies_pos[(0, k)] = positions(name)
     _empty_daf(path)
@@ -99,12 +112,16 @@ def write_synthetic_spk(path, t0, t1, interval_days=8.0, degree=13, skip=()):
                 rows.append(np.concatenate([[mids[j], intlen / 2], *coef]))
             rsize = 2 + 3 * (degree + 1)
             data = np.concatenate([np.ravel(rows), [t0, intlen, rsize, n_rec]])
-            daf.add_array(f"synthetic {center}->{target}".encode(),
-                          (t0, t0 + n_rec * intlen, target, center, 1, 2), data)
+            daf.add_array(
+                f"synthetic {center}->{target}".encode(),
+                (t0, t0 + n_rec * intlen, target, center, 1, 2),
+                data,
+            )
     return path
 
 
 # ------------------------------------------------------------------ fixtures
+
 
 @pytest.fixture(scope="module")
 def record(demo_result):
@@ -136,6 +153,7 @@ def _finite_numbers(value):
 
 # ------------------------------------------------------------------ tests
 
+
 def test_a_run_writes_its_verification(demo_result):
     text = (demo_result / "verification.txt").read_text()
     data = json.loads((demo_result / "verification.json").read_text())
@@ -157,7 +175,7 @@ def test_conic_arcs_agree_with_scipy_two_body_integration(report):
     arcs = report["two_body"]["arcs"]
     assert [a["end"] for a in arcs] == ["DSM", "flyby", "end of outgoing span"]
     for arc in arcs:
-        assert arc["position_mismatch_km"] < 0.05, arc   # 50 m over hundreds of days
+        assert arc["position_mismatch_km"] < 0.05, arc  # 50 m over hundreds of days
         assert arc["velocity_mismatch_m_s"] < 1e-3, arc
 
 
@@ -170,12 +188,12 @@ def test_refly_with_the_search_ephemeris_returns_the_design(report, record):
     assert eph["source"].startswith("JPL DE421")
     assert q["dsm"]["design"] == record["derived"]["dsm"]["value"]
     for key in ("dsm", "flyby_vinf_in", "flyby_vinf_out", "total_dv"):
-        assert abs(q[key]["change"]) < 1e-9, key                      # km/s
+        assert abs(q[key]["change"]) < 1e-9, key  # km/s
     assert q["dsm_position_change_km"]["check"] < 0.01
     assert q["body_position_change_at_flyby_km"]["check"] < 0.01
-    assert abs(q["turn_angle"]["change"]) < 1e-7                      # deg
-    assert abs(q["outgoing_inclination_deg"]["change"]) < 1e-7        # deg
-    assert abs(q["outgoing_aphelion_au"]["change"]) < 1e-9            # au
+    assert abs(q["turn_angle"]["change"]) < 1e-7  # deg
+    assert abs(q["outgoing_inclination_deg"]["change"]) < 1e-7  # deg
+    assert abs(q["outgoing_aphelion_au"]["change"]) < 1e-9  # au
 
 
 def test_limits_are_rechecked_against_the_stated_limits(report, record):
@@ -197,7 +215,7 @@ def test_refly_with_astropy_builtin_moves_the_design_by_its_accuracy(record):
     moves by about that much (measured 0.57 mm/s DSM, 0.43 mm/s v-infinity, 21 km at the
     DSM on the demo; bounds ~10x)."""
     q = refly(record, BuiltinEphemeris())["quantities"]
-    assert abs(q["dsm"]["change"]) < 5e-6                              # km/s
+    assert abs(q["dsm"]["change"]) < 5e-6  # km/s
     assert abs(q["flyby_vinf_in"]["change"]) < 5e-6
     assert 0.1 < q["dsm_position_change_km"]["check"] < 200.0
     assert 0.1 < q["body_position_change_at_flyby_km"]["check"] < 50.0
@@ -210,9 +228,11 @@ def test_launch_asymptote_round_trip(record):
     eq = ecliptic_to_equatorial(vec[None, :])[0]
     assert eq @ eq == pytest.approx(d["c3"]["value"], rel=1e-14)
     assert math.degrees(math.asin(eq[2] / np.linalg.norm(eq))) == pytest.approx(
-        d["dla"]["value"], abs=1e-10)
+        d["dla"]["value"], abs=1e-10
+    )
     assert math.degrees(math.atan2(eq[1], eq[0])) % 360 == pytest.approx(
-        d["rla"]["value"], abs=1e-10)
+        d["rla"]["value"], abs=1e-10
+    )
 
 
 def test_a_design_on_its_limit_breaks_in_verify_with_exit_4(demo_result, tmp_path, capsys):
@@ -241,12 +261,19 @@ def test_run_exit_code_names_the_limit_the_verification_breaks(tmp_path, capsys)
     from leverage.cli.run import exit_code
     from leverage.run.runner import RunOutcome
 
-    record = {"feasible": True, "verification": {
-        "holds": False, "broken": [{"limit": "max_c3", "check": -0.002, "unit": "km^2/s^2"}]}}
+    record = {
+        "feasible": True,
+        "verification": {
+            "holds": False,
+            "broken": [{"limit": "max_c3", "check": -0.002, "unit": "km^2/s^2"}],
+        },
+    }
     assert exit_code(RunOutcome(tmp_path, "complete", record)) == 4
     err = capsys.readouterr().err.strip()
-    assert err == (f"leverage: {tmp_path / 'best.json'}: the design breaks max_c3 (margin "
-                   "-0.002 km^2/s^2) in the verification")
+    assert err == (
+        f"leverage: {tmp_path / 'best.json'}: the design breaks max_c3 (margin "
+        "-0.002 km^2/s^2) in the verification"
+    )
     record["verification"] = {"holds": True, "broken": []}
     assert exit_code(RunOutcome(tmp_path, "complete", record)) == 0
     record["feasible"] = False
@@ -267,14 +294,20 @@ def test_point_mass_cases_are_reported_and_retargeted(report):
 
 def test_text_says_what_is_and_is_not_covered(report):
     text = render(report)
-    for phrase in ("This check covers", "It does not cover", "finite burns",
-                   "solar radiation pressure", "Sun and planets as point masses"):
+    for phrase in (
+        "This check covers",
+        "It does not cover",
+        "finite burns",
+        "solar radiation pressure",
+        "Sun and planets as point masses",
+    ):
         assert phrase in text
 
 
 def test_point_mass_integration_with_only_a_fixed_sun_is_two_body(record):
     """The point-mass machinery (table, splines, integrator) reproduces a conic when the
     only mass is a Sun held at the origin."""
+
     class FixedSun:
         name = "fixed Sun"
 
@@ -333,19 +366,19 @@ def test_synthetic_spk_reads_back_to_the_positions_it_was_made_from(spk_file, re
     try:
         assert spk.chain("earth") == [(0, 3), (3, 399)]
         assert spk.chain("mars") == [(0, 4)]
-        t = np.linspace(event_states(record)["launch"]["t"], event_states(record)["flyby"]["t"],
-                        7)
+        t = np.linspace(event_states(record)["launch"]["t"], event_states(record)["flyby"]["t"], 7)
         builtin = BuiltinEphemeris()
         for body in ("sun", "earth", "venus", "jupiter"):
             r_spk, v_spk = spk.barycentric(body, t)
             r_ref, _ = builtin.barycentric(body, t)
-            assert np.max(np.linalg.norm(r_spk - r_ref, axis=1)) < 1.0, body       # km
+            assert np.max(np.linalg.norm(r_spk - r_ref, axis=1)) < 1.0, body  # km
             # velocity (km/day in the file -> km/s) against a central difference of the
             # builtin positions (plan94's own velocities differ from that by ~1 m/s)
             h = 600.0
-            v_ref = (builtin.barycentric(body, t + h)[0] - builtin.barycentric(body, t - h)[0]) \
-                / (2 * h)
-            assert np.max(np.linalg.norm(v_spk - v_ref, axis=1)) < 1e-5, body      # km/s
+            v_ref = (builtin.barycentric(body, t + h)[0] - builtin.barycentric(body, t - h)[0]) / (
+                2 * h
+            )
+            assert np.max(np.linalg.norm(v_spk - v_ref, axis=1)) < 1e-5, body  # km/s
     finally:
         spk.close()
 
@@ -362,7 +395,8 @@ def test_verification_through_an_spk_kernel_matches_the_builtin_one(spk_file, re
     for key in ("dsm", "flyby_vinf_in"):
         assert with_spk[key]["check"] == pytest.approx(builtin[key]["check"], abs=1e-5), key
     assert with_spk["body_position_change_at_flyby_km"]["check"] == pytest.approx(
-        builtin["body_position_change_at_flyby_km"]["check"], abs=2.0)
+        builtin["body_position_change_at_flyby_km"]["check"], abs=2.0
+    )
 
 
 def test_verify_command_with_spk(spk_file, demo_result, tmp_path, capsys):
@@ -404,9 +438,10 @@ def test_after_run_failures_are_one_line_and_keep_the_results(record, tmp_path, 
     (tmp_path / "best.json").write_text(json.dumps(record))
     lines = []
     afterrun.pictures_and_verification(tmp_path, record, lines.append)
-    assert lines == [f"pictures not made (RuntimeError: boom); try: leverage plot {tmp_path}",
-                     f"verification not made (RuntimeError: boom); try: leverage verify "
-                     f"{tmp_path}"]
+    assert lines == [
+        f"pictures not made (RuntimeError: boom); try: leverage plot {tmp_path}",
+        f"verification not made (RuntimeError: boom); try: leverage verify {tmp_path}",
+    ]
     assert (tmp_path / "best.json").is_file()
 
 
@@ -417,8 +452,11 @@ def test_after_run_ctrl_c_is_one_line(record, tmp_path, monkeypatch):
     monkeypatch.setattr(afterrun.plots, "all_pictures", interrupt)
     lines = []
     # the command turns this into one line and exit 130; what was written stays
-    with pytest.raises(KeyboardInterrupt, match="during the pictures; best.json and "
-                       "summary.txt are written; continue with: leverage plot"):
+    with pytest.raises(
+        KeyboardInterrupt,
+        match="during the pictures; best.json and "
+        "summary.txt are written; continue with: leverage plot",
+    ):
         afterrun.pictures_and_verification(tmp_path, record, lines.append)
     assert lines == []
 
@@ -432,15 +470,20 @@ def test_a_point_mass_case_that_cannot_be_set_up_is_reported_not_fatal(record, m
     monkeypatch.setattr(nbody_check, "_crossing", no_crossing)
     report = verify_record(record)
     assert report["point_masses"]["all_planets"] == {
-        "skipped": "ValueError: f(a) and f(b) must have different signs"}
+        "skipped": "ValueError: f(a) and f(b) must have different signs"
+    }
     assert "end_position_difference_km" in report["point_masses"]["other_planets"]
     assert "all planets: not computed (ValueError" in render(report)
 
 
 def test_after_run_skips_a_design_with_an_unsolved_leg(record, tmp_path):
     broken = json.loads(json.dumps(record))
-    broken["margins"]["lambert_solved"] = {"margin": -1.0, "unit": "", "holds": False,
-                                           "meaning": "0 when every arc was solved"}
+    broken["margins"]["lambert_solved"] = {
+        "margin": -1.0,
+        "unit": "",
+        "holds": False,
+        "meaning": "0 when every arc was solved",
+    }
     lines = []
     afterrun.pictures_and_verification(tmp_path, broken, lines.append)
     assert lines == ["pictures and verification skipped: the best point has an unsolved leg"]
@@ -450,8 +493,12 @@ def test_after_run_skips_a_design_with_an_unsolved_leg(record, tmp_path):
 @pytest.mark.parametrize("command", [["plot"], ["verify"], ["export", "--format", "csv"]])
 def test_commands_refuse_a_record_without_a_solved_design(record, tmp_path, capsys, command):
     broken = json.loads(json.dumps(record))
-    broken["margins"]["lambert_solved"] = {"margin": -1.0, "unit": "", "holds": False,
-                                           "meaning": "0 when every arc was solved"}
+    broken["margins"]["lambert_solved"] = {
+        "margin": -1.0,
+        "unit": "",
+        "holds": False,
+        "meaning": "0 when every arc was solved",
+    }
     (tmp_path / "best.json").write_text(json.dumps(broken))
     assert main([command[0], str(tmp_path), *command[1:]]) == 2
     err = capsys.readouterr().err.strip()

@@ -188,3 +188,20 @@ def test_a_front_search_checkpoints_the_same_way(problems_dir, tmp_path):
     np.testing.assert_array_equal(x, x_ref)
     np.testing.assert_array_equal(f, f_ref)
     np.testing.assert_array_equal(resumed.state.archive_f, straight.state.archive_f)
+
+
+def test_the_largest_allowed_seed_and_island_fit_pygmo():
+    """pygmo seeds are 32-bit unsigned (its docs): island i of seed s starts from
+    1000 s + i, so the schema's largest seed with its largest island count must fit, and
+    the next seed would not."""
+    import pygmo as pg
+
+    from leverage.problem.schema import MAX_ISLANDS, MAX_SEED
+    from leverage.search.single import island_seed
+
+    largest = island_seed(MAX_SEED, MAX_ISLANDS - 1)
+    assert largest <= 2**32 - 1 < island_seed(MAX_SEED + 1, MAX_ISLANDS - 1)
+    pop = pg.population(pg.problem(pg.rosenbrock(2)), 8, seed=largest)
+    assert len(pop) == 8
+    algo = pg.algorithm(pg.sade(gen=1, seed=largest))
+    assert algo.evolve(pop).champion_f[0] <= pop.champion_f[0]

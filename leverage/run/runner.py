@@ -335,6 +335,7 @@ def run(
     search = None
     fault = None  # an OSError (disk full, folder gone read-only) that stopped the search
     run_info = {}
+    logged = None  # evolutions whose log rows and checkpoint are written
     with StopSignals() as stop:
         try:
             try:
@@ -355,12 +356,14 @@ def run(
                 )
                 saver = checkpoint.Checkpointer(out_dir, problem, settings)
                 try:
+                    logged = search.state.evolution
                     while not search.done:
                         rows = search.step()
                         # An evolution counts once its log rows and checkpoint are written.
                         with stop.deferred():
                             log.write(rows)
                             saver.save(search, final=search.done)
+                            logged = search.state.evolution
                         progress.update(
                             search.state.evolution,
                             search.champion()[1][0],
@@ -389,6 +392,10 @@ def run(
                         f"interrupted ({why}) before the search started; nothing to write"
                     )
                     return RunOutcome(out_dir, "not started", None)
+                if logged is not None and search.state.evolution != logged:
+                    # cut inside an evolution: the record counts what the log and the
+                    # checkpoint hold (the champion may still come from the cut one)
+                    run_info["evolutions"] = logged
                 progress.note(
                     f"interrupted ({why}) at evolution {search.state.evolution}: "
                     "writing the best design found so far"

@@ -55,7 +55,9 @@ from typing import NamedTuple
 
 import numpy as np
 
+from leverage.astro.ephemerides import EQUATORIAL_TO_ECLIPTIC as ICRF_TO_ECLIPTIC
 from leverage.core import layout as L
+from leverage.core.constants import DAY_S
 from leverage.core.ephemeris import (
     CHEB_DE_NUMBER,
     CHEB_GRANULE_S,
@@ -69,11 +71,9 @@ from leverage.core.ephemeris import (
     KIND_CHEBYSHEV,
     KIND_MEAN_ELEMENTS,
 )
-from leverage.core.frames import OBLIQUITY_J2000_RAD
 from leverage.errors import NO_VALUE, ProblemError
 
 J2000_JD = 2451545.0
-DAY_S = 86400.0
 PACKAGES = {"de421": 421, "de423": 423}
 # NAIF codes (NAIF IDs required reading): system barycentres 1..8, Earth 399, Sun 10.
 NAIF_IDS = {
@@ -91,10 +91,6 @@ _NAMES_BY_NAIF = {
     **{100 * v + 99: k for k, v in NAIF_IDS.items() if v < 10},
     3: "earth-moon",
 }
-
-_c, _s = np.cos(OBLIQUITY_J2000_RAD), np.sin(OBLIQUITY_J2000_RAD)
-# ICRF (mean equator and equinox of J2000) -> ecliptic J2000, applied to column vectors.
-ICRF_TO_ECLIPTIC = np.array([[1.0, 0.0, 0.0], [0.0, _c, _s], [0.0, -_s, _c]])
 
 
 class DeTable(NamedTuple):

@@ -22,7 +22,8 @@ hyperbola; no ascent.
 
 import numpy as np
 
-DAY_S = 86400.0
+from leverage.core.constants import DAY_S
+
 J2000_JD = 2451545.0
 
 # Order of the bodies in every array of this package. "earth" and "moon" are their

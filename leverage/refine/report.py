@@ -22,6 +22,7 @@ import numpy as np
 from leverage.about import CAUTION, __version__
 from leverage.astro import times
 from leverage.astro.ephemerides import EQUATORIAL_TO_ECLIPTIC
+from leverage.core.constants import AU_KM, DAY_S
 from leverage.record.arcs import design_arcs
 from leverage.record.design import clean
 from leverage.refine import shooting
@@ -29,7 +30,6 @@ from leverage.refine.forces import BODY_NAMES, FORCE_MODEL, LEFT_OUT
 from leverage.reports import oem
 from leverage.reports.export import iso_epochs
 
-DAY_S = 86400.0
 OUTGOING_PLOT_DAYS = 365.0
 SAMPLE_STEP_S = DAY_S
 DENSE_STEP_S = 600.0  # near the Earth: 10-minute samples for 2 days
@@ -395,7 +395,7 @@ def plot_png(rec, record, arcs) -> bytes:
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    au = 149_597_870.7
+    au = AU_KM
     fig = Figure(figsize=(12, 6), dpi=110)
     FigureCanvasAgg(fig)
     ax, ax2 = fig.add_subplot(1, 2, 1), fig.add_subplot(1, 2, 2)

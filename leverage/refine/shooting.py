@@ -46,6 +46,7 @@ from scipy.optimize import least_squares, minimize
 
 from leverage.astro import bodies
 from leverage.astro.ephemerides import EQUATORIAL_TO_ECLIPTIC
+from leverage.core.constants import DAY_S
 from leverage.core.ephemeris import body_state
 from leverage.core.frames import launch_asymptote
 from leverage.core.kepler import elements_from_state
@@ -53,7 +54,6 @@ from leverage.core.kepler import propagate as conic_propagate
 from leverage.record.arcs import event_states
 from leverage.verify.nbody_check import departure_periapsis, soi_radius_km
 
-DAY_S = 86400.0
 AU_KM = bodies.AU_KM
 R_UNIT_KM = 1.0e4  # scale of the periapsis position unknowns
 SOI_MULTIPLE = 3.0  # outgoing quantities measured this many SOI radii out

@@ -29,6 +29,7 @@ import numpy as np
 
 from leverage.astro import bodies
 from leverage.astro.ephemerides import equatorial_to_ecliptic, heliocentric_ecliptic
+from leverage.astro.poliastro_cache import cache_poliastro_kernels
 from leverage.core.constants import AU_KM
 from leverage.record.arcs import event_states
 from leverage.record.design import as_float
@@ -128,6 +129,7 @@ def refly(record, source) -> dict:
     row is {"limit", "unit", "stated", "required_margin", "design", "check", "holds"};
     margins >= 0 hold. ``"problem"`` names what could not be re-flown.
     """
+    cache_poliastro_kernels()
     body = bodies.planet(record["problem"]["body"])
     name = body.name.lower()
     ev = event_states(record)

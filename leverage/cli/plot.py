@@ -2,11 +2,6 @@
 
 from pathlib import Path
 
-from leverage.fileio import check_writable, load_record
-from leverage.record.arcs import check_record
-from leverage.reports.plots import all_pictures
-from leverage.run.lock import folder_lock
-
 
 def add_parser(sub):
     p = sub.add_parser(
@@ -21,6 +16,13 @@ def add_parser(sub):
 
 
 def main(args) -> int:
+    # Imported here, not at the top: building the command imports every subcommand
+    # module, and `show`, `new` and friends must not pay for what they never use.
+    from leverage.fileio import check_writable, load_record
+    from leverage.record.arcs import check_record
+    from leverage.reports.plots import all_pictures
+    from leverage.run.lock import folder_lock
+
     record = load_record(args.results)
     check_record(record, str(Path(args.results) / "best.json"))
     check_writable(args.results, create=False)  # a read-only folder: one line, no work

@@ -35,8 +35,7 @@ from leverage.errors import NO_VALUE, ProblemError
 from leverage.fileio import write_bytes_atomic
 from leverage.record import objective
 from leverage.record.arcs import body_orbit, design_arcs, event_states, target_orbit
-from leverage.record.design import as_float
-from leverage.search.fronts import KNEE_MIN_DISTANCE
+from leverage.record.design import KNEE_MIN_DISTANCE, as_float
 
 DPI = 120
 FOOTER = "Preliminary patched-conic design: verify it before any flight use."

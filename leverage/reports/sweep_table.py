@@ -19,7 +19,6 @@ import io
 import math
 
 from leverage.about import CAUTION
-from leverage.astro.times import parse_utc
 from leverage.core.constants import DAY_S
 from leverage.fileio import read_json
 from leverage.record import objective
@@ -155,6 +154,8 @@ def _num(text, digits):
 
 
 def _days(a: str, b: str) -> float:
+    from leverage.astro.times import parse_utc  # astropy: not for `leverage show`
+
     return (parse_utc(b) - parse_utc(a)).total_seconds() / DAY_S
 
 
@@ -239,3 +240,40 @@ def render(meta: dict, rows: list, status: str, max_objective: float | None) -> 
         )
     lines += ["", f"CAUTION: {CAUTION}", ""]
     return "\n".join(lines)
+
+
+def is_sweep_folder(folder) -> bool:
+    """A folder written by ``leverage sweep`` (sweep.json, no best.json of its own)."""
+    from pathlib import Path
+
+    folder = Path(folder)
+    return (folder / "sweep.json").is_file() and not (folder / "best.json").is_file()
+
+
+def folder_text(folder) -> str:
+    """sweep.txt of a sweep folder rendered again from its sweep.json and sweep.csv (so an
+    older sweep reads in the objective's own unit too); a one-line ProblemError for a
+    folder that is not a readable sweep."""
+    from pathlib import Path
+
+    from leverage.errors import NO_VALUE, ProblemError
+
+    folder = Path(folder)
+    try:
+        meta = read_json(folder / "sweep.json")
+        with open(folder / "sweep.csv", encoding="utf-8", newline="") as fh:
+            rows = [dict(r) for r in csv.DictReader(fh)]
+        for r in rows:
+            for column in COLUMNS:
+                r.setdefault(column, "")
+            if r["objective_value"] == "" and r["best_objective"] != "":
+                shown = shown_of(meta)
+                r["objective_value"] = repr(shown.value(float(r["best_objective"])))
+        done = sum(int(r["runs_done"] or 0) for r in rows)
+        planned = sum(int(r["runs_planned"] or 0) for r in rows)
+        status = "complete" if done == planned else "unfinished"
+        return render(meta, rows, status, meta.get("max_objective"))
+    except (OSError, ValueError, KeyError, TypeError) as exc:
+        raise ProblemError(
+            str(folder), "", NO_VALUE, f"not a readable sweep folder ({type(exc).__name__}: {exc})"
+        ) from None

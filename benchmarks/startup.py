@@ -4,6 +4,8 @@ Each measurement starts a new process and times, on the wall clock:
 - ``python -c pass`` (the interpreter alone);
 - importing the command (``import leverage.cli`` plus every subcommand module, which is
   what ``leverage`` does before parsing its arguments);
+- ``leverage show`` of a demo result folder and ``leverage check`` of the demo (issue 13
+  targets, warm: show <= 1 s, check <= 2 s);
 - ``leverage run`` of the demo with one generation (``--generations 1``) on one island,
   through ``benchmarks/first_evaluation.py``, which notes when the first evaluation
   returns (kernels loaded from the numba cache, or compiled when it is cold) without
@@ -11,13 +13,15 @@ Each measurement starts a new process and times, on the wall clock:
   process (which includes the run's pictures and verification); and the same with the
   demo's own two islands (worker processes start at the first evolution).
 Cold: NUMBA_CACHE_DIR and XDG_CACHE_HOME point at a fresh temporary folder, so every
-kernel compiles. ``--new-venv`` also builds a fresh virtual environment with
+kernel compiles; the run's own record says how long the compile took (best.json
+``run.compile_s``, measured by ``leverage.run.compile_notice``). ``--new-venv`` also builds a fresh virtual environment with
 ``pip install -e .`` (downloads every dependency) and measures a cold start in it.
 
 Usage: python -m benchmarks.startup [--repeats 5] [--cold 1] [--new-venv] [--smoke]
 """
 
 import argparse
+import json
 import os
 import shutil
 import subprocess
@@ -35,15 +39,16 @@ def timed(cmd, env=None) -> float:
     start = time.perf_counter()
     proc = subprocess.run(cmd, capture_output=True, text=True, env=env, cwd=ROOT)
     wall = time.perf_counter() - start
-    if proc.returncode not in (0, 3):
+    if proc.returncode not in (0, 3, 7):
         raise RuntimeError(
             f"{' '.join(map(str, cmd))} failed ({proc.returncode}): {proc.stderr.strip()[-400:]}"
         )
     return wall
 
 
-def first_evaluation(python, islands, env=None) -> tuple:
-    """(s to the end of the first evaluation, s to the end) of a one-generation demo run."""
+def first_evaluation(python, islands, env=None, with_compile=False) -> tuple:
+    """(s to the end of the first evaluation, s to the end) of a one-generation demo run;
+    ``with_compile``: and the run's own compile time (best.json run.compile_s)."""
     with tempfile.TemporaryDirectory(prefix="leverage-start-") as tmp:
         marker = Path(tmp) / "first"
         cmd = [
@@ -65,15 +70,49 @@ def first_evaluation(python, islands, env=None) -> tuple:
         t0 = time.time()
         total = timed(cmd, env)
         first = float(marker.read_text().split()[1]) - t0
+        if with_compile:
+            record = json.loads((Path(tmp) / "out" / "best.json").read_text())
+            return first, total, record["run"].get("compile_s", 0.0)
     return first, total
+
+
+def demo_folder(python, env=None) -> Path:
+    """A small demo result folder for ``leverage show`` (kept until the process ends)."""
+    folder = Path(tempfile.mkdtemp(prefix="leverage-show-")) / "demo"
+    timed(
+        [
+            python,
+            "-m",
+            "leverage",
+            "run",
+            str(DEMO),
+            "--out",
+            str(folder),
+            "--quiet",
+            "--generations",
+            "50",
+            "--islands",
+            "1",
+        ],
+        env,
+    )
+    return folder
 
 
 def measure(python, env, repeats, label, two_islands=True):
     """Print and return the start-up figures of ``repeats`` runs (median and min)."""
+    folder = demo_folder(python, env)
     rows = {
         "python -c pass": [timed([python, "-c", "pass"], env) for _ in range(repeats)],
         "import the command": [timed([python, "-c", IMPORT_COMMAND], env) for _ in range(repeats)],
+        "leverage show RESULT (target <= 1 s)": [
+            timed([python, "-m", "leverage", "show", str(folder)], env) for _ in range(repeats)
+        ],
+        "leverage check demo (target <= 2 s)": [
+            timed([python, "-m", "leverage", "check", str(DEMO)], env) for _ in range(repeats)
+        ],
     }
+    shutil.rmtree(folder.parent, ignore_errors=True)
     firsts, totals, firsts2, totals2 = [], [], [], []
     for _ in range(repeats):
         first, total = first_evaluation(python, 1, env)
@@ -106,10 +145,11 @@ def cold_run(python, label):
     """One cold start: a fresh numba cache, then the same command warm right after."""
     env, folder = cold_env()
     try:
-        first, total = first_evaluation(python, 1, env)
+        first, total, compile_s = first_evaluation(python, 1, env, with_compile=True)
         print(
             f"  {label}: to first evaluation {first:.2f} s, whole process {total:.2f} s "
-            "(one generation, then pictures and verification)"
+            f"(one generation, then pictures and verification); compiling the model "
+            f"{compile_s} s (best.json run.compile_s)"
         )
         sys.stdout.flush()
         return first, total

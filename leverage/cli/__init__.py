@@ -16,10 +16,15 @@ import os
 import pkgutil
 import signal
 import sys
+import time
 import traceback
 
 from leverage.about import __version__
 from leverage.errors import NO_VALUE, ProblemError, WriteFault, free_space, printable
+
+# When the command started (monotonic s), for a run's "whole run" time: the imports
+# before the work count, as the analyst waited for them too.
+STARTED = time.monotonic()
 
 # Exit codes of every command (README "Exit codes").
 EXIT_OK = 0

@@ -3,13 +3,6 @@ and screen whether the goal is reachable at all (``leverage.screen``)."""
 
 import sys
 
-import numpy as np
-
-from leverage.core import layout as L
-from leverage.problem.load import load_problem
-from leverage.problem.screen import screen
-from leverage.search.udp import LeveragingUDP
-
 from . import EXIT_OK, EXIT_UNREACHABLE, print_warnings
 
 
@@ -29,6 +22,12 @@ def add_parser(sub):
 
 
 def report(problem, samples: int, seed: int, result=None) -> str:
+    import numpy as np
+
+    from leverage.core import layout as L
+    from leverage.problem.screen import screen
+    from leverage.search.udp import LeveragingUDP
+
     compiled = problem.compile()
     udp = LeveragingUDP.from_compiled(compiled, problem.name)
     lines = [
@@ -64,10 +63,18 @@ def report(problem, samples: int, seed: int, result=None) -> str:
 
 def main(args) -> int:
     """0, or 7 when the feasibility screen finds the goal unreachable (one line says so)."""
+    # Imported here, not at the top: building the command imports every subcommand
+    # module, and `show`, `new` and friends must not pay for what they never use.
+    from leverage.problem.load import load_problem
+    from leverage.problem.screen import screen
+    from leverage.run.compile_notice import CompileNotice
+
     problem = load_problem(args.problem)
     print_warnings(problem)
-    result = screen(problem)
-    print(report(problem, args.samples, args.seed, result))
+    with CompileNotice():  # a first run on a new install compiles the model: say so
+        result = screen(problem)
+        text = report(problem, args.samples, args.seed, result)
+    print(text)
     if result.verdict == "unreachable":
         print(
             f"leverage: {problem.source}: the feasibility screen finds the goal unreachable "

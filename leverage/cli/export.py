@@ -4,10 +4,7 @@ import math
 from pathlib import Path
 
 from leverage.errors import ProblemError
-from leverage.fileio import check_writable, load_record
-from leverage.record.arcs import check_record
-from leverage.reports.export import DEFAULT_STEP_HOURS, FRAMES, export
-from leverage.run.lock import folder_lock
+from leverage.reports.export import DEFAULT_STEP_HOURS, FRAMES
 
 
 def add_parser(sub):
@@ -38,6 +35,13 @@ def add_parser(sub):
 
 
 def main(args) -> int:
+    # Imported here, not at the top: building the command imports every subcommand
+    # module, and `show`, `new` and friends must not pay for what they never use.
+    from leverage.fileio import check_writable, load_record
+    from leverage.record.arcs import check_record
+    from leverage.reports.export import export
+    from leverage.run.lock import folder_lock
+
     if not math.isfinite(args.step_hours) or args.step_hours <= 0:
         raise ProblemError(
             "command line", "--step-hours", args.step_hours, "must be a positive number of hours"

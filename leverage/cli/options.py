@@ -1,11 +1,11 @@
 """Command-line values checked with the same rules as problem-file keys."""
 
-from leverage.problem.load import convert
-from leverage.problem.schema import keys_by_section
-
 
 def search_overrides(args) -> dict:
     """Validated [search] overrides from --seed/--generations/--islands/--algorithm/--population."""
+    from leverage.problem.load import convert  # astropy, numba: only when a search runs
+    from leverage.problem.schema import keys_by_section
+
     keys = keys_by_section()["search"]
     out = {}
     for name in ("seed", "generations", "islands", "algorithm", "population"):

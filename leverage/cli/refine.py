@@ -11,14 +11,6 @@ import time
 from pathlib import Path
 
 from leverage.errors import ProblemError
-from leverage.fileio import load_record
-from leverage.record.arcs import check_record
-from leverage.refine import report
-from leverage.refine.crosscheck import cross_check
-from leverage.refine.forces import De421
-from leverage.refine.integrators import Ias15
-from leverage.refine.limits import check_folder, read_limits
-from leverage.refine.shooting import Refiner
 
 from . import EXIT_NOT_CONVERGED
 
@@ -60,6 +52,17 @@ def _say(line):
 
 
 def main(args) -> int:
+    # Imported here, not at the top: building the command imports every subcommand
+    # module, and `show`, `new` and friends must not pay for what they never use.
+    from leverage.fileio import load_record
+    from leverage.record.arcs import check_record
+    from leverage.refine import report
+    from leverage.refine.crosscheck import cross_check
+    from leverage.refine.forces import De421
+    from leverage.refine.integrators import Ias15
+    from leverage.refine.limits import check_folder, read_limits
+    from leverage.refine.shooting import Refiner
+
     folder = Path(args.results)
     if args.parking_altitude_km is not None and not 0.0 < args.parking_altitude_km < 100_000.0:
         raise ProblemError(

@@ -7,12 +7,8 @@ from pathlib import Path
 
 from leverage.errors import NO_VALUE, ProblemError
 from leverage.fileio import check_writable, safe_folder_name
-from leverage.problem.load import load_problem
-from leverage.run.lock import folder_lock
-from leverage.run.runner import Progress, evolver_for, resumed_settings, run, settings_from
-from leverage.search import checkpoint
 
-from . import EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_NOT_VERIFIED, EXIT_OK, print_warnings
+from . import EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_NOT_VERIFIED, EXIT_OK, STARTED, print_warnings
 from .options import add_search_options, search_overrides
 from .parallel import add_parallel_options, workers_option
 
@@ -60,6 +56,9 @@ def resume_point(args, problem):
             args.out,
             "a resumed run writes into its own folder (--resume); drop --out",
         )
+    from leverage.run.runner import resumed_settings
+    from leverage.search import checkpoint
+
     saved = checkpoint.load(folder)
     if saved["problem_sha256"] != problem.sha256:
         raise ProblemError(
@@ -79,6 +78,8 @@ def exit_code(outcome, problem: str = "PROBLEM") -> int:
     verification (named on stderr); 130 interrupted: one line on stderr says what was
     kept and, when a checkpoint was written, the command that continues the run."""
     if outcome.status != "complete":
+        from leverage.search import checkpoint
+
         kept = "the best design so far is in best.json" if outcome.record else "nothing written"
         if (Path(outcome.folder) / checkpoint.FILE_NAME).is_file():
             how = (
@@ -102,6 +103,12 @@ def exit_code(outcome, problem: str = "PROBLEM") -> int:
 
 
 def main(args) -> int:
+    # Imported here, not at the top: building the command imports every subcommand
+    # module, and `show`, `new` and friends must not pay for what they never use.
+    from leverage.problem.load import load_problem
+    from leverage.run.lock import folder_lock
+    from leverage.run.runner import Progress, evolver_for, run, settings_from
+
     problem = load_problem(args.problem)
     print_warnings(problem)
     workers = workers_option(args)
@@ -118,6 +125,7 @@ def main(args) -> int:
                     Progress(settings.evolutions, enabled=not args.quiet),
                     evolver=evolver,
                     resume=saved,
+                    started=STARTED,
                 ),
                 args.problem,
             )
@@ -142,6 +150,7 @@ def main(args) -> int:
                 out,
                 Progress(settings.evolutions, enabled=not args.quiet),
                 evolver=evolver,
+                started=STARTED,
             ),
             args.problem,
         )

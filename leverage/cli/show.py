@@ -13,14 +13,23 @@ def add_parser(sub):
         "show",
         help="print the summary of a result folder, or compare several",
         description="One folder: print its summary. Several: lay them side by "
-        "side (goal, key numbers, margins, evaluations, wall time, "
-        "problem-file settings that differ).",
+        "side (goal, key numbers, margins, evaluations, search and whole-run times, "
+        "problem-file settings that differ), within 100 columns. A sweep folder "
+        "(leverage sweep): its table of slices and launch period.",
     )
-    p.add_argument("results", nargs="+", help="result folder(s)")
+    p.add_argument("results", nargs="+", help="result folder(s) or sweep folder(s)")
     return p
 
 
 def main(args) -> int:
+    from leverage.reports import sweep_table
+
+    sweeps = [f for f in args.results if sweep_table.is_sweep_folder(f)]
+    for folder in sweeps:  # a sweep folder: its table and launch period
+        print(sweep_table.folder_text(folder))
+    args.results = [f for f in args.results if f not in sweeps]
+    if not args.results:
+        return 0
     if len(args.results) > 1:
         # Several folders: one side-by-side table (leverage.compare).
         records = [load_record(folder) for folder in args.results]

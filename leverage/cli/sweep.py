@@ -3,11 +3,6 @@
 from pathlib import Path
 
 from leverage.errors import ProblemError
-from leverage.fileio import check_writable
-from leverage.problem.load import load_problem
-from leverage.run.lock import folder_lock
-from leverage.run.runner import settings_from
-from leverage.run.sweep import Sweep, SweepProgress, default_out
 
 from . import EXIT_FAILED, EXIT_INFEASIBLE, EXIT_INTERRUPTED, EXIT_OK, print_warnings
 from .options import add_search_options, search_overrides
@@ -62,6 +57,14 @@ def add_parser(sub):
 
 
 def main(args) -> int:
+    # Imported here, not at the top: building the command imports every subcommand
+    # module, and `show`, `new` and friends must not pay for what they never use.
+    from leverage.fileio import check_writable
+    from leverage.problem.load import load_problem
+    from leverage.run.lock import folder_lock
+    from leverage.run.runner import settings_from
+    from leverage.run.sweep import Sweep, SweepProgress, default_out
+
     problem = load_problem(args.problem)
     print_warnings(problem)
     workers = workers_option(args)

@@ -5,12 +5,6 @@ verification.json there and records the verdict in best.json and summary.txt."""
 import sys
 from pathlib import Path
 
-from leverage.fileio import check_writable, load_record
-from leverage.record.arcs import check_record
-from leverage.run.lock import folder_lock
-from leverage.run.runner import write_record
-from leverage.verify.report import attach, render, verify_record, write
-
 from . import EXIT_NOT_VERIFIED, EXIT_OK
 
 
@@ -34,6 +28,14 @@ def add_parser(sub):
 
 
 def main(args) -> int:
+    # Imported here, not at the top: building the command imports every subcommand
+    # module, and `show`, `new` and friends must not pay for what they never use.
+    from leverage.fileio import check_writable, load_record
+    from leverage.record.arcs import check_record
+    from leverage.run.lock import folder_lock
+    from leverage.run.runner import write_record
+    from leverage.verify.report import attach, render, verify_record, write
+
     record = load_record(args.results)
     check_record(record, str(Path(args.results) / "best.json"))
     check_writable(args.results, create=False)  # before the work, not after it

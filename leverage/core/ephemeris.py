@@ -27,8 +27,8 @@ from numba import njit
 
 from .constants import DAY_S, JULIAN_CENTURY_S  # noqa: F401 (DAY_S re-exported)
 from .kepler import eccentric_from_mean, state_from_elements
+from .layout import EPHEMERIS_SIZE  # noqa: F401 (re-exported)
 
-EPHEMERIS_SIZE = 14
 KIND_MEAN_ELEMENTS = 0.0
 KIND_OSCULATING = 1.0
 KIND_CHEBYSHEV = 2.0

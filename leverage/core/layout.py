@@ -11,7 +11,9 @@ the hot path). Module-level integers are frozen as constants by numba.
   (``leverage.record.design`` names each one, with its unit, for people).
 """
 
-from .ephemeris import EPHEMERIS_SIZE
+# Slots of one body's ephemeris header (core.ephemeris describes them); defined here so
+# the slot table loads without numba (the commands that only read results stay quick).
+EPHEMERIS_SIZE = 14
 
 # --- decision vector -------------------------------------------------------
 X_LAUNCH_EPOCH_DAYS = 0  # launch epoch, days TDB past J2000

@@ -11,7 +11,6 @@ import platform
 import numpy as np
 
 from leverage.about import CAUTION, __version__
-from leverage.astro import times
 from leverage.core import layout as L
 from leverage.core.constants import AU_KM
 from leverage.record import objective
@@ -116,6 +115,11 @@ MARGINS = [
     ("arrival_window", L.Q_MARGIN_ARRIVAL_DAYS, "days", 1.0, "arrival inside the arrival window"),
 ]
 
+# Below this distance from the line (plane) through a front's extreme members, in
+# objectives scaled to [0, 1], no member stands out as a knee: the summary says so and
+# front.png circles none (search.fronts picks the knee).
+KNEE_MIN_DISTANCE = 0.02
+
 
 def feasible(q) -> bool:
     """The feasibility rule, the one place it is written: every leg solved and every limit
@@ -148,6 +152,8 @@ def _vec(q, slot, factor=1.0):
 
 def design_record(compiled, udp, x) -> dict:
     """Everything about one design, as plain data with units."""
+    from leverage.astro import times  # astropy: only where a record is made
+
     x = np.asarray(x, dtype=float)
     q = udp.details(x)
     f = udp.fitness(x)

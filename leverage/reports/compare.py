@@ -8,6 +8,8 @@ comes from the folders alone.
 """
 
 import math
+import os
+import textwrap
 from pathlib import Path
 
 import tomli
@@ -32,7 +34,11 @@ KEY_NUMBERS = [
     ("out aphelion (au)", "outgoing_aphelion", 4),
     ("arrival v-inf (km/s)", "arrival_vinf", 3),
 ]
-COL = 14
+WIDTH = 100  # the table never passes this column, whatever the number of runs
+COL = 14  # widest column of one run
+MIN_COL = 12  # narrowest; more runs than fit go to a further block of columns
+LABEL = 28  # widest label column (6 runs x 12 + 28 = 100)
+CUT = "~"  # ends a value cut to fit its column (one folder: `leverage show` prints it all)
 
 
 def _num(value, digits) -> str:
@@ -77,7 +83,7 @@ def _objective_row(records) -> tuple:
 def _rows(records) -> list:
     rows = [
         ("problem", [r["problem"]["name"] for r in records]),
-        ("problem sha256", [r["problem"]["sha256"][:12] for r in records]),
+        ("problem sha256", [r["problem"]["sha256"][:10] for r in records]),
         ("goal", [r["problem"]["goal"] for r in records]),
         ("flyby body", [r["problem"]["body"] for r in records]),
         ("status", [r.get("status", "") for r in records]),
@@ -137,7 +143,16 @@ def _rows(records) -> list:
     )
     rows.append(("evaluations", [f"{r.get('run', {}).get('evaluations', 0):,}" for r in records]))
     rows.append(
-        ("wall time (s)", [_num(r.get("run", {}).get("wall_time_s", math.nan), 1) for r in records])
+        (
+            "search time (s)",
+            [_num(r.get("run", {}).get("wall_time_s", math.nan), 1) for r in records],
+        )
+    )
+    rows.append(
+        (
+            "whole run (s)",
+            [_num(r.get("run", {}).get("whole_run_s", math.nan), 1) for r in records],
+        )
     )
     return rows
 
@@ -174,14 +189,58 @@ def setting_differences(folders) -> list:
     ]
 
 
+def _cell(text, width: int) -> str:
+    """``text`` right-aligned in ``width`` columns with one space before it, cut with
+    CUT when it would touch its neighbour."""
+    text = str(text)
+    if len(text) > width - 1:
+        text = text[: width - 2] + CUT
+    return f"{text:>{width}}"
+
+
+def _label(text, width: int) -> str:
+    text = str(text)
+    if len(text) > width - 1:
+        text = text[: width - 2] + CUT
+    return f"{text:<{width}}"
+
+
+def _wrapped(text: str, indent: str = "  ") -> list:
+    return textwrap.wrap(text, WIDTH, initial_indent=indent, subsequent_indent=indent + "    ") or [
+        indent.rstrip()
+    ]
+
+
+def _folder_lines(letters, folders) -> list:
+    """ "A = folder" lines, the folders' common parent said once; long names wrap."""
+    paths = [str(f) for f in folders]
+    try:
+        parent = os.path.commonpath([os.path.dirname(os.path.abspath(p)) for p in paths])
+    except ValueError:  # different drives
+        parent = ""
+    lines = []
+    if parent and parent != os.sep and len(paths) > 1:
+        lines += _wrapped(f"folders in {parent}{os.sep}:", "")
+        paths = [os.path.relpath(os.path.abspath(p), parent) for p in paths]
+    for letter, path in zip(letters, paths):
+        lines += _wrapped(f"{letter} = {path}")
+    return lines
+
+
+def _layout(n: int, label_width: int) -> tuple:
+    """(column width, runs per block) so a line stays within WIDTH columns."""
+    col = max(MIN_COL, min(COL, (WIDTH - label_width) // max(n, 1)))
+    return col, max(1, (WIDTH - label_width) // col)
+
+
 def render(folders, records, refined=None) -> str:
     """The side-by-side text of several result folders (``refined``: each folder's
-    refined.json or None)."""
+    refined.json or None). Every line fits in WIDTH columns: values too wide for their
+    column end in CUT, and runs beyond what fits go to a further block of columns."""
     letters = [chr(ord("A") + k) if k < 26 else f"R{k}" for k in range(len(records))]
-    lines = [f"leverage comparison of {len(records)} runs", f"  CAUTION: {CAUTION}", ""]
-    lines += [f"  {letter} = {folder}" for letter, folder in zip(letters, folders)]
-    width = max(28, max(len(label) for label, _ in _rows(records)) + 2)
-    lines += ["", " " * width + "".join(f"{letter:>{COL}}" for letter in letters)]
+    lines = [f"leverage comparison of {len(records)} runs"]
+    lines += _wrapped(f"CAUTION: {CAUTION}") + [""]
+    lines += _folder_lines(letters, folders)
     rows = _rows(records)
     if refined and any(refined):
         rows.append(
@@ -196,17 +255,34 @@ def render(folders, records, refined=None) -> str:
                 ],
             )
         )
-    for label, cells in rows:
-        lines.append((f"{label:<{width}}" + "".join(f"{c:>{COL}}" for c in cells)).rstrip())
     diffs = setting_differences(folders)
-    lines += [
-        "",
-        "problem-file settings that differ"
-        if diffs
-        else "problem files: no setting differs (runs differ only by command-line options)",
-    ]
-    for key, values in diffs:
-        shown = "".join(f"{str(v)[: COL - 1]:>{COL}}" for v in values)
-        lines.append(f"  {key:<{width - 2}}{shown}")
-    lines += ["", "! marks a violated limit.", f"CAUTION: {CAUTION}", ""]
+    width = min(LABEL, max([len(label) for label, _ in rows] + [len(k) + 2 for k, _ in diffs]) + 2)
+    col, per_block = _layout(len(records), width)
+    cut = False
+    for start in range(0, len(records), per_block):
+        part = slice(start, start + per_block)
+        if start:
+            lines += ["", f"(runs {letters[part][0]}-{letters[part][-1]})"]
+        lines += ["", " " * width + "".join(_cell(letter, col) for letter in letters[part])]
+        for label, cells in rows:
+            text = _label(label, width) + "".join(_cell(c, col) for c in cells[part])
+            cut = cut or CUT in text
+            lines.append(text.rstrip())
+        lines += [
+            "",
+            "problem-file settings that differ"
+            if diffs
+            else "problem files: no setting differs (runs differ only by command-line options)",
+        ]
+        for key, values in diffs:
+            text = _label(f"  {key}", width) + "".join(_cell(v, col) for v in values[part])
+            cut = cut or CUT in text
+            lines.append(text.rstrip())
+    lines += ["", "! marks a violated limit."]
+    if cut:
+        lines.append(
+            f"{CUT} ends a value cut to fit {WIDTH} columns; `leverage show FOLDER` prints one "
+            "in full."
+        )
+    lines += _wrapped(f"CAUTION: {CAUTION}", "") + [""]
     return "\n".join(lines)

@@ -21,15 +21,15 @@ import io
 from datetime import datetime, timezone
 
 import numpy as np
-from astropy.time import Time
 
 from leverage.about import CAUTION, __version__
-from leverage.astro.ephemerides import ecliptic_to_equatorial
-from leverage.astro.times import J2000_JD
-from leverage.core.constants import DAY_S
+from leverage.core.constants import DAY_S, J2000_JD
 from leverage.fileio import write_atomic
-from leverage.record.arcs import design_arcs
 from leverage.reports import oem
+
+# astropy (Time, and the frames through astro.ephemerides) and the arcs' kernels load in
+# the functions that use them: `leverage export --help` and the other commands that
+# build the command line need only FRAMES and DEFAULT_STEP_HOURS from here.
 
 FRAMES = {
     "eme2000": "heliocentric EME2000 (mean equator and equinox of J2000)",
@@ -53,6 +53,8 @@ DEFAULT_STEP_HOURS = 24.0
 
 def iso_epochs(t_tdb_s, scale: str) -> list:
     """ISO 'YYYY-MM-DDThh:mm:ss.ffffff' strings of TDB seconds past J2000, in ``scale``."""
+    from leverage.astro.times import Time  # astro.times sets astropy's offline IERS use
+
     t = np.atleast_1d(np.asarray(t_tdb_s, dtype=float))
     when = Time(np.full(t.shape, J2000_JD), t / DAY_S, format="jd", scale="tdb")
     when = getattr(when, scale)
@@ -62,6 +64,8 @@ def iso_epochs(t_tdb_s, scale: str) -> list:
 
 def tdb_seconds(epochs) -> np.ndarray:
     """TDB seconds past J2000 of ISO epochs given in TDB."""
+    from leverage.astro.times import Time
+
     when = Time(list(epochs), format="isot", scale="tdb")
     return (when.jd1 - J2000_JD) * DAY_S + when.jd2 * DAY_S
 
@@ -70,6 +74,9 @@ def sampled_arcs(record, step_s: float, frame: str = "eme2000") -> list:
     """The record's arcs sampled every step_s, states rotated into ``frame``."""
     if frame not in FRAMES:
         raise ValueError(f"unknown frame {frame!r}; known: {', '.join(FRAMES)}")
+    from leverage.astro.ephemerides import ecliptic_to_equatorial
+    from leverage.record.arcs import design_arcs
+
     arcs = design_arcs(record, step_s=step_s)
     if frame == "eme2000":
         for arc in arcs:

@@ -35,8 +35,7 @@ from leverage.errors import NO_VALUE, ProblemError
 from leverage.fileio import write_bytes_atomic
 from leverage.record import objective
 from leverage.record.arcs import body_orbit, design_arcs, event_states, target_orbit
-from leverage.record.design import as_float
-from leverage.search.fronts import KNEE_MIN_DISTANCE
+from leverage.record.design import KNEE_MIN_DISTANCE, as_float
 
 DPI = 120
 FOOTER = "Preliminary patched-conic design: verify it before any flight use."
@@ -566,8 +565,58 @@ def _launch_dates(rows, names):
     return None, None
 
 
+EDGE_DAYS = 1e-3  # a best launch this close to its slice's first or last date is "on the edge"
+
+
+def _sweep_meta(folder: Path) -> dict:
+    """sweep.json of a sweep folder ({} when absent or unreadable)."""
+    try:
+        from leverage.fileio import read_json
+
+        meta = read_json(folder / "sweep.json")
+        return meta if isinstance(meta, dict) else {}
+    except (OSError, ValueError):
+        return {}
+
+
+def _sweep_shown(meta: dict, rows, folder: Path):
+    """How the sweep's objective reads: sweep.json, else the first slice's best.json."""
+    if meta.get("objective_shown"):
+        return objective.from_record(meta)[0]
+    for r in rows:
+        sub = str(r.get("result_folder") or "").strip()
+        if sub and (folder / sub / "best.json").is_file():
+            try:
+                from leverage.fileio import read_json
+
+                return objective.from_record(read_json(folder / sub / "best.json"))[0]
+            except (OSError, ValueError):
+                break
+    return objective.from_record({})[0]
+
+
+def _on_edge(row) -> bool:
+    """The slice's best launch lies on its first or last launch date."""
+    try:
+        launch = datetime.fromisoformat(str(row["launch_utc"]).replace(" ", "T"))
+        start = datetime.fromisoformat(str(row["start_utc"]).replace(" ", "T"))
+        end = datetime.fromisoformat(str(row["end_utc"]).replace(" ", "T"))
+    except (KeyError, ValueError):
+        return False
+    near = min(abs((launch - start).total_seconds()), abs((end - launch).total_seconds()))
+    return near <= EDGE_DAYS * DAY_S
+
+
 def launch_window(record, folder) -> Picture | None:
-    """launch_window.png: best objective against launch date from the sweep table."""
+    """launch_window.png: each slice's best objective (in its own unit and sign) against
+    launch date. A slice is drawn as a bar over the launch dates it covers, at the best
+    design found launching in it, with a dot at that design's launch date: nothing
+    joins slices, so unsampled dates stay empty. Shaded: the launch period (slices whose
+    best meets every limit and the --max-objective budget, when the sweep had one, drawn
+    as a dashed line). A triangle flags a best launch on its slice's first or last date
+    (the optimum may lie beyond the slice)."""
+    from leverage.reports import sweep_table as sweep_report
+
     folder = Path(folder)
     path = sweep_table(folder)
     if path is None:
@@ -586,20 +635,58 @@ def launch_window(record, folder) -> Picture | None:
     ]
     if not keep:
         return None
+    meta = _sweep_meta(folder)
+    shown = _sweep_shown(meta, [rows[i] for i in keep], folder)
+    max_objective = meta.get("max_objective")
     x = [dates[i] for i in keep]
-    y = np.array([_float(rows[i][c_obj]) for i in keep])
+    y = np.array([shown.value(_float(rows[i][c_obj])) for i in keep])
     feasible = np.array(
         [
             str(rows[i][c_feas]).strip().lower() in ("1", "true", "yes") if c_feas else True
             for i in keep
         ]
     )
-    fig = _new_figure(8.4, 4.6)
+    spans = "start_utc" in names and "end_utc" in names
+    fig = _new_figure(8.4, 4.8)
     artists = {}
     with matplotlib.rc_context(STYLE):
         ax = fig.add_subplot(1, 1, 1)
+        if spans:
+            periods = sweep_report.launch_periods(rows, max_objective)
+            for k, (first, last) in enumerate(periods):
+                artists.setdefault("period", []).append(
+                    ax.axvspan(
+                        datetime.fromisoformat(first["start_utc"]),
+                        datetime.fromisoformat(last["end_utc"]),
+                        color="#c6f6d5",
+                        alpha=0.7,
+                        zorder=0,
+                        label="launch period" if k == 0 else None,
+                    )
+                )
+            bars = []
+            for n, i in enumerate(keep):
+                start = datetime.fromisoformat(rows[i]["start_utc"])
+                end = datetime.fromisoformat(rows[i]["end_utc"])
+                bars.append(
+                    ax.plot(
+                        [start, end],
+                        [y[n], y[n]],
+                        color="#2b6cb0",
+                        lw=2.2,
+                        solid_capstyle="butt",
+                        label="slice's launch dates" if n == 0 else None,
+                    )[0]
+                )
+            artists["slices"] = bars
         (artists["scan"],) = ax.plot(
-            x, y, color="#2b6cb0", lw=1.4, marker="o", ms=4, label="best design launching then"
+            x,
+            y,
+            linestyle="none",
+            color="#2b6cb0",
+            marker="o",
+            ms=4,
+            label="best design launching in the slice",
         )
         if c_feas and (~feasible).any():
             bad = [xi for xi, f in zip(x, feasible) if not f]
@@ -612,9 +699,24 @@ def launch_window(record, folder) -> Picture | None:
                 zorder=3,
                 label="no design met every limit",
             )
-        best = (
-            int(np.argmin(np.where(feasible, y, np.inf))) if feasible.any() else int(np.argmin(y))
-        )
+        edge = [n for n, i in enumerate(keep) if spans and _on_edge(rows[i])]
+        if edge:
+            artists["edge"] = ax.scatter(
+                [x[n] for n in edge],
+                y[edge],
+                marker="^",
+                s=70,
+                facecolor="none",
+                edgecolor="#dd6b20",
+                lw=1.4,
+                zorder=5,
+                label="best launch on its slice's edge",
+            )
+        score = np.where(feasible, -y if shown.maximised else y, np.inf)
+        if not feasible.any():
+            score = -y if shown.maximised else y
+        best = int(np.argmin(score))
+        on_edge = best in edge
         artists["best"] = ax.scatter(
             [x[best]],
             [y[best]],
@@ -623,16 +725,25 @@ def launch_window(record, folder) -> Picture | None:
             edgecolor="black",
             lw=1.4,
             zorder=4,
-            label=f"best: {x[best]:%Y-%m-%d}",
+            label=f"best: {x[best]:%Y-%m-%d}" + (" (on its slice's edge)" if on_edge else ""),
         )
+        if max_objective is not None and math.isfinite(float(max_objective)):
+            artists["budget"] = ax.axhline(
+                shown.value(float(max_objective)),
+                color="#4a5568",
+                ls="--",
+                lw=1.0,
+                label=f"--max-objective: {sweep_report.budget_text(shown, float(max_objective))}",
+            )
         locator = mdates.AutoDateLocator()
         ax.xaxis.set_major_locator(locator)
         ax.xaxis.set_major_formatter(mdates.ConciseDateFormatter(locator))
         ax.set_xlabel("launch date (UTC)")
-        ax.set_ylabel("best objective (lower is better)")
-        ax.set_title(f"{record['problem']['name']}: launch-window scan ({path.name})")
-        ax.legend()
-        fig.subplots_adjust(left=0.11, right=0.97, bottom=0.15, top=0.91)
+        ax.set_ylabel(shown.label())
+        name = (meta.get("problem") or record.get("problem") or {}).get("name", "")
+        ax.set_title(f"{name}: best design per launch slice ({path.name})")
+        ax.legend(loc="best", fontsize="small")
+        fig.subplots_adjust(left=0.11, right=0.97, bottom=0.14, top=0.92)
     return Picture(_save(fig, folder / "launch_window.png"), artists)
 
 

@@ -9,8 +9,7 @@ import math
 from leverage.about import CAUTION
 from leverage.core.constants import DAY_S
 from leverage.record import objective
-from leverage.record.design import as_float
-from leverage.search.fronts import KNEE_MIN_DISTANCE
+from leverage.record.design import KNEE_MIN_DISTANCE, as_float
 
 
 def fmt_number(value, digits=3, thousands=False):
@@ -135,6 +134,20 @@ def refined_line(refined) -> str:
     return f"refined   {refined.get('status', '?')} in an n-body model{change}; see refined/"
 
 
+def time_text(run: dict) -> str:
+    """The run's times, each named for what it measures (record ``run``, seconds):
+    ``wall_time_s`` the search and polish (the clock of convergence.csv's wall_time_s
+    and of the progress line), ``whole_run_s`` the whole run (start-up and any first
+    compile, search, polish, pictures, verification), ``compile_s`` the first compile."""
+    text = f"search {_fmt(run.get('wall_time_s', 0.0), 1)} s (incl. polish)"
+    if run.get("whole_run_s") is not None:
+        text += f", whole run {_fmt(run['whole_run_s'], 1)} s incl. start-up"
+        if run.get("compile_s"):
+            text += f" (compiling the model {_fmt(run['compile_s'], 1)} s)"
+        text += ", pictures and verification"
+    return text
+
+
 def objective_line(record) -> str:
     """ "objective total DSM 0.811 km/s", "objective delivered mass 814.5 kg (maximised)":
     each objective in its own unit and natural sign (``leverage.record.objective``)."""
@@ -177,10 +190,7 @@ def render(record) -> str:
     ]
     run = record.get("run", {})
     if run:
-        lines.append(
-            f"effort    {run.get('evaluations', 0):,} evaluations in "
-            f"{_fmt(run.get('wall_time_s', 0.0), 1)} s"
-        )
+        lines.append(f"effort    {run.get('evaluations', 0):,} evaluations in {time_text(run)}")
     front = record.get("front")
     if front:
         lines.append(

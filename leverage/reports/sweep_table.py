@@ -6,6 +6,12 @@ objective). The launch period is each stretch of consecutive slices whose best d
 meets every limit (and, when the analyst gives one, has an objective at or below
 ``max_objective``): the dates over which the goal stays within budget, known to the
 width of a slice.
+
+Objectives are shown in their own unit and natural sign (``record.objective``; the
+sweep's ``sweep.json`` holds ``objective_shown``): the ``best_objective`` column of
+sweep.csv is the minimised value, as in convergence.csv, and ``objective_value`` beside
+it the same in its unit (``objective_unit``). ``--max-objective`` is compared with
+the minimised value; the text says what that means in the natural one.
 """
 
 import csv
@@ -13,9 +19,9 @@ import io
 import math
 
 from leverage.about import CAUTION
-from leverage.astro.times import parse_utc
 from leverage.core.constants import DAY_S
 from leverage.fileio import read_json
+from leverage.record import objective
 from leverage.record.design import as_float
 
 COLUMNS = [
@@ -25,6 +31,8 @@ COLUMNS = [
     "runs_done",
     "runs_planned",
     "best_objective",
+    "objective_value",
+    "objective_unit",
     "feasible",
     "launch_utc",
     "c3_km2_s2",
@@ -96,8 +104,11 @@ def slice_row(sl, planned: int, done: list, sweep_dir) -> dict:
         return row
     seed, folder, _ = done[i]
     launch = {e["event"]: e for e in record["events"]}["launch"]
+    shown = objective.from_record(record)[0]
     row.update(
         best_objective=repr(_objective(record)),
+        objective_value=repr(shown.value(_objective(record))),
+        objective_unit=shown.unit,
         feasible=int(record["feasible"]),
         launch_utc=launch["utc"][:19].replace(" ", "T"),
         best_seed=seed,
@@ -143,12 +154,30 @@ def _num(text, digits):
 
 
 def _days(a: str, b: str) -> float:
+    from leverage.astro.times import parse_utc  # astropy: not for `leverage show`
+
     return (parse_utc(b) - parse_utc(a)).total_seconds() / DAY_S
 
 
-def period_lines(rows: list, max_objective: float | None, slice_days: float) -> list:
+def shown_of(meta: dict) -> objective.Shown:
+    """How the sweep's objective reads (sweep.json ``objective_shown``; unnamed when an
+    older sweep did not say)."""
+    return objective.from_record({"objective_shown": meta.get("objective_shown")})[0]
+
+
+def budget_text(shown: objective.Shown, max_objective: float) -> str:
+    """--max-objective in the objective's own terms, e.g. "total DSM at most 1 km/s"."""
+    unit = f" {shown.unit}" if shown.unit else ""
+    bound = "at least" if shown.factor < 0 else "at most"
+    return f"{shown.name} {bound} {shown.value(max_objective):g}{unit}"
+
+
+def period_lines(rows: list, max_objective: float | None, slice_days: float, shown=None) -> list:
+    shown = shown or objective.from_record({})[0]
     rule = "best design meets every limit" + (
-        f" and objective <= {max_objective:g}" if max_objective is not None else ""
+        f" and {budget_text(shown, max_objective)} (--max-objective {max_objective:g})"
+        if max_objective is not None
+        else ""
     )
     periods = launch_periods(rows, max_objective)
     if not periods:
@@ -171,6 +200,9 @@ def period_lines(rows: list, max_objective: float | None, slice_days: float) -> 
 def render(meta: dict, rows: list, status: str, max_objective: float | None) -> str:
     """sweep.txt: heading, table, launch period, caution."""
     s = meta["search"]
+    shown = shown_of(meta)
+    unit = f", {shown.unit}" if shown.unit else ""
+    better = "higher is better" if shown.maximised else "lower is better"
     done = sum(int(r["runs_done"]) for r in rows)
     planned = sum(int(r["runs_planned"]) for r in rows)
     lines = [
@@ -182,6 +214,7 @@ def render(meta: dict, rows: list, status: str, max_objective: float | None) -> 
         f"of {meta['slice_days']:g} days",
         f"search    {s['algorithm']}, {s['islands']} islands x {s['population']}, "
         f"{s['generations']} generations, seeds {', '.join(map(str, meta['seeds']))}",
+        f"objective {shown.name}{unit} ({better})",
         "",
         f"  {'slice':>5}  {'from':<10}  {'to':<10}  {'runs':>5}  {'objective':>10}  "
         f"{'limits':<6}  {'launch (UTC)':<16}  {'C3 km2/s2':>9}  {'DSM km/s':>8}  "
@@ -191,19 +224,56 @@ def render(meta: dict, rows: list, status: str, max_objective: float | None) -> 
         limits = "" if r["feasible"] == "" else ("met" if int(r["feasible"]) else "NOT")
         lines.append(
             f"  {r['slice']:>5}  {r['start_utc'][:10]:<10}  {r['end_utc'][:10]:<10}  "
-            f"{r['runs_done']:>2}/{r['runs_planned']:<2}  {_num(r['best_objective'], 4):>10}  "
+            f"{r['runs_done']:>2}/{r['runs_planned']:<2}  {_num(r['objective_value'], 4):>10}  "
             f"{limits:<6}  {r['launch_utc'][:16].replace('T', ' '):<16}  "
             f"{_num(r['c3_km2_s2'], 3):>9}  {_num(r['dsm_km_s'], 4):>8}  "
             f"{_num(r['flyby_vinf_out_km_s'], 3):>13}  {r['result_folder']}"
         )
-    lines += [""] + period_lines(rows, max_objective, meta["slice_days"])
+    lines += [""] + period_lines(rows, max_objective, meta["slice_days"], shown)
     best = [r for r in rows if r["best_objective"] != ""]
     if best:
         top = min(best, key=lambda r: (not int(r["feasible"]), float(r["best_objective"])))
         lines.append(
-            f"best overall: slice {top['slice']}, objective "
-            f"{_num(top['best_objective'], 6)}, launch {top['launch_utc'][:19]} UTC, "
+            f"best overall: slice {top['slice']}, "
+            f"{shown.text(float(top['best_objective']))}, launch {top['launch_utc'][:19]} UTC, "
             f"{top['result_folder']}"
         )
     lines += ["", f"CAUTION: {CAUTION}", ""]
     return "\n".join(lines)
+
+
+def is_sweep_folder(folder) -> bool:
+    """A folder written by ``leverage sweep`` (sweep.json, no best.json of its own)."""
+    from pathlib import Path
+
+    folder = Path(folder)
+    return (folder / "sweep.json").is_file() and not (folder / "best.json").is_file()
+
+
+def folder_text(folder) -> str:
+    """sweep.txt of a sweep folder rendered again from its sweep.json and sweep.csv (so an
+    older sweep reads in the objective's own unit too); a one-line ProblemError for a
+    folder that is not a readable sweep."""
+    from pathlib import Path
+
+    from leverage.errors import NO_VALUE, ProblemError
+
+    folder = Path(folder)
+    try:
+        meta = read_json(folder / "sweep.json")
+        with open(folder / "sweep.csv", encoding="utf-8", newline="") as fh:
+            rows = [dict(r) for r in csv.DictReader(fh)]
+        for r in rows:
+            for column in COLUMNS:
+                r.setdefault(column, "")
+            if r["objective_value"] == "" and r["best_objective"] != "":
+                shown = shown_of(meta)
+                r["objective_value"] = repr(shown.value(float(r["best_objective"])))
+        done = sum(int(r["runs_done"] or 0) for r in rows)
+        planned = sum(int(r["runs_planned"] or 0) for r in rows)
+        status = "complete" if done == planned else "unfinished"
+        return render(meta, rows, status, meta.get("max_objective"))
+    except (OSError, ValueError, KeyError, TypeError) as exc:
+        raise ProblemError(
+            str(folder), "", NO_VALUE, f"not a readable sweep folder ({type(exc).__name__}: {exc})"
+        ) from None

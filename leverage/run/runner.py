@@ -27,7 +27,7 @@ from leverage.problem.load import check_algorithm
 from leverage.record import objective
 from leverage.record.design import base_record, design_record
 from leverage.reports import summary
-from leverage.run import afterrun, rescue
+from leverage.run import afterrun, compile_notice, rescue
 from leverage.search import checkpoint, cluster
 from leverage.search.fronts import search_class
 from leverage.search.islands import ClusterIslands, local_evolver
@@ -71,14 +71,16 @@ class Progress:
         # How the (first) objective reads: its own unit and sign (set by ``run``).
         self.shown = None
 
-    def update(self, done: int, best: float, evaluations: int):
+    def update(self, done: int, best: float, evaluations: int, search_s: float | None = None):
+        """``search_s``: seconds since the search started, the clock of convergence.csv's
+        wall_time_s and of the summary's "search" time (default: since this line began)."""
         if not self.enabled:
             return
-        elapsed = time.monotonic() - self.start
+        elapsed = time.monotonic() - self.start if search_s is None else search_s
         best_text = self.shown.text(best) if self.shown is not None else f"{best:.6g}"
         text = (
             f"evolution {done}/{self.total}  best {best_text}  "
-            f"{evaluations:,} evaluations  {elapsed:.1f} s"
+            f"{evaluations:,} evaluations  search {elapsed:.1f} s"
         )
         if self.tty:
             self.stream.write("\r" + text.ljust(78))
@@ -188,10 +190,10 @@ def write_record(out_dir: Path, record: dict, fault: OSError | None = None) -> s
     return text
 
 
-def prepare(problem, settings: SearchSettings, evolver):
+def prepare(problem, settings: SearchSettings, evolver, compiled=None):
     """(compiled problem, pygmo problem, search) for a run; ``where`` the islands evolve
     goes in the record as ``run.islands_evolved``."""
-    compiled = problem.compile()
+    compiled = compiled if compiled is not None else problem.compile()
     udp = LeveragingUDP.from_compiled(compiled, problem.name)
     search = make_search(compiled, udp, settings, evolver)
     return compiled, udp, search
@@ -314,14 +316,18 @@ def run(
     evolver=None,
     resume: dict | None = None,
     after: bool = True,
+    started: float | None = None,
 ) -> RunOutcome:
     """Run the search and write the run folder.
 
     ``evolver`` (``leverage.search.islands``) says where islands evolve (default: worker
     processes on this machine when there are several islands); ``resume`` is a loaded
     checkpoint (``checkpoint.load``) to continue from; ``after`` makes the pictures and
-    the verification of a complete run.
+    the verification of a complete run; ``started`` (``time.monotonic()``, default now)
+    starts the whole run's clock (record ``run.whole_run_s``; the command passes its own
+    start, so its imports count).
     """
+    started = time.monotonic() if started is None else started
     out_dir = Path(out_dir)
     try:
         out_dir.mkdir(parents=True, exist_ok=True)
@@ -339,7 +345,18 @@ def run(
     with StopSignals() as stop:
         try:
             try:
-                compiled, udp, search = prepare(problem, settings, evolver)
+                compiled = problem.compile()
+                compile_s = compile_notice.warm_up(
+                    LeveragingUDP.from_compiled(compiled, problem.name),
+                    (compiled.lower + compiled.upper) / 2.0,
+                    batch=compiled.n_obj > 1,
+                    stream=progress.stream,
+                    enabled=progress.enabled,
+                )
+                if compile_s:
+                    run_info["compile_s"] = round(compile_s, 1)
+                compiled, udp, search = prepare(problem, settings, evolver, compiled)
+                run_info["start_s"] = round(time.monotonic() - started, 3)
                 progress.shown = objective.shown_objectives(compiled.params)[0]
                 run_info["islands_evolved"] = islands_evolved(search, evolver)
                 if resume is not None:
@@ -368,6 +385,7 @@ def run(
                             search.state.evolution,
                             search.champion()[1][0],
                             search.state.evaluations,
+                            time.monotonic() - search.start_time,
                         )
                 finally:
                     log.close()
@@ -422,7 +440,11 @@ def run(
     if status == "complete" and after:  # pictures and verification; a failure is one line
         report = afterrun.pictures_and_verification(out_dir, record, echo)
         if report is not None:  # the verdict goes into the record and its summary
-            text = write_record(out_dir, verify.attach(record, report))
+            record = verify.attach(record, report)
+    if record.get("run") is not None and fault is None:
+        # Start-up, search, polish, pictures and verification: the time the analyst waited.
+        record["run"]["whole_run_s"] = round(time.monotonic() - started, 1)
+        text = write_record(out_dir, record)
     echo(text)
     echo(f"results in {out_dir}")
     return RunOutcome(out_dir, status, record)

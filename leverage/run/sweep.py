@@ -29,8 +29,10 @@ from leverage.about import CAUTION
 from leverage.errors import NO_VALUE, ProblemError
 from leverage.fileio import read_json, safe_folder_name, write_atomic, write_json
 from leverage.problem.schema import MAX_SEED
+from leverage.record import objective
 from leverage.reports import summary
 from leverage.reports import sweep_table as sweep_report
+from leverage.run import compile_notice
 from leverage.run.runner import LOG_COLUMNS, StopSignals, finish, islands_evolved, prepare
 from leverage.run.slices import window_slices, write_slice_problems
 from leverage.search import cluster
@@ -121,10 +123,12 @@ def write_run(sweep_dir: Path, task: Task, result: dict) -> dict:
 class SweepProgress:
     """One stderr line per finished run: runs and slices done, best so far."""
 
-    def __init__(self, total_runs: int, total_slices: int, stream=None, enabled=True):
+    def __init__(self, total_runs: int, total_slices: int, stream=None, enabled=True, shown=None):
         import sys
 
         self.total_runs, self.total_slices = total_runs, total_slices
+        # How the objective reads (record.objective.Shown; set by Sweep.run).
+        self.shown = shown
         self.stream = stream or sys.stderr
         self.enabled = enabled
         self.start = time.monotonic()
@@ -144,11 +148,13 @@ class SweepProgress:
         if best:
             top = min(best, key=lambda r: (not int(r["feasible"]), float(r["best_objective"])))
             limits = "meets every limit" if int(top["feasible"]) else "limits NOT met"
+            best = float(top["best_objective"])
+            shown = self.shown or objective.from_record({})[0]
             text += (
-                f", best so far {float(top['best_objective']):.6g} (slice {top['slice']}, "
+                f", best so far {shown.text(best)} (slice {top['slice']}, "
                 f"{top['start_utc'][:10]}, {limits})"
             )
-        self.line(text + f"  {time.monotonic() - self.start:.1f} s")
+        self.line(text + f"  sweep {time.monotonic() - self.start:.1f} s")
 
 
 class Sweep:
@@ -223,7 +229,14 @@ class Sweep:
         """Write sweep.json and the slice problem files; make the tasks."""
         # A settings mismatch (e.g. --algorithm for the wrong goal) is one line here,
         # before anything is written, not one failure per run.
-        search_class(self.problem.compile(), self.settings)
+        compiled = self.problem.compile()
+        search_class(compiled, self.settings)
+        # How the objective reads (its unit and sign) and the launch-period budget, for
+        # sweep.txt, the progress lines and launch_window.png (not part of a resume check).
+        self.meta["objective_shown"] = objective.as_records(
+            objective.shown_objectives(compiled.params)
+        )
+        self.meta["max_objective"] = self.max_objective
         self.out_dir.mkdir(parents=True, exist_ok=True)
         write_json(self.out_dir / "sweep.json", self.meta)
         problems = write_slice_problems(self.problem, self.slices, self.out_dir / "slices")
@@ -296,6 +309,8 @@ class Sweep:
         self._redo = redo
         pending = [t for t in self.tasks if self.finished(t) is None]
         progress = progress or SweepProgress(len(self.tasks), len(self.slices))
+        if progress.shown is None:
+            progress.shown = sweep_report.shown_of(self.meta)
         done = len(self.tasks) - len(pending)
         if done:
             progress.line(
@@ -344,22 +359,29 @@ class Sweep:
         return "feasible" if feasible else "infeasible"
 
     @staticmethod
-    def _warm_cache(task: Task):
+    def _warm_cache(task: Task, progress=None):
         """Evaluate one point here first, so a cold numba cache is compiled once, by this
-        process, instead of by every worker or same-machine engine at the same time."""
+        process, instead of by every worker or same-machine engine at the same time (and
+        say so while it compiles: ``compile_notice``)."""
         compiled = task.problem.compile()
         udp = LeveragingUDP.from_compiled(compiled, task.problem.name)
         x = (compiled.lower + compiled.upper) / 2.0
-        udp.fitness(x)
-        udp.details(x)  # no batch_fitness: its numba threads must not exist before a fork
+        # no batch_fitness: its numba threads must not exist before a fork
+        compile_notice.warm_up(
+            udp,
+            x,
+            stream=getattr(progress, "stream", None),
+            enabled=getattr(progress, "enabled", True),
+        )
 
     def _run_local(self, pending, workers, on_result, progress):
         workers = max(1, min(workers or cpu_count(), len(pending) or 1))
+        if pending:
+            self._warm_cache(pending[0], progress)
         if workers == 1:
             for task in pending:
                 on_result(task, solve(task))
             return
-        self._warm_cache(pending[0])
         threads = max(1, cpu_count() // workers)
         tasks = [replace(t, threads=threads) for t in pending]
         progress.line(f"sweep: {len(tasks)} runs on {workers} worker processes")
@@ -376,7 +398,7 @@ class Sweep:
         client = cluster.connect(spec)
         try:
             if pending:
-                self._warm_cache(pending[0])
+                self._warm_cache(pending[0], progress)
             progress.line(f"sweep: {len(pending)} runs on {cluster.describe(client)}")
             view = client.load_balanced_view()
             waiting = [(view.apply_async(solve, task), task) for task in pending]

@@ -30,7 +30,12 @@ import pygmo as pg
 from leverage.core import layout as L
 from leverage.fileio import write_atomic
 from leverage.problem.load import check_algorithm
-from leverage.record.design import DERIVED, clean, feasible
+from leverage.record.design import (  # noqa: F401 (KNEE_MIN_DISTANCE re-exported)
+    DERIVED,
+    KNEE_MIN_DISTANCE,
+    clean,
+    feasible,
+)
 from leverage.search.single import IslandRecord, SearchState, island_seed, min_violation
 
 FRONT_ALGORITHM_NOTES = {
@@ -40,10 +45,6 @@ FRONT_ALGORITHM_NOTES = {
     "nspso": "non-dominated sorting particle swarm (pygmo nspso, batch evaluation)",
 }
 MAX_ARCHIVE = 300  # front members kept; beyond this the most crowded are dropped
-# Below this distance from the line (plane) through the front's extreme members, in
-# objectives scaled to [0, 1], no member stands out as a knee: the summary says so and
-# front.png circles none.
-KNEE_MIN_DISTANCE = 0.02
 
 # objective code -> (column name of the minimised quantity, unit)
 OBJECTIVES = {

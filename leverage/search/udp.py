@@ -18,7 +18,6 @@ if "OMP_WAIT_POLICY" not in os.environ:
     os.environ.setdefault("GOMP_SPINCOUNT", "1000")
 
 import numpy as np  # noqa: E402
-import pygmo as pg  # noqa: E402
 
 from leverage.core import trajectory  # noqa: E402
 
@@ -55,6 +54,8 @@ class LeveragingUDP:
 
     def gradient(self, x):
         # Finite differences (pygmo's estimate_gradient_h) for the SLSQP polish.
+        import pygmo as pg
+
         return pg.estimate_gradient_h(lambda v: self.fitness(v), x)
 
     def get_name(self):

@@ -90,7 +90,7 @@ def check_summary_against_record(text: str, record: dict):
         s["seed"],
         s["polish"],
     )
-    evals, wall = find(text, r"^effort\s+([\d,]+) evaluations in " + NUM + " s")
+    evals, wall = find(text, r"^effort\s+([\d,]+) evaluations in search " + NUM + " s")
     assert int(evals.replace(",", "")) == run["evaluations"] and agrees(wall, run["wall_time_s"])
     # In its own unit and natural sign (record["objective_shown"]), not as minimised.
     shown = record["objective_shown"][0]

@@ -55,7 +55,9 @@ def test_several_folders_side_by_side(folders, capsys):
     a, b = folders
     text = _table(capsys, a, b)
     ra, rb = read_json(a / "best.json"), read_json(b / "best.json")
-    assert f"A = {a}" in text and f"B = {b}" in text
+    assert (
+        f"folders in {a.parent}/:" in text and "A = baseline" in text and "B = higher-flyby" in text
+    )
     assert "CAUTION" in text
     dsm = _row(text, "DSM (km/s)").split()[-2:]
     assert dsm == [f"{ra['derived']['dsm']['value']:.4f}", f"{rb['derived']['dsm']['value']:.4f}"]
@@ -66,7 +68,7 @@ def test_several_folders_side_by_side(folders, capsys):
     assert _row(text, "evaluations").split()[-1] == "123,456"
     altitude = _row(text, "  min_flyby_altitude")
     assert altitude.endswith("-12.5000 !")
-    wall = _row(text, "wall time (s)").split()[-2]
+    wall = _row(text, "search time (s)").split()[-2]
     assert float(wall) == pytest.approx(ra["run"]["wall_time_s"], abs=0.05)
     # the problem-file setting that differs is named with both values
     diff = _row(text, "  flyby.min_altitude_km").split()
@@ -118,3 +120,37 @@ def test_show_says_whether_a_result_was_refined(folders, capsys, tmp_path):
         ln for ln in capsys.readouterr().out.splitlines() if ln.startswith("refined DSM (km/s)")
     )
     assert row.split()[-2:] == ["0.8011", "not"] or row.endswith("not yet")
+
+
+def test_six_long_named_folders_stay_aligned_in_100_columns(demo_result, tmp_path, capsys):
+    """Six folders with 70-character names, a long problem name and wide numbers: every
+    line fits in 100 columns, every row of a block of columns is as long as its header
+    row (right-aligned cells in fixed columns), and a value cut to fit says so."""
+    paths = []
+    for k in range(6):
+        folder = tmp_path / (
+            f"study-{k}-" + "launch-window-trade-with-a-long-descriptive-name" + "x" * 12
+        )
+        shutil.copytree(demo_result, folder)
+        record = read_json(folder / "best.json")
+        record["problem"]["name"] = "a study name far longer than any column of the table"
+        record["run"]["evaluations"] = 123_456_789_012 + k
+        (folder / "best.json").write_text(json.dumps(record))
+        paths.append(folder)
+    text = _table(capsys, *paths)
+    lines = text.splitlines()
+    assert max(len(line) for line in lines) <= 100
+    for k, letter in enumerate("ABCDEF"):
+        assert f"{letter} = {paths[k].name}" in text
+    # the header row of letters, then its rows down to the blank line
+    (header,) = [i for i, line in enumerate(lines) if line.split() == list("ABCDEF")]
+    j = header + 1
+    while lines[j].strip():
+        assert len(lines[j]) == len(lines[header]), (lines[header], lines[j])
+        j += 1
+    assert j - header > 20  # the whole block of key numbers was checked
+    problem_row = _row(text, "problem ")
+    assert problem_row.count("~") == 6 and problem_row.count("a study na") == 6
+    evaluations = _row(text, "evaluations").split()[1:]
+    assert len(evaluations) == 6 and all(c.startswith("123,456,") for c in evaluations)
+    assert "~ ends a value cut to fit 100 columns" in text

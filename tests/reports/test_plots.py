@@ -9,11 +9,13 @@ are written here with the columns the front search and the sweep write.
 """
 
 import csv
+import json
 import shutil
 import struct
 
 import numpy as np
 import pytest
+from matplotlib import dates as mdates
 
 from leverage.astro import bodies
 from leverage.fileio import read_json
@@ -230,7 +232,45 @@ def test_launch_window_draws_the_sweep_table(folder, record, tmp_path):
     assert len(pic.artists["infeasible"].get_offsets()) == 1
     # the best feasible slice is ringed
     assert pic.artists["best"].get_offsets()[0][1] == 0.9
+    # nothing joins the slices (slice 3 was not sampled): dots, and one bar per slice
+    # over its own launch dates
+    assert line.get_linestyle() == "None"
+    bars = pic.artists["slices"]
+    assert [b.get_xdata()[0].strftime("%m-%d") for b in bars] == ["01-01", "02-01", "04-01"]
+    assert [b.get_xdata()[1].strftime("%m-%d") for b in bars] == ["02-01", "03-01", "05-01"]
+    # the launch period: slices 1-2 (slice 4 met no limit set), shaded Jan 1 to Mar 1
+    (period,) = pic.artists["period"]
+    x0, x1 = period.get_x(), period.get_x() + period.get_width()
+    assert mdates.num2date(x0).strftime("%Y-%m-%d") == "2031-01-01"
+    assert mdates.num2date(x1).strftime("%Y-%m-%d") == "2031-03-01"
+    assert "edge" not in pic.artists and "budget" not in pic.artists
     assert plots.launch_window(record, folder) is None
+
+
+def test_launch_window_units_budget_and_slice_edge(folder, record, tmp_path):
+    """sweep.json's objective (a gain, minimised as its negative) is drawn in km/s with
+    its natural sign, --max-objective as a line in the same terms, and a best launch on
+    its slice's first date is flagged."""
+    dest = tmp_path / "sweep"
+    dest.mkdir()
+    shown = [{"name": "v-infinity gain", "unit": "km/s", "factor": -1.0, "maximised": True}]
+    (dest / "sweep.json").write_text(
+        json.dumps({"problem": {"name": "gain"}, "objective_shown": shown, "max_objective": -2.5})
+    )
+    with open(dest / "sweep.csv", "w", newline="") as fh:
+        out = csv.writer(fh)
+        out.writerow(["slice", "start_utc", "end_utc", "best_objective", "feasible", "launch_utc"])
+        out.writerow([1, "2031-01-01", "2031-02-01", -2.0, 1, "2031-01-12T00:00:00"])
+        out.writerow([2, "2031-02-01", "2031-03-01", -3.0, 1, "2031-02-01T00:00:00"])
+    pic = plots.launch_window({}, dest)
+    assert list(pic.artists["scan"].get_ydata()) == [2.0, 3.0]
+    assert pic.artists["best"].get_offsets()[0][1] == 3.0  # the larger gain is the best
+    assert list(pic.artists["budget"].get_ydata()) == [2.5, 2.5]
+    assert "at least 2.5 km/s" in pic.artists["budget"].get_label()
+    assert pic.artists["edge"].get_offsets()[:, 1].tolist() == [3.0]
+    assert "on its slice's edge" in pic.artists["best"].get_label()
+    ax = pic.artists["scan"].axes
+    assert ax.get_ylabel() == "v-infinity gain (km/s, higher is better)"
 
 
 def test_all_pictures_skips_what_has_no_data(folder, record):

@@ -133,7 +133,17 @@ def test_small_sweep_writes_runs_table_and_resumes(demo_path, tmp_path, capsys, 
     text = (out / "sweep.txt").read_text()
     assert "launch period (best design meets every limit)" in text
     assert "Preliminary patched-conic design" in text
-    assert "runs 6/6, slices done 3/3, best so far" in captured.err
+    assert "runs 6/6, slices done 3/3, best so far total DSM " in captured.err
+    # objectives in their own unit (the demo minimises the DSM: factor 1, km/s)
+    assert "objective total DSM, km/s (lower is better)" in text
+    assert all(r["objective_unit"] == "km/s" for r in rows)
+    assert all(float(r["objective_value"]) == float(r["best_objective"]) for r in rows)
+    # show and plot take the sweep folder: its table, and launch_window.png
+    (out / "launch_window.png").unlink()
+    assert cli_main(["show", str(out)]) == 0
+    assert "leverage sweep: demo (complete, 6/6 runs)" in capsys.readouterr().out
+    assert cli_main(["plot", str(out)]) == 0
+    assert capsys.readouterr().out.strip() == str(out / "launch_window.png")
 
     # The table's best of slice 2 is the better of its two runs ...
     records = [

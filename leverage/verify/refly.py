@@ -41,9 +41,6 @@ def _poliastro():
     import astropy.units as u
     from poliastro.bodies import Body
 
-    from leverage.verify import poliastro_cache
-
-    poliastro_cache.enable()  # compiled once per install, not once per process
     sun = Body(None, bodies.GM_SUN_KM3_S2 * u.km**3 / u.s**2, "Sun (leverage GM)")
     return u, sun
 
@@ -199,10 +196,6 @@ def refly(record, source) -> dict:
     else:
         import astropy.units as u
         from poliastro.threebody.flybys import compute_flyby
-
-        from leverage.verify import poliastro_cache
-
-        poliastro_cache.enable()
 
         alt = _derived(record, "flyby_altitude")
         rp = radius + alt

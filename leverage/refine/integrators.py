@@ -72,7 +72,7 @@ class Ias15:
         # arc here (minutes at a 200 km periapsis), so real arcs are untouched.
         sim.integrator.min_dt = IAS15_MIN_DT_S
         sim.exit_max_distance = 0  # never stop on distance
-        r, v = self.de.states(t0)
+        r, v = self.de.states_at(t0) if hasattr(self.de, "states_at") else self.de.states(t0)
         n = len(self.de.gm)
         for k in range(n):
             sim.add(

@@ -64,6 +64,12 @@ LIMIT_TOL = 1.0e-6  # a limit margin above -LIMIT_TOL (its unit) holds
 OBJECTIVE_TOL_KM_S = 1.0e-5  # stop when a trust-region step saves less (1 cm/s)
 # Trust-region box per unit of the unknowns, times delta (1 at the start).
 TR_SCALE = {"day": 1.0, "km/s": 0.02, "1e4 km": 0.05}
+# Box around the start of each matching: without it least_squares' first trial steps
+# moved epochs by up to 16 000 days (one such arc took 30 s to integrate, measured on
+# the demo); the converged designs move epochs by a few days. A trial outside is
+# given non-finite residuals (not integrated), and trf shrinks its trust radius; trf
+# with ``bounds`` instead crawled (40 iterations, joins still 10 000 km off).
+MATCH_BOX = {"day": 10.0, "km/s": 0.5, "1e4 km": 0.3}
 _POS_RES_KM = 1.0e3  # residual units: 1000 km ...
 _VEL_RES_KM_S = 1.0e-3  # ... and 1 m/s
 
@@ -463,8 +469,13 @@ class Refiner:
     def match(self, z, max_nfev=40, label="matching"):
         """least_squares (trf) on the equalities and any violated limit; returns z."""
         n_eq = self.evaluate(z).eq.size
+        half = np.array([MATCH_BOX[u] for u in self.units])
+        lo, hi = z - half, z + half
+        n_res = n_eq + len(self.evaluate(z).ineq)
 
         def fun(x):
+            if np.any(x < lo) or np.any(x > hi):
+                return np.full(n_res, np.nan)
             e = self.evaluate(x)
             return np.concatenate([e.eq, self._limit_residuals(e)])
 

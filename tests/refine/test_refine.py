@@ -231,8 +231,12 @@ def test_refine_reports_a_limit_it_cannot_meet(tmp_path):
     )
     assert proc.returncode == 6
     last = proc.stderr.strip().splitlines()[-1]
-    # Measured: missed by 0.5502 km/s (9.5 km/s asked of a loop built for 7.5).
-    assert last.startswith("leverage refine: not converged: min_outgoing_vinf missed by 0.5")
+    # 9.5 km/s asked of a loop built for 7.5: the miss is above 0 and at most the 2 km/s
+    # raise (measured 1.725 km/s: the matching stays inside its box, MATCH_BOX; 0.55
+    # before that box).
+    prefix = "leverage refine: not converged: min_outgoing_vinf missed by "
+    assert last.startswith(prefix)
+    assert 0.0 < float(last[len(prefix) :].split()[0]) <= 2.0
     assert "Traceback" not in proc.stderr
     rec = json.loads((folder / "refined" / "refined.json").read_text())
     assert rec["status"] == "not converged" and not rec["margins"]["min_outgoing_vinf"]["holds"]

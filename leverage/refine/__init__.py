@@ -14,3 +14,5 @@ Frames: integration in solar-system-barycentric ICRF axes (DE421's frame); repor
 heliocentric ecliptic J2000 like best.json. Units km, s, km/s; epochs TDB seconds past
 J2000.
 """
+
+OPT_MAX_ITER = 200  # trust-constr iterations at most (here: the command line reads it cheaply)

@@ -33,6 +33,9 @@ Jacobians, and exact at the close passes, where the bodies have not drifted yet;
 DOP853 on DE421 positions is the independent cross-check (``crosscheck``).
 """
 
+import signal
+import threading
+
 import numpy as np
 from scipy.integrate import solve_ivp
 from scipy.interpolate import CubicHermiteSpline
@@ -45,6 +48,18 @@ DOP853_ATOL_KM_S = 1e-12
 TABLE_STEP_S = 21600.0
 IAS15_MIN_DT_S = 1.0
 IAS15_EPSILON = 1e-9  # REBOUND's default; IAS15 then keeps errors at round-off level
+
+
+def _integrate(sim, t):
+    """``sim.integrate(t)``, then Python's SIGINT handler put back: REBOUND installs its
+    own C handler for SIGINT during ``integrate`` and leaves it installed, so a Ctrl-C
+    between integrations was swallowed (measured: refine ran to its end with exit 0)."""
+    handler = signal.getsignal(signal.SIGINT)
+    try:
+        sim.integrate(t, exact_finish_time=1)
+    finally:
+        if handler is not None and threading.current_thread() is threading.main_thread():
+            signal.signal(signal.SIGINT, handler)
 
 
 class Ias15:
@@ -72,7 +87,7 @@ class Ias15:
         # arc here (minutes at a 200 km periapsis), so real arcs are untouched.
         sim.integrator.min_dt = IAS15_MIN_DT_S
         sim.exit_max_distance = 0  # never stop on distance
-        r, v = self.de.states(t0)
+        r, v = self.de.states_at(t0) if hasattr(self.de, "states_at") else self.de.states(t0)
         n = len(self.de.gm)
         for k in range(n):
             sim.add(
@@ -103,15 +118,15 @@ class Ias15:
         n = len(self.de.gm)
         craft = sim.particles[n]
         if samples is None:
-            sim.integrate(t1 - t0, exact_finish_time=1)
+            _integrate(sim, t1 - t0)
             return np.array(craft.xyz), np.array(craft.vxyz)
         rs, vs, bs = [], [], []
         for t in samples:
-            sim.integrate(t - t0, exact_finish_time=1)
+            _integrate(sim, t - t0)
             rs.append(craft.xyz)
             vs.append(craft.vxyz)
             bs.append([sim.particles[k].xyz for k in range(n)])
-        sim.integrate(t1 - t0, exact_finish_time=1)
+        _integrate(sim, t1 - t0)
         return (np.array(craft.xyz), np.array(craft.vxyz), np.array(rs), np.array(vs), np.array(bs))
 
     def planet_drift(self, t0, t1) -> dict:
@@ -122,7 +137,7 @@ class Ias15:
         """
         sim = self._simulation(t0)
         sim.dt = 3600.0 if t1 >= t0 else -3600.0
-        sim.integrate(t1 - t0, exact_finish_time=1)
+        _integrate(sim, t1 - t0)
         r, _ = self.de.states(t1)
         return {
             name: float(np.linalg.norm(np.array(sim.particles[k].xyz) - r[k, :, 0]))

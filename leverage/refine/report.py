@@ -244,8 +244,9 @@ def refined_record(refiner, best, missed, wall_s, cross_check, record) -> dict:
                 if "arrival" in ep
                 else f"{shooting.SOI_MULTIPLE:g} sphere-of-influence radii out"
             ),
-            "solver": "scipy least_squares (trf) on the joins, then SLSQP in a box trust "
-            "region, each step re-matched",
+            "solver": "scipy least_squares (trf) on the joins, then trust-constr on the "
+            "least burns with joins and limits as constraints, then least_squares on the "
+            "best point",
             "objective": "every burn after launch (total_dv)",
             "integrator": refiner.prop.name,
             "cross_check_integrator": cross_check.get("integrator"),

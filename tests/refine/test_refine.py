@@ -19,16 +19,20 @@ speed 31.7820 km/s (+0.009%); two-body energy
 refined demo: 1.0 / 3.6 / 0.014 km and 0.10 / 0.27 / 0.04 mm/s at the segment ends.
 """
 
+import hashlib
 import json
 import math
 import shutil
+import signal
 import subprocess
 import sys
+import time
 from pathlib import Path
 
 import numpy as np
 import pytest
 
+from leverage.cli import EXIT_INTERRUPTED
 from leverage.core import flyby
 from leverage.core.kepler import state_from_elements
 from leverage.refine.integrators import Ias15
@@ -227,8 +231,64 @@ def test_refine_reports_a_limit_it_cannot_meet(tmp_path):
     )
     assert proc.returncode == 6
     last = proc.stderr.strip().splitlines()[-1]
-    # Measured: missed by 0.5502 km/s (9.5 km/s asked of a loop built for 7.5).
-    assert last.startswith("leverage refine: not converged: min_outgoing_vinf missed by 0.5")
+    # 9.5 km/s asked of a loop built for 7.5: the miss is above 0 and at most the 2 km/s
+    # raise (measured 1.725 km/s: the matching stays inside its box, MATCH_BOX; 0.55
+    # before that box).
+    prefix = "leverage refine: not converged: min_outgoing_vinf missed by "
+    assert last.startswith(prefix)
+    assert 0.0 < float(last[len(prefix) :].split()[0]) <= 2.0
     assert "Traceback" not in proc.stderr
     rec = json.loads((folder / "refined" / "refined.json").read_text())
     assert rec["status"] == "not converged" and not rec["margins"]["min_outgoing_vinf"]["holds"]
+
+
+def _tree_digest(folder: Path) -> dict:
+    """{relative path: SHA-256} of every file under folder."""
+    return {
+        str(p.relative_to(folder)): hashlib.sha256(p.read_bytes()).hexdigest()
+        for p in sorted(folder.rglob("*"))
+        if p.is_file()
+    }
+
+
+@pytest.mark.parametrize("earlier_refine", [False, True])
+def test_sigint_during_refine_exits_130_and_leaves_the_folder_as_it_was(tmp_path, earlier_refine):
+    # Outside source: POSIX/Python signal semantics; 130 = 128 + SIGINT is common
+    # practice for "stopped by Ctrl-C" (README "Exit codes").
+    folder = tmp_path / "demo"
+    shutil.copytree(FIXTURE, folder)
+    if earlier_refine:  # an earlier refinement's folder must survive untouched
+        (folder / "refined").mkdir()
+        (folder / "refined" / "refined.json").write_text('{"status": "converged"}\n')
+    before = _tree_digest(folder)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "leverage", "refine", str(folder), "--max-steps", "5"],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
+    seen = []
+    # Wait for the solver to be at work (its second progress line): a hang guard only.
+    deadline = time.monotonic() + 300
+    while time.monotonic() < deadline:
+        line = proc.stderr.readline()
+        seen.append(line)
+        if "refine: matching 2" in line or not line:
+            break
+    assert "refine: matching 2" in seen[-1], "".join(seen)
+    sent = time.monotonic()
+    proc.send_signal(signal.SIGINT)
+    _, rest = proc.communicate(timeout=300)
+    stopped_s = time.monotonic() - sent
+    err = "".join(seen) + rest
+    assert proc.returncode == EXIT_INTERRUPTED, err
+    assert "Traceback" not in err
+    assert err.strip().splitlines()[-1].startswith("leverage refine: interrupted")
+    # The matching alone runs for several seconds after "matching 2" (measured 3-5 s,
+    # then the optimisation for tens of seconds): stopping well inside that shows the
+    # signal got through. Measured 0.1-0.3 s; 60 s only guards a loaded machine.
+    assert stopped_s < 60.0
+    assert _tree_digest(folder) == before  # best.json, problem.toml byte-identical
+    assert not list(folder.glob(".refined*"))  # no temporary folder left behind
+    if not earlier_refine:
+        assert not (folder / "refined").exists()

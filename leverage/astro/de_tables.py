@@ -57,7 +57,7 @@ import numpy as np
 
 from leverage.astro.ephemerides import EQUATORIAL_TO_ECLIPTIC as ICRF_TO_ECLIPTIC
 from leverage.core import layout as L
-from leverage.core.constants import DAY_S
+from leverage.core.constants import DAY_S, J2000_JD
 from leverage.core.ephemeris import (
     CHEB_DE_NUMBER,
     CHEB_GRANULE_S,
@@ -73,7 +73,6 @@ from leverage.core.ephemeris import (
 )
 from leverage.errors import NO_VALUE, ProblemError
 
-J2000_JD = 2451545.0
 PACKAGES = {"de421": 421, "de423": 423}
 # NAIF codes (NAIF IDs required reading): system barycentres 1..8, Earth 399, Sun 10.
 NAIF_IDS = {

@@ -146,16 +146,18 @@ class PackagedEphemeris:
 
     def barycentric(self, body: str, t_tdb_s):
         t = _as_times(t_tdb_s)
-        jd = J2000_JD + t / DAY_S
+        # Whole and fractional day apart (jplephem's tdb, tdb2): one float JD rounds
+        # the time to 40 us, about 1 m of the Earth's motion.
+        jd, frac = np.full(t.shape, J2000_JD), t / DAY_S
         eph = self.ephemeris
         body = body.lower()
         try:
             if body == "earth":
-                r_emb, v_emb = eph.position_and_velocity("earthmoon", jd)
-                r_moon, v_moon = eph.position_and_velocity("moon", jd)
+                r_emb, v_emb = eph.position_and_velocity("earthmoon", jd, frac)
+                r_moon, v_moon = eph.position_and_velocity("moon", jd, frac)
                 r, v = r_emb - r_moon * eph.earth_share, v_emb - v_moon * eph.earth_share
             else:
-                r, v = eph.position_and_velocity(body, jd)
+                r, v = eph.position_and_velocity(body, jd, frac)
         except Exception as exc:  # jplephem: DateError outside the span, KeyError for names
             raise ProblemError(self.name, "", body, f"cannot evaluate ({exc})") from None
         # jplephem's packaged reader gives km and km/day, rows x, y, z.

@@ -67,12 +67,12 @@ PERIAPSIS_TOL_KM_S = 1.0e-6  # radial velocity at the periapsis counted as zero
 LIMIT_TOL = 1.0e-6  # a limit margin above -LIMIT_TOL (its unit) holds
 OBJECTIVE_TOL_KM_S = 1.0e-4  # stop when STALL_ITER iterations save less (0.1 m/s) ...
 STALL_ITER = 15  # ... of each other and of the best design
-# trust-constr's first barrier parameter and tolerance (scaled limit units), one per
-# pass, each pass starting from the best so far. Measured: with its default, 0.1,
-# alone outer-departure still fell 0.5 m/s every 10 iterations at 200 (0.4570 km/s);
-# 1e-3 reached 0.4557 in 107, but jammed target-leg at 0.6527 km/s, where 0.1 reached
-# 0.6478.
-BARRIERS = (1e-3,)  # a second pass at 0.1 left target-leg at 0.6527 (measured)
+# trust-constr's first barrier parameter and tolerance (scaled limit units), one pass
+# each, every pass from the matched start, the best design kept. Measured: 1e-3 alone
+# reached outer-departure's 0.4557 km/s in 107 iterations (0.1 alone still fell 0.5 m/s
+# every 10 iterations at 200) but jammed target-leg at 0.6527 km/s, where 0.1 reaches
+# 0.6478; a 0.1 pass started from the 1e-3 answer stayed at 0.6527.
+BARRIERS = (1e-3, 0.1)
 # Trust-region box per unit of the unknowns, times delta (1 at the start).
 TR_SCALE = {"day": 1.0, "km/s": 0.02, "1e4 km": 0.05}
 # Box around the start of each matching: without it least_squares' first trial steps
@@ -609,14 +609,14 @@ class Refiner:
         missed or None)."""
         start = self.evaluate(self.z0)
         self.report_line("patched-conic start", start)
-        z = self.match(self.z0)
+        z = matched = self.match(self.z0)
         if self.worst(self.evaluate(z)) is None:
             reasons = []
             for barrier in BARRIERS:
                 left = max_iter - self.iterations
                 if left <= 0:
                     break
-                found, last = self.optimise(z, max_iter=left, barrier=barrier)
+                found, last = self.optimise(matched, max_iter=left, barrier=barrier)
                 reasons.append(f"barrier {barrier:g}: {self.stop_reason}")
                 # Close the joins of the optimiser's best point and of its last
                 # iterate; keep the better of the two that meets every condition.

@@ -36,6 +36,9 @@ from benchmarks.common import leverage_run, median, print_footer, print_header
 from leverage.problem.schema import ALGORITHMS, keys_by_section
 
 TOLERANCE = 0.001  # objective units (km/s): 1 m/s
+# [search] keys passed to every run (the defaults unless given or --file-settings).
+TUNABLE = ("population", "generations", "islands", "generations_per_migration", "polish")
+ON_COMMAND_LINE = ("population", "generations", "islands")  # leverage run's options
 SAVED = ("seed", "objective", "feasible", "wall_s", "evaluations", "x")
 
 
@@ -119,6 +122,8 @@ def main(argv=None) -> int:
     ap.add_argument("--population", type=int)
     ap.add_argument("--generations", type=int)
     ap.add_argument("--islands", type=int)
+    ap.add_argument("--generations-per-migration", type=int)
+    ap.add_argument("--polish", choices=("none", "bobyqa", "slsqp", "mbh"))
     ap.add_argument(
         "--file-settings",
         action="store_true",
@@ -139,9 +144,11 @@ def main(argv=None) -> int:
     )
     ap.add_argument("--smoke", action="store_true", help="tiny: demo, 2 seeds, 1 evolution")
     args = ap.parse_args(argv)
+    if not args.in_process and (args.generations_per_migration or args.polish):
+        ap.error("--generations-per-migration and --polish need --in-process")
     if not args.file_settings:
         defaults = keys_by_section()["search"]
-        for name in ("population", "generations", "islands"):
+        for name in TUNABLE:
             if getattr(args, name) is None:
                 setattr(args, name, defaults[name].default)
     options = []
@@ -150,17 +157,19 @@ def main(argv=None) -> int:
         args.problems, args.seeds = "demo", 2
         args.algorithms = args.algorithms if "," not in args.algorithms else "sade"
         args.generations, args.islands, args.population = 50, 1, 16
-    for name in ("population", "generations", "islands"):
+    for name in TUNABLE:
         if getattr(args, name) is not None:
-            options += [f"--{name}", getattr(args, name)]
             overrides[name] = getattr(args, name)
+            if name in ON_COMMAND_LINE:
+                options += [f"--{name}", getattr(args, name)]
     print_header(
         "search quality" + (" (smoke: tiny sizes, figures meaningless)" if args.smoke else "")
     )
     known = json.loads(BEST_KNOWN.read_text()) if BEST_KNOWN.exists() else {}
     source = "each problem file's [search] values" if args.file_settings else "the defaults"
     print(
-        f"settings: {source}, {' '.join(map(str, options)) or 'no overrides'}"
+        f"settings: {source}, "
+        + (", ".join(f"{k} {v}" for k, v in overrides.items()) or "no overrides")
         + ("; in this process (search and polish only)" if args.in_process else "")
         + f"; seeds 1..{args.seeds}; hit = feasible and within {TOLERANCE * 1000:.0f} m/s "
         "of the best-known objective"

@@ -16,7 +16,8 @@ penalty has where a limit becomes active); BOBYQA again; monotonic basin hopping
 around it (pygmo mbh); SLSQP again. With ``--from-runs FILE`` the designs that search runs
 ended on (``search_quality --save-runs FILE``) go through the same full polish as
 extra starts: a grid can step over a narrow basin that the runs found (earth-3yr's
-did, twice). The best is the best-known answer; the entry says where it came from. Writes ``benchmarks/best_known.json`` (objective in the problem's own units:
+did, twice). ``--polish-only`` skips the grid and polishes the existing entry's design
+with the runs' designs (the entry keeps the earlier grid's description). The best is the best-known answer; the entry says where it came from. Writes ``benchmarks/best_known.json`` (objective in the problem's own units:
 km/s for min_dsm, -km/s of gain for max_gain).
 
 Each answer is then checked by ``--narrowed-seeds`` default searches (seeds 1..N,
@@ -364,19 +365,38 @@ def runs_of(path, name) -> list:
     ]
 
 
-def establish(name, path, args, log):
+def establish(name, path, args, log, earlier=None):
     problem = load_problem(path)
     compiled = problem.compile()
     rng = np.random.default_rng(args.seed)
     start = time.perf_counter()
-    days, loops, best_f, best_y, evals = search_grid(
-        compiled, args.launch_step_days, args.loop_step_days, args.samples, args.starts, rng, log
-    )
     runs = runs_of(args.from_runs, name)
-    x, f, n, origin = full_polish(
-        compiled, days, loops, best_f, best_y, args.final, [r["x"] for r in runs]
-    )
-    evals += n
+    if args.polish_only:
+        # No new grid: the earlier entry's design (same problem file) and the runs'.
+        if not earlier or earlier.get("sha256") != problem.sha256:
+            raise SystemExit(f"--polish-only: no entry for {name} with this problem file")
+        starts = [earlier["decision_vector"]["values"]] + [r["x"] for r in runs]
+        steps = polish_chain(compiled)
+        x, f, evals, origin = None, np.inf, 0, None
+        for k, x0 in enumerate(starts):
+            x1, f1, n = polish_start(compiled, steps, np.array(x0, float))
+            evals += n
+            if f1 < f:
+                x, f, origin = x1, f1, ("earlier", None) if k == 0 else ("run", k - 1)
+    else:
+        days, loops, best_f, best_y, evals = search_grid(
+            compiled,
+            args.launch_step_days,
+            args.loop_step_days,
+            args.samples,
+            args.starts,
+            rng,
+            log,
+        )
+        x, f, n, origin = full_polish(
+            compiled, days, loops, best_f, best_y, args.final, [r["x"] for r in runs]
+        )
+        evals += n
     q = trajectory.details(x, compiled.params)
     check = verification(problem, compiled, x)
     narrowed = (
@@ -398,14 +418,18 @@ def establish(name, path, args, log):
         "ephemeris": compiled.ephemeris,
         "margins": {k: v for k, v in problem.values["margins"].items() if v > 0.0},
         "decision_vector": {"names": compiled.names, "values": [float(v) for v in x]},
-        "grid": {
-            "launch_days": [float(days[0]), float(days[-1]), int(days.size)],
-            "loop_days": [float(loops[0]), float(loops[-1]), int(loops.size)],
-            "samples_per_point": args.samples,
-            "polished_starts_per_point": args.starts,
-            "final_full_polishes": args.final,
-            "grid_best_objective": float(np.min(best_f)),
-        },
+        "grid": (
+            dict(earlier["grid"], reused_from=earlier["date"])
+            if args.polish_only
+            else {
+                "launch_days": [float(days[0]), float(days[-1]), int(days.size)],
+                "loop_days": [float(loops[0]), float(loops[-1]), int(loops.size)],
+                "samples_per_point": args.samples,
+                "polished_starts_per_point": args.starts,
+                "final_full_polishes": args.final,
+                "grid_best_objective": float(np.min(best_f)),
+            }
+        ),
         "from_runs": (
             {
                 "file": Path(args.from_runs).name,
@@ -427,7 +451,9 @@ def establish(name, path, args, log):
             else None
         ),
         "best_came_from": (
-            "grid" if origin[0] == "grid" else f"run seed {runs[origin[1]]['seed']}, polished"
+            f"run seed {runs[origin[1]]['seed']}, polished"
+            if origin[0] == "run"
+            else ("the earlier entry, polished" if origin[0] == "earlier" else "grid")
         ),
         "evaluations": int(evals),
         "wall_s": round(time.perf_counter() - start, 1),
@@ -452,6 +478,11 @@ def main(argv=None) -> int:
         type=int,
         default=40,
         help="best grid points polished in full (besides the best of each date)",
+    )
+    ap.add_argument(
+        "--polish-only",
+        action="store_true",
+        help="no new grid: polish the existing entry's design and the --from-runs designs",
     )
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument(
@@ -485,7 +516,9 @@ def main(argv=None) -> int:
     known = json.loads(out_path.read_text()) if out_path.exists() else {}
     for name in args.only or REFERENCES:
         print(f"\n{name}: {REFERENCES[name]}")
-        entry = establish(name, REFERENCES[name], args, lambda s: print(s, flush=True))
+        entry = establish(
+            name, REFERENCES[name], args, lambda s: print(s, flush=True), known.get(name)
+        )
         print(
             f"  best-known objective {entry['objective']:.6f} (total DSM "
             f"{entry['total_dv_km_s']:.6f} km/s, gain {entry['vinf_gain_km_s']:.6f} km/s, "

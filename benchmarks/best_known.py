@@ -13,8 +13,17 @@ variables by a chain of local steps, each kept only if it improves and stays str
 feasible: BOBYQA on the penalised objective; SLSQP (Kraft 1988, scipy) on the objective
 without penalty subject to every limit margin >= 0 (BOBYQA stalls on the kink a
 penalty has where a limit becomes active); BOBYQA again; monotonic basin hopping
-around it (pygmo mbh); SLSQP again. The best is the best-known answer. Writes ``benchmarks/best_known.json`` (objective in the problem's own units:
+around it (pygmo mbh); SLSQP again. With ``--from-runs FILE`` the designs that search runs
+ended on (``search_quality --save-runs FILE``) go through the same full polish as
+extra starts: a grid can step over a narrow basin that the runs found (earth-3yr's
+did, twice). ``--polish-only`` skips the grid and polishes the existing entry's design
+with the runs' designs (the entry keeps the earlier grid's description). The best is the best-known answer; the entry says where it came from. Writes ``benchmarks/best_known.json`` (objective in the problem's own units:
 km/s for min_dsm, -km/s of gain for max_gain).
+
+Each answer is then checked by ``--narrowed-seeds`` default searches (seeds 1..N,
+in this process) with the launch date and the loop duration bounded to
++-``--narrowed-days`` around it: a narrowed run that beats it by more than 1 m/s means
+the grid and polish missed the basin's bottom (the entry records their objectives).
 
 The problem files are used as they are: their ephemeris (the default, JPL DE421) and
 their ``[margins]`` (the limits the search sees are tightened by them, and so are the
@@ -22,7 +31,8 @@ ones here). Each answer also records the ephemeris, the margins and the
 verification's verdict (``leverage.verify``: re-flown apart from the kernels against
 the stated limits), as ``leverage run`` gives it in best.json.
 
-Usage: python -m benchmarks.best_known [--only NAME] [--smoke] [--out FILE]
+Usage: python -m benchmarks.best_known [--only NAME] [--launch-step-days D]
+       [--loop-step-days D] [--from-runs FILE] [--smoke] [--out FILE]
 """
 
 import argparse
@@ -46,6 +56,9 @@ REFERENCES = {
     "demo": DEMO,
     "earth-3yr": BENCH_PROBLEMS / "earth-3yr.toml",
     "earth-gain": BENCH_PROBLEMS / "earth-gain.toml",
+    "earth-incl-aphelion": BENCH_PROBLEMS / "earth-incl-aphelion.toml",
+    "earth-vinf-dla": BENCH_PROBLEMS / "earth-vinf-dla.toml",
+    "earth-one-or-two-year": BENCH_PROBLEMS / "earth-one-or-two-year.toml",
 }
 GRID_VARS = (L.X_LAUNCH_EPOCH_DAYS, L.X_LOOP_DURATION_DAYS)
 FREE_VARS = (
@@ -205,42 +218,62 @@ def feasible(compiled, x) -> bool:
     )
 
 
-def full_polish(compiled, days, loops, best_f, best_y, final):
-    """Polish the best grid points in all eight variables; the best (x, f, evals)."""
+def polish_chain(compiled):
+    """The local steps every full polish takes, in order (see the module docstring)."""
     udp = LeveragingUDP.from_compiled(compiled)
-    chosen = set(np.argsort(best_f, axis=None)[:final].tolist())
-    chosen |= {
-        int(np.ravel_multi_index((i, int(np.argmin(best_f[i]))), best_f.shape))
-        for i in range(days.size)
-    }
     hopper = pg.algorithm(pg.mbh(bobyqa(2000), stop=5, perturb=0.002, seed=1))
     # Each step starts from the best strictly feasible point so far; SLSQP can wander
     # off where the best Lambert branch changes (a kink), BOBYQA stalls at active limits.
-    steps = [
+    return [
         lambda x: polish(udp, x, bobyqa()),
         lambda x: constrained_polish(compiled, x),
         lambda x: polish(udp, x, bobyqa()),
         lambda x: polish(udp, x, hopper),
         lambda x: constrained_polish(compiled, x),
     ]
-    best_x, best = None, np.inf
+
+
+def polish_start(compiled, steps, x):
+    """(x, f, evaluations): the chain from x, each step kept only if it improves and the
+    point is feasible (a feasible start counts as it is)."""
+    f = float(trajectory.fitness(x, compiled.params)[0]) if feasible(compiled, x) else np.inf
     evals = 0
+    for step in steps:
+        x2, f2, n = step(x)
+        evals += n
+        if f2 < f and feasible(compiled, x2):
+            x, f = x2, f2
+    return x, f, evals
+
+
+def full_polish(compiled, days, loops, best_f, best_y, final, extra_starts=()):
+    """Polish the best grid points (and ``extra_starts``, full decision vectors) in all
+    eight variables; the best (x, f, evals, index of the start it came from: a grid
+    point's flat index, or ("run", k) for extra start k)."""
+    chosen = set(np.argsort(best_f, axis=None)[:final].tolist())
+    chosen |= {
+        int(np.ravel_multi_index((i, int(np.argmin(best_f[i]))), best_f.shape))
+        for i in range(days.size)
+    }
+    steps = polish_chain(compiled)
+    starts = []
     for flat in sorted(chosen):
         i, j = np.unravel_index(flat, best_f.shape)
         x = compiled.lower.copy()
         x[L.X_LAUNCH_EPOCH_DAYS], x[L.X_LOOP_DURATION_DAYS] = days[i], loops[j]
         x[list(FREE_VARS)] = best_y[i, j]
-        f = np.inf
-        for step in steps:
-            x2, f2, n = step(x)
-            evals += n
-            if f2 < f and feasible(compiled, x2):
-                x, f = x2, f2
+        starts.append((("grid", int(flat)), x))
+    starts += [(("run", k), np.array(x, float)) for k, x in enumerate(extra_starts)]
+    best_x, best, origin = None, np.inf, None
+    evals = 0
+    for where, x in starts:
+        x, f, n = polish_start(compiled, steps, x)
+        evals += n
         if f < best:
-            best_x, best = x, f
+            best_x, best, origin = x, f, where
     if best_x is None:
         raise RuntimeError("no feasible design found; a reference problem must have one")
-    return best_x, best, evals
+    return best_x, best, evals, origin
 
 
 def verification(problem, compiled, x) -> dict:
@@ -270,18 +303,107 @@ def verification(problem, compiled, x) -> dict:
     }
 
 
-def establish(name, path, args, log):
+def narrowed_text(text: str, launch_days=None, loop_days=None) -> str:
+    """The problem file's text with the launch window and/or the loop duration replaced
+    by [first, last] (days past J2000 TDB for the launch, days for the loop)."""
+    import re
+
+    from leverage.astro.times import utc_iso
+
+    def sub(key, value, text):
+        new, n = re.subn(rf"(?m)^{key}\s*=.*$", f"{key} = {value}", text)
+        if n != 1:
+            raise ValueError(f"{key} occurs {n} times in the problem file")
+        return new
+
+    if launch_days is not None:
+        for key, day in zip(("window_open_utc", "window_close_utc"), launch_days):
+            text = sub(key, f'"{utc_iso(day * 86400.0)}"', text)
+    if loop_days is not None:
+        text = sub("duration_days", f"[{loop_days[0]:.3f}, {loop_days[1]:.3f}]", text)
+    return text
+
+
+def narrowed_runs(path, x, seeds, half_width_days, log) -> list:
+    """The default search (in this process) with the launch date and the loop duration
+    bounded to +-``half_width_days`` around x (inside the file's own bounds): the
+    check of a best-known answer by narrowed-bound runs. Returns each seed's
+    (objective, feasible)."""
+    from leverage.problem.load import load_problem_text
+    from leverage.run import runner
+    from leverage.search.islands import SerialIslands
+
+    base = load_problem(path)
+    lo, hi = base.compile().lower, base.compile().upper
+    bounds = []
+    for slot in GRID_VARS:
+        a = max(lo[slot], x[slot] - half_width_days)
+        b = min(hi[slot], x[slot] + half_width_days)
+        bounds.append((a, b))
+    text = narrowed_text(Path(path).read_text(), bounds[0], bounds[1])
+    problem = load_problem_text(text, str(path), base.name)
+    out = []
+    for seed in range(1, seeds + 1):
+        settings = runner.settings_from(problem, {"seed": seed})
+        compiled, udp, search = runner.prepare(problem, settings, SerialIslands())
+        while not search.done:
+            search.step()
+        record = runner.finish(problem, settings, compiled, udp, search, "complete")
+        out.append((float(record["objective"][0]), bool(record["feasible"])))
+        log(f"    narrowed run, seed {seed}: {out[-1][0]:.6f} (feasible {out[-1][1]})")
+    return out
+
+
+def runs_of(path, name) -> list:
+    """The feasible runs of ``name`` in a ``search_quality --save-runs`` file ([] without one)."""
+    if not path:
+        return []
+    return [
+        r
+        for r in json.loads(Path(path).read_text())
+        if r["problem"] == name and r.get("feasible") and r.get("x")
+    ]
+
+
+def establish(name, path, args, log, earlier=None):
     problem = load_problem(path)
     compiled = problem.compile()
     rng = np.random.default_rng(args.seed)
     start = time.perf_counter()
-    days, loops, best_f, best_y, evals = search_grid(
-        compiled, args.launch_step_days, args.loop_step_days, args.samples, args.starts, rng, log
-    )
-    x, f, n = full_polish(compiled, days, loops, best_f, best_y, args.final)
-    evals += n
+    runs = runs_of(args.from_runs, name)
+    if args.polish_only:
+        # No new grid: the earlier entry's design (same problem file) and the runs'.
+        if not earlier or earlier.get("sha256") != problem.sha256:
+            raise SystemExit(f"--polish-only: no entry for {name} with this problem file")
+        starts = [earlier["decision_vector"]["values"]] + [r["x"] for r in runs]
+        steps = polish_chain(compiled)
+        x, f, evals, origin = None, np.inf, 0, None
+        for k, x0 in enumerate(starts):
+            x1, f1, n = polish_start(compiled, steps, np.array(x0, float))
+            evals += n
+            if f1 < f:
+                x, f, origin = x1, f1, ("earlier", None) if k == 0 else ("run", k - 1)
+    else:
+        days, loops, best_f, best_y, evals = search_grid(
+            compiled,
+            args.launch_step_days,
+            args.loop_step_days,
+            args.samples,
+            args.starts,
+            rng,
+            log,
+        )
+        x, f, n, origin = full_polish(
+            compiled, days, loops, best_f, best_y, args.final, [r["x"] for r in runs]
+        )
+        evals += n
     q = trajectory.details(x, compiled.params)
     check = verification(problem, compiled, x)
+    narrowed = (
+        narrowed_runs(path, x, args.narrowed_seeds, args.narrowed_days, log)
+        if args.narrowed_seeds
+        else []
+    )
     return {
         "file": str(Path(path).resolve().relative_to(Path(__file__).resolve().parent.parent)),
         "sha256": problem.sha256,
@@ -296,14 +418,43 @@ def establish(name, path, args, log):
         "ephemeris": compiled.ephemeris,
         "margins": {k: v for k, v in problem.values["margins"].items() if v > 0.0},
         "decision_vector": {"names": compiled.names, "values": [float(v) for v in x]},
-        "grid": {
-            "launch_days": [float(days[0]), float(days[-1]), int(days.size)],
-            "loop_days": [float(loops[0]), float(loops[-1]), int(loops.size)],
-            "samples_per_point": args.samples,
-            "polished_starts_per_point": args.starts,
-            "final_full_polishes": args.final,
-            "grid_best_objective": float(np.min(best_f)),
-        },
+        "grid": (
+            dict(earlier["grid"], reused_from=earlier["date"])
+            if args.polish_only
+            else {
+                "launch_days": [float(days[0]), float(days[-1]), int(days.size)],
+                "loop_days": [float(loops[0]), float(loops[-1]), int(loops.size)],
+                "samples_per_point": args.samples,
+                "polished_starts_per_point": args.starts,
+                "final_full_polishes": args.final,
+                "grid_best_objective": float(np.min(best_f)),
+            }
+        ),
+        "from_runs": (
+            {
+                "file": Path(args.from_runs).name,
+                "runs": len(runs),
+                "best_run_objective": min(float(r["objective"]) for r in runs),
+            }
+            if runs
+            else None
+        ),
+        "narrowed_runs": (
+            {
+                "half_width_days": args.narrowed_days,
+                "seeds": len(narrowed),
+                "objectives": [round(f, 9) for f, _ in narrowed],
+                "feasible": [ok for _, ok in narrowed],
+                "beat_by_more_than_1_m_s": any(ok and o < f - 0.001 for o, ok in narrowed),
+            }
+            if narrowed
+            else None
+        ),
+        "best_came_from": (
+            f"run seed {runs[origin[1]]['seed']}, polished"
+            if origin[0] == "run"
+            else ("the earlier entry, polished" if origin[0] == "earlier" else "grid")
+        ),
         "evaluations": int(evals),
         "wall_s": round(time.perf_counter() - start, 1),
         "date": time.strftime("%Y-%m-%d"),
@@ -328,7 +479,25 @@ def main(argv=None) -> int:
         default=40,
         help="best grid points polished in full (besides the best of each date)",
     )
+    ap.add_argument(
+        "--polish-only",
+        action="store_true",
+        help="no new grid: polish the existing entry's design and the --from-runs designs",
+    )
     ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument(
+        "--narrowed-seeds",
+        type=int,
+        default=3,
+        help="default searches (seeds 1..N) with the launch date and loop duration bounded "
+        "around the answer, as a check (0: none)",
+    )
+    ap.add_argument("--narrowed-days", type=float, default=10.0, help="their half-width")
+    ap.add_argument(
+        "--from-runs",
+        metavar="FILE",
+        help="also polish (in full) the designs of a search_quality --save-runs file",
+    )
     ap.add_argument("--out", default=str(OUT), help="JSON file to update")
     ap.add_argument(
         "--smoke",
@@ -339,6 +508,7 @@ def main(argv=None) -> int:
     if args.smoke:
         args.launch_step_days, args.loop_step_days = 1000.0, 1000.0
         args.samples, args.starts, args.final = 64, 1, 1
+        args.narrowed_seeds = 0
         args.only = args.only or ["demo"]
     print_header("best-known answers" + (" (smoke: tiny grid, not written)" if args.smoke else ""))
     numba.set_num_threads(1)  # the other core stays free for whoever shares the machine
@@ -346,7 +516,9 @@ def main(argv=None) -> int:
     known = json.loads(out_path.read_text()) if out_path.exists() else {}
     for name in args.only or REFERENCES:
         print(f"\n{name}: {REFERENCES[name]}")
-        entry = establish(name, REFERENCES[name], args, lambda s: print(s, flush=True))
+        entry = establish(
+            name, REFERENCES[name], args, lambda s: print(s, flush=True), known.get(name)
+        )
         print(
             f"  best-known objective {entry['objective']:.6f} (total DSM "
             f"{entry['total_dv_km_s']:.6f} km/s, gain {entry['vinf_gain_km_s']:.6f} km/s, "

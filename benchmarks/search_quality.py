@@ -12,9 +12,16 @@ first evolution whose best objective is within the tolerance, or the whole run
 final design also holds in the verification (best.json ``verification.holds``: the
 design re-flown apart from the search's kernels against the stated limits).
 
+``--in-process`` runs each seed in this process instead (``leverage.run.runner``'s own
+``settings_from``, search and ``finish``: search and polish, islands evolved in turn,
+which gives the champion of a ``leverage run`` with the same seed and island count),
+without the start-up, the pictures and the verification that take most of a
+``leverage run`` process (about 20 s of its 20-28 s with DE421): only the champion and
+the run's own clock count, so "verified" and "process s" are not measured there.
+
 Usage: python -m benchmarks.search_quality [--problems demo,earth-3yr] [--algorithms sade,pso]
        [--seeds 20] [--population N] [--generations N] [--islands N] [--file-settings]
-       [--smoke]
+       [--in-process] [--show-runs] [--smoke]
 """
 
 import argparse
@@ -29,6 +36,47 @@ from benchmarks.common import leverage_run, median, print_footer, print_header
 from leverage.problem.schema import ALGORITHMS, keys_by_section
 
 TOLERANCE = 0.001  # objective units (km/s): 1 m/s
+# [search] keys passed to every run (the defaults unless given or --file-settings).
+TUNABLE = ("population", "generations", "islands", "generations_per_migration", "polish")
+ON_COMMAND_LINE = ("population", "generations", "islands")  # leverage run's options
+SAVED = ("seed", "objective", "feasible", "wall_s", "evaluations", "x")
+
+
+def in_process_run(path, seed, algorithm, overrides, target):
+    """One seed in this process: the runner's settings, search and finish (polish and
+    record), islands evolved in turn; no files, pictures or verification."""
+    from leverage.problem.load import load_problem
+    from leverage.run import runner
+    from leverage.search.islands import SerialIslands
+
+    problem = load_problem(path)
+    settings = runner.settings_from(problem, dict(overrides, seed=seed, algorithm=algorithm))
+    compiled, udp, search = runner.prepare(problem, settings, SerialIslands())
+    while not search.done:
+        search.step()
+    record = runner.finish(problem, settings, compiled, udp, search, "complete")
+    objective = record["objective"][0]
+    objective = float("inf") if objective is None else float(objective)
+    hit = bool(record["feasible"]) and target is not None and objective <= target + TOLERANCE
+    reach = None
+    if hit:
+        reach = next(
+            (r.wall_time_s for r in search.state.history if r.best_objective <= target + TOLERANCE),
+            record["run"]["wall_time_s"],
+        )
+    return {
+        "ok": True,
+        "seed": seed,
+        "objective": objective,
+        "feasible": bool(record["feasible"]),
+        "hit": hit,
+        "holds": None,
+        "reach_s": reach,
+        "wall_s": record["run"]["wall_time_s"],
+        "process_wall_s": float("nan"),
+        "evaluations": record["run"]["evaluations"],
+        "x": record["decision_vector"]["values"],
+    }
 
 
 def one_run(path, seed, algorithm, options, target):
@@ -53,6 +101,7 @@ def one_run(path, seed, algorithm, options, target):
     holds = (best.get("verification") or {}).get("holds") is True
     return {
         "ok": True,
+        "seed": seed,
         "objective": objective,
         "feasible": bool(best["feasible"]),
         "hit": hit,
@@ -61,6 +110,7 @@ def one_run(path, seed, algorithm, options, target):
         "wall_s": best["run"]["wall_time_s"],
         "process_wall_s": res["process_wall_s"],
         "evaluations": best["run"]["evaluations"],
+        "x": best["decision_vector"]["values"],
     }
 
 
@@ -72,37 +122,60 @@ def main(argv=None) -> int:
     ap.add_argument("--population", type=int)
     ap.add_argument("--generations", type=int)
     ap.add_argument("--islands", type=int)
+    ap.add_argument("--generations-per-migration", type=int)
+    ap.add_argument("--polish", choices=("none", "bobyqa", "slsqp", "mbh"))
     ap.add_argument(
         "--file-settings",
         action="store_true",
         help="each problem file's own [search] values instead of the defaults",
     )
+    ap.add_argument(
+        "--in-process",
+        action="store_true",
+        help="search and polish in this process (no pictures, no verification)",
+    )
+    ap.add_argument(
+        "--show-runs", action="store_true", help="print every run's seed, objective and time"
+    )
+    ap.add_argument(
+        "--save-runs",
+        metavar="FILE",
+        help="write every run (problem, algorithm, seed, objective, design) to this JSON file",
+    )
     ap.add_argument("--smoke", action="store_true", help="tiny: demo, 2 seeds, 1 evolution")
     args = ap.parse_args(argv)
+    if not args.in_process and (args.generations_per_migration or args.polish):
+        ap.error("--generations-per-migration and --polish need --in-process")
     if not args.file_settings:
         defaults = keys_by_section()["search"]
-        for name in ("population", "generations", "islands"):
+        for name in TUNABLE:
             if getattr(args, name) is None:
                 setattr(args, name, defaults[name].default)
     options = []
+    overrides = {}
     if args.smoke:
         args.problems, args.seeds = "demo", 2
         args.algorithms = args.algorithms if "," not in args.algorithms else "sade"
         args.generations, args.islands, args.population = 50, 1, 16
-    for name in ("population", "generations", "islands"):
+    for name in TUNABLE:
         if getattr(args, name) is not None:
-            options += [f"--{name}", getattr(args, name)]
+            overrides[name] = getattr(args, name)
+            if name in ON_COMMAND_LINE:
+                options += [f"--{name}", getattr(args, name)]
     print_header(
         "search quality" + (" (smoke: tiny sizes, figures meaningless)" if args.smoke else "")
     )
     known = json.loads(BEST_KNOWN.read_text()) if BEST_KNOWN.exists() else {}
     source = "each problem file's [search] values" if args.file_settings else "the defaults"
     print(
-        f"settings: {source}, {' '.join(map(str, options)) or 'no overrides'}"
+        f"settings: {source}, "
+        + (", ".join(f"{k} {v}" for k, v in overrides.items()) or "no overrides")
+        + ("; in this process (search and polish only)" if args.in_process else "")
         + f"; seeds 1..{args.seeds}; hit = feasible and within {TOLERANCE * 1000:.0f} m/s "
         "of the best-known objective"
     )
     summary = []
+    saved = []
     for problem in args.problems.split(","):
         path = REFERENCES[problem]
         entry = known.get(problem)
@@ -118,13 +191,23 @@ def main(argv=None) -> int:
         )
         for algorithm in args.algorithms.split(","):
             runs = [
-                one_run(path, seed, algorithm, options, target) for seed in range(1, args.seeds + 1)
+                in_process_run(path, seed, algorithm, overrides, target)
+                if args.in_process
+                else one_run(path, seed, algorithm, options, target)
+                for seed in range(1, args.seeds + 1)
             ]
             good = [r for r in runs if r["ok"]]
             hits = [r for r in good if r["hit"]]
             misses = [1000 * (r["objective"] - target) for r in good if target is not None]
             better = [m for m in misses if m < -1000 * TOLERANCE]
             verified = [r for r in good if r["holds"]]
+            if args.show_runs:
+                for r in good:
+                    print(
+                        f"    seed {r['seed']:>3}: objective {r['objective']:.6f} "
+                        f"({1000 * (r['objective'] - target) if target is not None else 0:+.2f} m/s)"
+                        f", feasible {r['feasible']}, {r['wall_s']:.2f} s"
+                    )
             row = {
                 "problem": problem,
                 "algorithm": algorithm,
@@ -138,9 +221,14 @@ def main(argv=None) -> int:
                 "worst_miss_m_s": max(misses) if misses else float("nan"),
             }
             summary.append(row)
+            saved.extend(
+                {"problem": problem, "algorithm": algorithm, **{k: r.get(k) for k in SAVED}}
+                for r in good
+            )
             print(
                 f"  {algorithm:<9} {len(hits):>3}/{len(runs):<2} "
-                f"{len(verified):>5}/{len(runs):<2} {row['median_reach_s']:>16.2f} "
+                + (f"{'-':>8}" if args.in_process else f"{len(verified):>5}/{len(runs):<2}")
+                + f" {row['median_reach_s']:>16.2f} "
                 f"{row['median_wall_s']:>13.2f} {row['median_process_s']:>17.2f} "
                 f"{row['median_evaluations']:>13,.0f} {row['worst_miss_m_s']:>15.1f}",
                 flush=True,
@@ -153,6 +241,9 @@ def main(argv=None) -> int:
                     f"    note: {len(better)} run(s) beat the best-known answer by more than "
                     f"1 m/s (up to {-min(better):.1f} m/s): rerun benchmarks.best_known denser"
                 )
+    if args.save_runs:
+        Path(args.save_runs).write_text(json.dumps(saved, indent=1) + "\n")
+        print(f"runs written to {args.save_runs}")
     print_footer()
     return 0
 

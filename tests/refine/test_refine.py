@@ -170,10 +170,11 @@ def test_ias15_and_dop853_agree_on_the_refined_demo(demo_refiner):
     check = cross_check(demo_refiner, best)
     pos = [s["position_km"] for s in check["segments"]]
     vel = [s["velocity_m_s"] for s in check["segments"]]
-    # Measured 1.0 / 3.6 / 0.014 km and 0.10 / 0.27 / 0.04 mm/s: mostly the IAS15
-    # bodies' drift from DE421 (see leverage/refine/integrators.py).
-    assert max(pos) < 5.0
-    assert max(vel) < 5e-4
+    # Measured 0.024 / 0.30 / 0.00005 km and 0.005 / 0.025 / 0.0002 mm/s (with one-float
+    # Julian dates in the DOP853 body table it was 1.0 / 3.6 / 0.014 km): the IAS15
+    # bodies' drift from DE421 and DOP853's rtol (see leverage/refine/integrators.py).
+    assert max(pos) < 2.0
+    assert max(vel) < 2.5e-4
     # The refined design itself: joins closed in the main integrator.
     assert best.errors["dsm_join_position"][0] < 0.05
     assert best.errors["dsm_join_velocity"][0] < 1e-5

@@ -29,7 +29,8 @@ departure periapsis -> DSM (223 days, starting 200 km above the Earth) takes IAS
 0.023 s and DOP853 0.24 s; flyby periapsis -> DSM backward (470 days) 0.030 s and
 0.027 s. DOP853's own error, from rtol 1e-12 vs 1e-13, is 0.23 km and 0.014 km at the
 DSM on those two; IAS15 is at round-off (two-body test: energy 4e-16 over 5 years).
-The two integrators differ by 1.0 km / 0.10 mm/s and 3.6 km / 0.27 mm/s at the DSM,
+The two integrators differ by 0.024 km / 0.005 mm/s and 0.30 km / 0.025 mm/s at the
+DSM on the test fixture's design (1.7 km at most on the five refined bundled designs),
 which is the IAS15 bodies' drift plus DOP853's error. IAS15 is the main integrator: up
 to 10x faster on the near-Earth segments that dominate the finite-difference
 Jacobians, and exact at the close passes, where the bodies have not drifted yet;

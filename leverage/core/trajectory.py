@@ -396,9 +396,34 @@ def batch_fitness(xs, p):
 
 
 @njit(cache=True)
+def batch_fitness_one_thread(xs, p):
+    """``batch_fitness`` on this thread only (no thread pool is started): for worker
+    processes that each evolve one island, and for a parent that will fork them."""
+    n = xs.shape[0]
+    n_obj = int(p[L.P_N_OBJ])
+    out = np.empty((n, n_obj))
+    q = np.empty(L.N_Q)
+    f = np.empty(n_obj)
+    for i in range(n):
+        evaluate(xs[i], p, q, f, False)
+        out[i, :] = f
+    return out
+
+
+@njit(cache=True)
 def details(x, p):
     """All derived quantities (length N_Q, slots in ``layout``) of one point."""
     q = np.empty(L.N_Q)
     f = np.empty(int(p[L.P_N_OBJ]))
     evaluate(x, p, q, f, True)
     return q
+
+
+@njit(cache=True)
+def batch_details(xs, p):
+    """``details`` of every row of xs (one row of N_Q quantities each), on this thread."""
+    out = np.empty((xs.shape[0], L.N_Q))
+    f = np.empty(int(p[L.P_N_OBJ]))
+    for i in range(xs.shape[0]):
+        evaluate(xs[i], p, out[i], f, True)
+    return out

@@ -72,7 +72,9 @@ def random_points(compiled, n, seed=7):
     return compiled.lower + rng.random((n, compiled.lower.size)) * (compiled.upper - compiled.lower)
 
 
-@njit(cache=True)
+# Not cached: compiled against whichever leverage is imported (compare_trees.py loads
+# this file with another checkout's leverage; a cache would mix the two).
+@njit
 def kernel_pair_inputs(xs, p):
     """Per point: launch state (r0 km, v0 km/s) and the launch, DSM and flyby epochs
     (s TDB), as the fitness builds them (made before timing the kernel pair)."""
@@ -99,7 +101,7 @@ def kernel_pair_inputs(xs, p):
     return out
 
 
-@njit(cache=True)
+@njit
 def kernel_pair(inputs, p):
     """The work no fitness can avoid, per point: the body's ephemeris at launch and at
     the flyby, propagation launch -> DSM, Lambert DSM -> flyby (M = 0). Returns a sum

@@ -5,7 +5,11 @@ On the demo problem, in one process:
 1. floor: the compiled fitness on a batch of random points drawn uniformly inside the
    bounds (``trajectory.batch_fitness`` on one thread, and on every thread;
    ``trajectory.fitness`` called once per point), plus the layers a search adds on top
-   of one call (the pygmo problem shell, ``pygmo.problem.fitness``);
+   of one call (the pygmo problem shell, ``pygmo.problem.fitness``); and the kernel
+   pair the fitness cannot avoid, timed alternately with the floor on the same points:
+   the body's ephemeris at launch and at the flyby, the propagation from launch to the
+   DSM and the Lambert arc from the DSM to the flyby (``kernel_pair``; target: floor
+   at most 2.5 x the kernel pair);
 2. in-process algorithms: each single-objective algorithm's ``evolve`` on one
    population in this process (per-individual calls from pygmo to Python to numba), and
    pso_gen with pygmo batch evaluation (one call per generation to the numba batch);
@@ -25,8 +29,9 @@ points, alternating the two in the same process (target: DE421 at most 1.3 x mea
 elements). The unit-aware baseline builds its planets from Standish's elements, so its
 DSM is compared with the mean-element compile.
 
-Cores used by a run are min(islands, cores) for process islands (each island a worker
-process) and all cores for a front run (numba-parallel batches in one process).
+Cores used by a run are min(islands, cores): each island a worker process (single
+objective and fronts alike), or, with one island, that one process (a front's batches
+then spread over the cores: all of them count).
 
 Usage: python -m benchmarks.eval_cost [--points N] [--baseline-points N] [--smoke]
 """
@@ -44,11 +49,16 @@ from pathlib import Path
 import numba
 import numpy as np
 import pygmo as pg
+from numba import njit
 
 from benchmarks.common import DEMO, ROOT, leverage_run, print_footer, print_header
 from leverage.astro import de_tables
 from leverage.core import layout as L
 from leverage.core import trajectory
+from leverage.core.ephemeris import DAY_S, body_state_in
+from leverage.core.frames import direction_from_angles, velocity_frame
+from leverage.core.kepler import propagate
+from leverage.core.lambert import lambert
 from leverage.problem.load import compile_problem, load_problem
 from leverage.search.single import make_algorithm
 from leverage.search.udp import LeveragingUDP
@@ -60,6 +70,70 @@ SINGLE_ALGORITHMS = ("sade", "de", "de1220", "pso", "cmaes")
 def random_points(compiled, n, seed=7):
     rng = np.random.default_rng(seed)
     return compiled.lower + rng.random((n, compiled.lower.size)) * (compiled.upper - compiled.lower)
+
+
+# Not cached: compiled against whichever leverage is imported (compare_trees.py loads
+# this file with another checkout's leverage; a cache would mix the two).
+@njit
+def kernel_pair_inputs(xs, p):
+    """Per point: launch state (r0 km, v0 km/s) and the launch, DSM and flyby epochs
+    (s TDB), as the fitness builds them (made before timing the kernel pair)."""
+    out = np.empty((xs.shape[0], 9))
+    deg = np.pi / 180.0
+    for i in range(xs.shape[0]):
+        x = xs[i]
+        t0 = x[L.X_LAUNCH_EPOCH_DAYS] * DAY_S
+        t_loop = x[L.X_LOOP_DURATION_DAYS] * DAY_S
+        r0, vb0 = body_state_in(p, L.P_BODY_EPH, t0)
+        along, out_dir, normal = velocity_frame(r0, vb0)
+        u = direction_from_angles(
+            along,
+            out_dir,
+            normal,
+            x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG] * deg,
+            x[L.X_LAUNCH_OUT_OF_PLANE_ANGLE_DEG] * deg,
+        )
+        out[i, 0:3] = r0
+        out[i, 3:6] = vb0 + x[L.X_LAUNCH_VINF_KM_S] * u
+        out[i, 6] = t0
+        out[i, 7] = t0 + x[L.X_DSM_FRACTION] * t_loop
+        out[i, 8] = t0 + t_loop
+    return out
+
+
+@njit
+def kernel_pair(inputs, p):
+    """The work no fitness can avoid, per point: the body's ephemeris at launch and at
+    the flyby, propagation launch -> DSM, Lambert DSM -> flyby (M = 0). Returns a sum
+    of the results so that none of the work can be left out by the compiler."""
+    total = 0.0
+    mu = p[L.P_MU_SUN]
+    for i in range(inputs.shape[0]):
+        t0, t1, t2 = inputs[i, 6], inputs[i, 7], inputs[i, 8]
+        r0, vb0 = body_state_in(p, L.P_BODY_EPH, t0)
+        r2, vb2 = body_state_in(p, L.P_BODY_EPH, t2)
+        r1, v1m, ok = propagate(mu, inputs[i, 0:3], inputs[i, 3:6], t1 - t0)
+        v1p, v2, solved = lambert(mu, r1, r2, t2 - t1, 0, True, True)
+        total += r0[0] + vb0[0] + vb2[0] + v1m[0] + v1p[0] + v2[0]
+    return total
+
+
+def measure_kernel_pair(compiled, xs, repeats):
+    """us per evaluation of the floor (batch_fitness, 1 thread) and of the kernel pair on
+    the same points, timed alternately (best of ``repeats`` each)."""
+    p = compiled.params
+    n = len(xs)
+    threads = numba.get_num_threads()
+    numba.set_num_threads(1)
+    inputs = kernel_pair_inputs(xs, p)
+    kernel_pair(inputs[:4], p)
+    trajectory.batch_fitness(xs[:4], p)
+    floor, pair = [], []
+    for _ in range(repeats):
+        floor.append(best_of(1, lambda: trajectory.batch_fitness(xs, p)) / n * 1e6)
+        pair.append(best_of(1, lambda: kernel_pair(inputs, p)) / n * 1e6)
+    numba.set_num_threads(threads)
+    return min(floor), min(pair)
 
 
 def best_of(repeats, func):
@@ -314,6 +388,12 @@ def main(argv=None) -> int:
     for key, value in floor.items():
         print(f"  {key:<40} {value:8.2f} us/evaluation")
     floor_us = floor["batch, 1 thread"]
+    alt_floor, pair_us = measure_kernel_pair(compiled, xs, args.repeats)
+    print(
+        f"  kernel pair (2 ephemeris look-ups + propagate + Lambert), timed alternately "
+        f"with the floor:\n    floor {alt_floor:8.2f} us, kernel pair {pair_us:8.2f} us/evaluation"
+        f" = floor {alt_floor / pair_us:5.2f} x the kernel pair (target <= 2.5 x)"
+    )
     if FRONT_PROBLEM.exists():
         # The front template has its own limits; its floor, for comparison with the demo's.
         front = load_problem(FRONT_PROBLEM).compile()
@@ -356,9 +436,9 @@ def main(argv=None) -> int:
     if importlib.util.find_spec("leverage.search.fronts") and FRONT_PROBLEM.exists():
         runs.append(
             run_rates(
-                "trade-front (multi-objective, batch evaluation)",
+                "trade-front (multi-objective, its settings)",
                 FRONT_PROBLEM,
-                cores,
+                min(load_problem(FRONT_PROBLEM).values["search"]["islands"], cores),
                 *(["--generations", "4"] if args.smoke else []),
             )
         )

@@ -37,6 +37,13 @@ def test_eval_cost_smoke():
 
 
 @pytest.mark.slow
+def test_compare_trees_smoke():
+    out = smoke("compare_trees")  # this checkout against itself
+    assert "floor / kernel pair" in out
+    assert "demo run" in out and "front run" in out
+
+
+@pytest.mark.slow
 def test_de_design_smoke():
     out = smoke("de_design")
     assert "one table, combined at build time" in out and "cubic Hermite" in out

@@ -14,6 +14,7 @@ import numpy as np
 from numba import njit
 
 from .frames import unit
+from .vec3 import cross, dot
 
 
 @njit(cache=True)
@@ -54,8 +55,8 @@ def max_turn(mu, vinf, rp_min):
 def bplane_frame(vinf_in, pole):
     """Unit vectors (S, T, R) of the B-plane for incoming v_inf and reference pole."""
     s = unit(vinf_in)
-    t = unit(np.cross(s, pole))
-    r = np.cross(s, t)
+    t = unit(cross(s, pole))
+    r = cross(s, t)
     return s, t, r
 
 
@@ -64,7 +65,7 @@ def outgoing_vinf(vinf_in, turn, bplane_angle, pole):
     """Outgoing v_inf (km/s): incoming v_inf turned by ``turn`` (rad) toward -B,
     with B at ``bplane_angle`` (rad) from T toward R. |v_inf| is unchanged."""
     s, t, r = bplane_frame(vinf_in, pole)
-    speed = np.sqrt(vinf_in @ vinf_in)
+    speed = np.sqrt(dot(vinf_in, vinf_in))
     b_hat = np.cos(bplane_angle) * t + np.sin(bplane_angle) * r
     return speed * (np.cos(turn) * s - np.sin(turn) * b_hat)
 
@@ -73,8 +74,8 @@ def outgoing_vinf(vinf_in, turn, bplane_angle, pole):
 def bplane_angle_of(vinf_in, vinf_out, pole):
     """B-plane angle (rad, [0, 2 pi)) of the flyby that turns vinf_in into vinf_out."""
     s, t, r = bplane_frame(vinf_in, pole)
-    minus_b = vinf_out - (vinf_out @ s) * s
-    angle = np.arctan2(-(minus_b @ r), -(minus_b @ t)) % (2.0 * np.pi)
+    minus_b = vinf_out - dot(vinf_out, s) * s
+    angle = np.arctan2(-dot(minus_b, r), -dot(minus_b, t)) % (2.0 * np.pi)
     # x % 2 pi rounds to exactly 2 pi for a tiny negative x: keep [0, 2 pi).
     return angle if angle < 2.0 * np.pi else 0.0
 

@@ -9,12 +9,13 @@ import numpy as np
 from numba import njit
 
 from .constants import OBLIQUITY_J2000_RAD
+from .vec3 import cross, dot
 
 
 @njit(cache=True)
 def unit(v):
     """v / |v| (a zero vector stays zero)."""
-    n = np.sqrt(v @ v)
+    n = np.sqrt(dot(v, v))
     if n == 0.0:
         return v.copy()
     return v / n
@@ -62,9 +63,9 @@ def launch_asymptote(vinf_ecliptic, pole_ra, pole_dec):
             ]
         )
         x = np.array([-np.sin(pole_ra), np.cos(pole_ra), 0.0])
-        y = np.cross(z, x)
-        eq = np.array([eq @ x, eq @ y, eq @ z])
-    speed = np.sqrt(eq @ eq)
+        y = cross(z, x)
+        eq = np.array([dot(eq, x), dot(eq, y), dot(eq, z)])
+    speed = np.sqrt(dot(eq, eq))
     c3 = speed * speed
     if speed == 0.0:
         return 0.0, 0.0, 0.0
@@ -83,8 +84,8 @@ def velocity_frame(r, v):
     away from the Sun for a near-circular orbit.
     """
     along = unit(v)
-    normal = unit(np.cross(r, v))
-    out = np.cross(along, normal)
+    normal = unit(cross(r, v))
+    out = cross(along, normal)
     return along, out, normal
 
 
@@ -108,6 +109,6 @@ def rtn_components(r, v, vec):
     sec. 3.3).
     """
     rad = unit(r)
-    nrm = unit(np.cross(r, v))
-    trn = np.cross(nrm, rad)
-    return vec @ rad, vec @ trn, vec @ nrm
+    nrm = unit(cross(r, v))
+    trn = cross(nrm, rad)
+    return dot(vec, rad), dot(vec, trn), dot(vec, nrm)

@@ -15,10 +15,13 @@ import numpy as np
 from numba import njit
 from poliastro.core.elements import coe2rv, rv2coe
 
+from .vec3 import cross, dot, norm
+
 TWO_PI = 2.0 * np.pi
 _KEPLER_TOL = 1e-13
 _MAX_ITER = 50
 _PROPAGATION_ITER = 200
+_RV2COE_TOL = 1e-8  # elements_from_state's tolerance for circular and equatorial orbits
 
 
 @njit(cache=True)
@@ -75,12 +78,62 @@ def elements_from_state(mu, r, v):
     gives NaN for every element instead of raising.
     """
     try:
-        p, ecc, inc, raan, argp, nu = rv2coe(mu, r, v, 1e-8)
+        p, ecc, inc, raan, argp, nu = rv2coe(mu, r, v, _RV2COE_TOL)
     except Exception:
         # rv2coe divides by |h|: a rectilinear state has no plane; never raise here.
         return np.nan, np.nan, np.nan, np.nan, np.nan, np.nan
     a = p / (1.0 - ecc * ecc) if abs(1.0 - ecc) > 1e-12 else np.inf
     return a, ecc, inc, raan, argp, nu
+
+
+@njit(cache=True)
+def orbit_shape(mu, r, v):
+    """(a km, e, i rad) of a state (km, km/s): ``elements_from_state``'s first three.
+
+    The same arithmetic as poliastro's rv2coe (h = r x v, the eccentricity vector,
+    i = acos(h_z / |h|)) without the node, periapsis and anomaly, which a fitness does
+    not need; the values are bit for bit ``elements_from_state``'s (NaN for all three
+    exactly where rv2coe would raise: r = 0, h = 0, e = 1, or a zero divisor in its
+    true-anomaly formulas).
+    """
+    nan3 = (np.nan, np.nan, np.nan)
+    rn = norm(r)
+    vv = dot(v, v)
+    if rn == 0.0:
+        return nan3
+    h = cross(r, v)
+    rv = dot(r, v)
+    c1 = vv - mu / rn
+    e = np.empty(3)
+    for k in range(3):
+        e[k] = (c1 * r[k] - rv * v[k]) / mu
+    ecc = norm(e)
+    p = dot(h, h) / mu
+    hn = norm(h)
+    if hn == 0.0:
+        return nan3
+    inc = np.arccos(h[2] / hn)
+    circular = ecc < _RV2COE_TOL
+    equatorial = abs(inc) < _RV2COE_TOL
+    if not (circular or equatorial):
+        # rv2coe's general branch divides by 1 - e^2, sqrt(+-k a) and e_ch - e_sh.
+        one_minus = 1 - (ecc**2)
+        if one_minus == 0.0:
+            return nan3
+        ka = mu * (p / one_minus)
+        if p / one_minus > 0:
+            if np.sqrt(ka) == 0.0:
+                return nan3
+        else:
+            root = np.sqrt(-ka)
+            if root == 0.0:
+                return nan3
+            e_sh = rv / root
+            e_ch = rn * (norm(v) ** 2) / mu - 1
+            if e_ch - e_sh == 0.0:
+                return nan3
+    a = p / (1.0 - ecc * ecc) if abs(1.0 - ecc) > 1e-12 else np.inf
+    return a, ecc, inc
 
 
 @njit(cache=True)
@@ -127,14 +180,14 @@ def propagate(mu, r0, v0, tof):
     v = np.zeros(3)
     if tof == 0.0:
         return r0.copy(), v0.copy(), True
-    r0n = np.sqrt(r0 @ r0)
+    r0n = np.sqrt(dot(r0, r0))
     if not (
         np.isfinite(tof) and np.isfinite(r0n) and np.all(np.isfinite(v0)) and r0n > 0.0 and mu > 0.0
     ):
         return r, v, False
     sqrt_mu = np.sqrt(mu)
-    sigma0 = (r0 @ v0) / sqrt_mu
-    alpha = 2.0 / r0n - (v0 @ v0) / mu
+    sigma0 = dot(r0, v0) / sqrt_mu
+    alpha = 2.0 / r0n - dot(v0, v0) / mu
     t = tof
     if alpha * r0n > 1e-12:
         # Ellipse: reduce to |t| <= P/2; then |delta E| < 2 pi brackets chi = dE/sqrt(alpha).
@@ -151,7 +204,7 @@ def propagate(mu, r0, v0, tof):
         if alpha < 0.0:
             sign_t = 1.0 if t > 0.0 else -1.0
             arg = (-2.0 * mu * alpha * t) / (
-                r0 @ v0 + sign_t * np.sqrt(-mu / alpha) * (1.0 - r0n * alpha)
+                dot(r0, v0) + sign_t * np.sqrt(-mu / alpha) * (1.0 - r0n * alpha)
             )
             if arg > 0.0 and np.isfinite(arg):
                 guess = sign_t * np.sqrt(-1.0 / alpha) * np.log(arg)
@@ -230,4 +283,4 @@ def propagate(mu, r0, v0, tof):
 @njit(cache=True)
 def orbit_energy(mu, r, v):
     """Specific orbital energy (km^2/s^2): v^2/2 - mu/r."""
-    return 0.5 * (v @ v) - mu / np.sqrt(r @ r)
+    return 0.5 * dot(v, v) - mu / np.sqrt(dot(r, r))

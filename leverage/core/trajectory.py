@@ -32,10 +32,11 @@ from .flyby import (
     turn_angle,
 )
 from .frames import direction_from_angles, launch_asymptote, rtn_components, velocity_frame
-from .kepler import elements_from_state, propagate
+from .kepler import orbit_shape, propagate
 from .lambert import branch_range, branch_revs, lambert
 from .mass import injected_mass, mass_ratio
 from .penalties import total_penalty
+from .vec3 import dot
 
 FAIL_OBJECTIVE = 1.0e3  # objective value of a point whose legs could not be solved
 _ECLIPTIC_POLE = np.array([0.0, 0.0, 1.0])
@@ -51,7 +52,7 @@ def _put(q, slot, vec):
 
 @njit(cache=True)
 def _norm(v):
-    return np.sqrt(v @ v)
+    return np.sqrt(dot(v, v))
 
 
 @njit(cache=True)
@@ -100,8 +101,10 @@ def objectives(q, p, f):
 
 
 @njit(cache=True)
-def _launch(x, p, q):
-    """Launch state and the legs up to the DSM point; fills q, returns states."""
+def _launch(x, p, q, full):
+    """Launch state and the legs up to the DSM point; fills q, returns states.
+
+    ``full``: also the event states, which only the record needs."""
     t0 = x[L.X_LAUNCH_EPOCH_DAYS] * DAY_S
     t_loop = x[L.X_LOOP_DURATION_DAYS] * DAY_S
     t1 = t0 + x[L.X_DSM_FRACTION] * t_loop
@@ -126,11 +129,12 @@ def _launch(x, p, q):
     q[L.Q_VINF_LAUNCH] = x[L.X_LAUNCH_VINF_KM_S]
     q[L.Q_MARGIN_C3] = p[L.P_C3_MAX] - c3
     q[L.Q_MARGIN_DLA_RAD] = min(dla - p[L.P_DLA_MIN], p[L.P_DLA_MAX] - dla)
-    _put(q, L.Q_R_LAUNCH, r0)
-    _put(q, L.Q_V_LAUNCH, v0)
     r1, v1m, ok = propagate(p[L.P_MU_SUN], r0, v0, t1 - t0)
-    _put(q, L.Q_R_DSM, r1)
-    _put(q, L.Q_V_DSM_BEFORE, v1m)
+    if full:
+        _put(q, L.Q_R_LAUNCH, r0)
+        _put(q, L.Q_V_LAUNCH, v0)
+        _put(q, L.Q_R_DSM, r1)
+        _put(q, L.Q_V_DSM_BEFORE, v1m)
     return r1, v1m, ok
 
 
@@ -189,11 +193,13 @@ def _no_target(q):
 
 
 @njit(cache=True)
-def _loop_arc(p, q, branch, r1, v1m, r2, vb2):
+def _loop_arc(p, q, branch, r1, v1m, r2, vb2, full):
     """Lambert arc on ``branch`` from the DSM point to the body (at r2 with velocity
     vb2 at the flyby), and the DSM.
 
-    Fills the DSM and incoming quantities; returns (incoming v_inf, ok).
+    Fills the DSM and incoming quantities; returns (incoming v_inf, ok). ``full``:
+    also the DSM's RTN components, the leverage ratio and the event states, which
+    only the record needs.
     """
     t1 = q[L.Q_T_DSM]
     t2 = q[L.Q_T_FLYBY]
@@ -202,25 +208,26 @@ def _loop_arc(p, q, branch, r1, v1m, r2, vb2):
     if not ok:
         return v2, False
     dsm = v1p - v1m
-    dsm_r, dsm_t, dsm_n = rtn_components(r1, v1m, dsm)
     vinf_in = v2 - vb2
     speed_in = _norm(vinf_in)
     dsm_mag = _norm(dsm)
     q[L.Q_DSM] = dsm_mag
-    q[L.Q_DSM_R] = dsm_r
-    q[L.Q_DSM_T] = dsm_t
-    q[L.Q_DSM_N] = dsm_n
     q[L.Q_VINF_IN] = speed_in
     q[L.Q_GAIN] = speed_in - q[L.Q_VINF_LAUNCH]
-    q[L.Q_LEVERAGE] = q[L.Q_GAIN] / dsm_mag if dsm_mag > 0.0 else np.nan
-    q[L.Q_REVS] = revs
-    q[L.Q_LOW_PATH] = 1.0 if low else 0.0
     q[L.Q_MARGIN_DSM_KMS] = p[L.P_DSM_BUDGET_KMS] - dsm_mag
     q[L.Q_MARGIN_LAMBERT] = 0.0
-    _put(q, L.Q_R_FLYBY, r2)
-    _put(q, L.Q_V_DSM_AFTER, v1p)
-    _put(q, L.Q_V_FLYBY_IN, v2)
-    _put(q, L.Q_V_BODY_FLYBY, vb2)
+    if full:
+        dsm_r, dsm_t, dsm_n = rtn_components(r1, v1m, dsm)
+        q[L.Q_DSM_R] = dsm_r
+        q[L.Q_DSM_T] = dsm_t
+        q[L.Q_DSM_N] = dsm_n
+        q[L.Q_LEVERAGE] = q[L.Q_GAIN] / dsm_mag if dsm_mag > 0.0 else np.nan
+        q[L.Q_REVS] = revs
+        q[L.Q_LOW_PATH] = 1.0 if low else 0.0
+        _put(q, L.Q_R_FLYBY, r2)
+        _put(q, L.Q_V_DSM_AFTER, v1p)
+        _put(q, L.Q_V_FLYBY_IN, v2)
+        _put(q, L.Q_V_BODY_FLYBY, vb2)
     return vinf_in, True
 
 
@@ -254,7 +261,7 @@ def _target_flyby(p, q, vinf_in, vinf_out):
     mu_b = p[L.P_BODY_MU]
     speed_in = q[L.Q_VINF_IN]
     speed_out = _norm(vinf_out)
-    cos_turn = (vinf_in @ vinf_out) / (speed_in * speed_out)
+    cos_turn = dot(vinf_in, vinf_out) / (speed_in * speed_out)
     turn = np.arccos(min(1.0, max(-1.0, cos_turn)))
     rp = powered_periapsis(mu_b, speed_in, speed_out, turn)
     rp_min = p[L.P_BODY_RADIUS_KM] + p[L.P_MIN_ALT_KM]
@@ -272,9 +279,9 @@ def _target_flyby(p, q, vinf_in, vinf_out):
 
 
 @njit(cache=True)
-def _finish(p, q, r2, v_out):
+def _finish(p, q, r2, v_out, full):
     """Outgoing orbit, burn totals, delivered mass and the remaining margins."""
-    a, ecc, inc, _, _, _ = elements_from_state(p[L.P_MU_SUN], r2, v_out)
+    a, ecc, inc = orbit_shape(p[L.P_MU_SUN], r2, v_out)
     q[L.Q_OUT_A] = a
     q[L.Q_OUT_E] = ecc
     q[L.Q_OUT_INC] = inc
@@ -296,7 +303,8 @@ def _finish(p, q, r2, v_out):
     q[L.Q_MARGIN_ALT_KM] = q[L.Q_ALT] - p[L.P_MIN_ALT_KM]
     q[L.Q_MARGIN_TURN_RAD] = q[L.Q_TURN_MAX] - q[L.Q_TURN]
     _no_target_requirements(p, q)
-    _put(q, L.Q_V_FLYBY_OUT, v_out)
+    if full:
+        _put(q, L.Q_V_FLYBY_OUT, v_out)
 
 
 @njit(cache=True)
@@ -309,15 +317,20 @@ def _mark_failed(q):
 
 
 @njit(cache=True)
-def evaluate(x, p, q, f):
+def evaluate(x, p, q, f, full):
     """Evaluate decision vector x with parameters p; fill q (N_Q) and f (objectives).
 
     Every Lambert branch allowed by p (revolutions P_REV_MIN..P_REV_MAX, both roots
     for M >= 1) is tried, and the one with the lowest f[0] is kept in q and f.
+
+    ``full=False`` is the scoring pass of a search: f is the same to the last bit,
+    but q is only scratch (quantities that no objective or limit uses, such as the
+    event states and the DSM's components, are not computed; ``details`` computes
+    them).
     """
     for k in range(q.shape[0]):
         q[k] = 0.0
-    r1, v1m, ok = _launch(x, p, q)
+    r1, v1m, ok = _launch(x, p, q, full)
     # The body at the flyby is the same for every branch: one ephemeris call.
     r2, vb2 = body_state_in(p, L.P_BODY_EPH, q[L.Q_T_FLYBY])
     ok = ok and np.isfinite(r2[0])  # NaN: flyby outside the body's ephemeris table
@@ -332,24 +345,27 @@ def evaluate(x, p, q, f):
         objectives(q, p, f)
         return
     first, last = branch_range(int(p[L.P_REV_MIN]), int(p[L.P_REV_MAX]))
-    trial = q.copy()
+    # Each branch is worked out in ``trial`` (every slot a score reads is written
+    # afresh by each solved branch); the full pass keeps the best branch's q.
+    trial = q.copy() if full else q
     f_trial = np.empty_like(f)
     best = np.inf
     for branch in range(first, last + 1):
-        vinf_in, solved = _loop_arc(p, trial, branch, r1, v1m, r2, vb2)
+        vinf_in, solved = _loop_arc(p, trial, branch, r1, v1m, r2, vb2, full)
         if not solved:
             continue
         if has_target:
             _target_flyby(p, trial, vinf_in, v_dep - vb2)
-            _finish(p, trial, r2, v_dep)
+            _finish(p, trial, r2, v_dep, full)
         else:
-            _finish(p, trial, r2, vb2 + _free_flyby(x, p, trial, vinf_in))
+            _finish(p, trial, r2, vb2 + _free_flyby(x, p, trial, vinf_in), full)
         trial[L.Q_OK] = 1.0
         trial[L.Q_PENALTY] = total_penalty(trial, p[L.P_PENALTY_WEIGHT])
         objectives(trial, p, f_trial)
         if f_trial[0] < best:
             best = f_trial[0]
-            q[:] = trial
+            if full:
+                q[:] = trial
             f[:] = f_trial
     if best == np.inf:
         _mark_failed(q)
@@ -361,7 +377,7 @@ def fitness(x, p):
     """Objective vector of one decision vector (length P_N_OBJ)."""
     q = np.empty(L.N_Q)
     f = np.empty(int(p[L.P_N_OBJ]))
-    evaluate(x, p, q, f)
+    evaluate(x, p, q, f, False)
     return f
 
 
@@ -374,7 +390,22 @@ def batch_fitness(xs, p):
     for i in prange(n):
         q = np.empty(L.N_Q)
         f = np.empty(n_obj)
-        evaluate(xs[i], p, q, f)
+        evaluate(xs[i], p, q, f, False)
+        out[i, :] = f
+    return out
+
+
+@njit(cache=True)
+def batch_fitness_one_thread(xs, p):
+    """``batch_fitness`` on this thread only (no thread pool is started): for worker
+    processes that each evolve one island, and for a parent that will fork them."""
+    n = xs.shape[0]
+    n_obj = int(p[L.P_N_OBJ])
+    out = np.empty((n, n_obj))
+    q = np.empty(L.N_Q)
+    f = np.empty(n_obj)
+    for i in range(n):
+        evaluate(xs[i], p, q, f, False)
         out[i, :] = f
     return out
 
@@ -384,5 +415,15 @@ def details(x, p):
     """All derived quantities (length N_Q, slots in ``layout``) of one point."""
     q = np.empty(L.N_Q)
     f = np.empty(int(p[L.P_N_OBJ]))
-    evaluate(x, p, q, f)
+    evaluate(x, p, q, f, True)
     return q
+
+
+@njit(cache=True)
+def batch_details(xs, p):
+    """``details`` of every row of xs (one row of N_Q quantities each), on this thread."""
+    out = np.empty((xs.shape[0], L.N_Q))
+    f = np.empty(int(p[L.P_N_OBJ]))
+    for i in range(xs.shape[0]):
+        evaluate(xs[i], p, out[i], f, True)
+    return out

@@ -121,12 +121,18 @@ MARGINS = [
 KNEE_MIN_DISTANCE = 0.02
 
 
-def feasible(q) -> bool:
+def feasible_rows(qs) -> np.ndarray:
     """The feasibility rule, the one place it is written: every leg solved and every limit
     margin >= 0 (from the margins, not the penalty: a zero penalty_weight must not hide a
-    violation). ``q`` is the kernel's derived-quantity array."""
-    margins = q[L.Q_MARGIN_ALT_KM : L.Q_MARGIN_ALT_KM + L.N_MARGINS]
-    return bool(q[L.Q_OK] == 1.0 and np.all(margins >= 0.0))
+    violation). ``qs``: rows of the kernel's derived quantities; one bool per row."""
+    qs = np.asarray(qs, dtype=float).reshape(-1, L.N_Q)
+    margins = qs[:, L.Q_MARGIN_ALT_KM : L.Q_MARGIN_ALT_KM + L.N_MARGINS]
+    return (qs[:, L.Q_OK] == 1.0) & np.all(margins >= 0.0, axis=1)
+
+
+def feasible(q) -> bool:
+    """``feasible_rows`` of one derived-quantity array ``q``."""
+    return bool(feasible_rows(q)[0])
 
 
 def clean(value):

@@ -173,9 +173,8 @@ class ConvergenceLog:
 
 
 def make_search(compiled, udp, settings: SearchSettings, evolver=None):
-    """The search for this problem (Search, or FrontSearch for several objectives); the
-    evolver goes to searches that take one (FrontSearch evolves in this process with
-    pygmo's batch evaluator)."""
+    """The search for this problem (Search, or FrontSearch for several objectives), its
+    islands evolved by ``evolver`` (default: in this process)."""
     cls = search_class(compiled, settings)
     if evolver is not None and "evolver" in inspect.signature(cls).parameters:
         return cls(udp, settings, evolver=evolver)
@@ -200,7 +199,10 @@ def prepare(problem, settings: SearchSettings, evolver, compiled=None):
 
 
 def islands_evolved(search, evolver) -> str:
-    """Where the islands evolved, for the record (fronts evolve here in one batch)."""
+    """Where the islands evolved, for the record (a front search says it itself: in this
+    process its batches spread over the cores)."""
+    if hasattr(search, "where"):
+        return search.where
     if getattr(search, "evolver", None) is evolver:
         return evolver.name
     return "this process (batch evaluation)"

@@ -2,10 +2,15 @@
 
 ``FrontSearch`` has the interface of ``search.Search`` (``udp``, ``settings``,
 ``state``, ``start_time``; ``done``, ``step()``, ``champion()``, ``polish(x)``) so the
-runner drives either. Each island is one population evolved in this process with
-pygmo's batch fitness evaluator (``pygmo.bfe`` calling the UDP's numba-parallel
-``batch_fitness``), which spreads the evaluations over the cores; islands are
-independent (no migration) and differ by seed.
+runner drives either. Each island is one population evolved with pygmo's batch fitness
+evaluator (``pygmo.bfe`` calling the UDP's ``batch_fitness``); islands are independent
+(no migration) and differ by seed. Where they evolve is the evolver's choice
+(``leverage.search.islands``), as for a single objective: in worker processes (or on
+engines) each island evolves on one thread, the batches evaluated on that thread;
+in this process (``SerialIslands``: one island or one worker) the islands evolve in
+turn and each batch is spread over the cores (numba-parallel ``batch_fitness``).
+Either way the same seed gives the same front: a batch's values do not depend on the
+thread that computes them, and each island's algorithm carries its random state.
 
 After every evolution the feasible members (every limit margin >= 0) of all islands
 are merged into an archive holding only mutually non-dominated designs (pygmo's
@@ -34,9 +39,10 @@ from leverage.record.design import (  # noqa: F401 (KNEE_MIN_DISTANCE re-exporte
     DERIVED,
     KNEE_MIN_DISTANCE,
     clean,
-    feasible,
+    feasible_rows,
 )
-from leverage.search.single import IslandRecord, SearchState, island_seed, min_violation
+from leverage.search.islands import SerialIslands, evolve_ahead, evolved
+from leverage.search.single import IslandRecord, SearchState, island_seed
 
 FRONT_ALGORITHM_NOTES = {
     "nsga2": "non-dominated sorting genetic algorithm II (pygmo nsga2, batch evaluation)",
@@ -181,10 +187,15 @@ class FrontSearch:
 
     log_columns = [f.name for f in fields(FrontRecord)]
 
-    def __init__(self, udp, settings):
+    def __init__(self, udp, settings, evolver=None):
         self.udp = udp
         self.settings = settings
-        self.problem = pg.problem(udp)
+        self.evolver = evolver or SerialIslands()
+        in_process = isinstance(self.evolver, SerialIslands)
+        # Islands elsewhere evolve on one thread each; and a parent that forks worker
+        # processes must not have started numba's OpenMP threads (workers.py).
+        self.problem = pg.problem(udp if in_process else udp.with_one_thread())
+        self.where = "this process (batch evaluation)" if in_process else self.evolver.name
         s = settings
         n_obj = udp.get_nobj()
         bfe = pg.bfe()
@@ -211,22 +222,26 @@ class FrontSearch:
         )
         self.reference = reference_point(udp.params)
         self.start_time = time.monotonic()
+        self._submitted = False  # the next evolution is running in the workers
         self._update_archive()
 
     @property
     def done(self) -> bool:
         return self.state.evolution >= self.settings.evolutions
 
-    def _feasible_members(self, pop):
+    def _members(self, pop):
+        """(feasible x, their f, smallest penalty) of a population: one details pass."""
         xs, fs = pop.get_x(), pop.get_f()
-        keep = [i for i, x in enumerate(xs) if feasible(self.udp.details(x))]
-        return xs[keep], fs[keep]
+        qs = self.udp.batch_details(xs)
+        keep = feasible_rows(qs)
+        return xs[keep], fs[keep], float(qs[:, L.Q_PENALTY].min())
 
-    def _update_archive(self):
+    def _update_archive(self, members=None):
         st = self.state
+        if members is None:
+            members = [self._members(pop) for pop in st.populations]
         xs, fs = [st.archive_x], [st.archive_f]
-        for pop in st.populations:
-            x, f = self._feasible_members(pop)
+        for x, f, _ in members:
             xs.append(x)
             fs.append(f)
         x, f = np.vstack(xs), np.vstack(fs)
@@ -240,10 +255,15 @@ class FrontSearch:
     def step(self) -> list:
         """One evolution of every island, then the archive; returns log rows."""
         st, s = self.state, self.settings
-        for i in range(s.islands):
-            st.populations[i] = st.algorithms[i].evolve(st.populations[i])
+        submitted, self._submitted = self._submitted, False
+        st.algorithms, st.populations = evolved(
+            self.evolver, submitted, st.algorithms, st.populations
+        )
         st.evolution += 1
-        self._update_archive()
+        if not self.done:  # the archive and log rows are made while the workers evolve
+            self._submitted = evolve_ahead(self.evolver, st.algorithms, st.populations)
+        members = [self._members(pop) for pop in st.populations]
+        self._update_archive(members)
         elapsed = time.monotonic() - self.start_time
         rows, evals = [], 0
         common = dict(
@@ -251,17 +271,16 @@ class FrontSearch:
             generations=st.evolution * s.generations_per_migration,
             wall_time_s=elapsed,
         )
-        for i, pop in enumerate(st.populations):
+        for i, (pop, (_, ff, least_penalty)) in enumerate(zip(st.populations, members)):
             f = pop.get_f()[:, 0]
             evals += pop.problem.get_fevals()
-            _, ff = self._feasible_members(pop)
             rows.append(
                 FrontRecord(
                     island=str(i),
                     evaluations=pop.problem.get_fevals(),
                     best_objective=float(f.min()),
                     median_objective=float(np.median(f)),
-                    best_violation=min_violation(self.udp, pop.get_x()),
+                    best_violation=least_penalty,
                     hypervolume=hypervolume(ff[non_dominated(ff)], self.reference),
                     **common,
                 )

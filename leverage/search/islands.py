@@ -14,6 +14,12 @@ seed and island count; only the wall time differs.
 
 ``close()`` releases processes or connections; ``abort()`` does so without waiting
 for work in progress (used when a run is interrupted).
+
+``ProcessIslands`` can also start an evolution and return at once (``submit``, then
+``collect``): a search starts the next evolution as soon as it has migrated, and
+writes its log row and checkpoint while the workers evolve (``evolve_ahead``). The
+islands the workers get are copies sent before the call returns, so the parent's own
+state stays that of the evolution just logged and checkpointed.
 """
 
 import copy
@@ -64,6 +70,17 @@ class ProcessIslands:
         pairs = self._pool.map(_evolve_pair, list(zip(algorithms, populations)))
         return [a for a, _ in pairs], [p for _, p in pairs]
 
+    def submit(self, algorithms, populations):
+        """Start one evolution of every island and return at once (``collect`` waits)."""
+        if self._pool is None:
+            self._pool = WorkerPool(self.workers)
+        self._pool.submit(_evolve_pair, list(zip(algorithms, populations)))
+
+    def collect(self):
+        """The algorithms and populations of the submitted evolution, in island order."""
+        pairs = self._pool.collect()
+        return [a for a, _ in pairs], [p for _, p in pairs]
+
     def close(self):
         if self._pool is not None:
             self._pool.close()
@@ -73,6 +90,23 @@ class ProcessIslands:
         if self._pool is not None:
             self._pool.abort()
             self._pool = None
+
+
+def evolved(evolver, submitted: bool, algorithms, populations):
+    """The islands after one more evolution: the submitted one's (``submitted``), else
+    evolved now."""
+    if submitted:
+        return evolver.collect()
+    return evolver.evolve(algorithms, populations)
+
+
+def evolve_ahead(evolver, algorithms, populations) -> bool:
+    """Start the next evolution where the evolver can run it while this process goes
+    on (worker processes); False where it cannot (this process, a cluster)."""
+    if not hasattr(evolver, "submit"):
+        return False
+    evolver.submit(algorithms, populations)
+    return True
 
 
 class ClusterIslands:

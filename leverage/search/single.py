@@ -7,6 +7,9 @@ An evolver (``leverage.islands``) evolves the islands between migrations: in tur
 this process, in worker processes, or on ipyparallel engines; all give the same
 answer. ``state`` holds everything that moves (populations, algorithms with their
 random-engine state, counts, history), which is what ``leverage.checkpoint`` saves.
+With worker processes the next evolution starts as soon as migration is done, so the
+log row (and the runner's checkpoint) of this one are made while the workers evolve;
+``state`` stays that of the evolution just finished until the next ``step``.
 """
 
 import time
@@ -16,7 +19,7 @@ import numpy as np
 import pygmo as pg
 
 from leverage.core import layout as L
-from leverage.search.islands import SerialIslands
+from leverage.search.islands import SerialIslands, evolve_ahead, evolved
 from leverage.search.udp import LeveragingUDP
 
 ALGORITHM_NOTES = {
@@ -112,7 +115,7 @@ class SearchState:
 
 def min_violation(udp: LeveragingUDP, xs: np.ndarray) -> float:
     """Smallest total penalty (objective units) among the decision vectors ``xs``."""
-    return float(min(udp.details(x)[L.Q_PENALTY] for x in xs))
+    return float(udp.batch_details(xs)[:, L.Q_PENALTY].min())
 
 
 class Search:
@@ -138,6 +141,7 @@ class Search:
             evaluations=sum(p.problem.get_fevals() for p in pops),
         )
         self.start_time = time.monotonic()
+        self._submitted = False  # the next evolution is running in the workers
 
     @property
     def done(self) -> bool:
@@ -146,9 +150,14 @@ class Search:
     def step(self) -> list:
         """One evolution on every island, then ring migration; returns log rows."""
         st, s = self.state, self.settings
-        st.algorithms, st.populations = self.evolver.evolve(st.algorithms, st.populations)
+        submitted, self._submitted = self._submitted, False
+        st.algorithms, st.populations = evolved(
+            self.evolver, submitted, st.algorithms, st.populations
+        )
         self._migrate()
         st.evolution += 1
+        if not self.done:
+            self._submitted = evolve_ahead(self.evolver, st.algorithms, st.populations)
         elapsed = time.monotonic() - self.start_time
         rows = []
         evals = 0

@@ -25,22 +25,36 @@ from leverage.core import trajectory  # noqa: E402
 class LeveragingUDP:
     """pygmo problem over the decision vector described in ``core.layout``."""
 
-    def __init__(self, params, lower, upper, n_obj=1, name="leverage"):
+    def __init__(self, params, lower, upper, n_obj=1, name="leverage", one_thread=False):
         self.params = np.ascontiguousarray(params, dtype=float)
         self.lower = np.asarray(lower, dtype=float)
         self.upper = np.asarray(upper, dtype=float)
         self.n_obj = int(n_obj)
         self.name = name
+        # True: batches are evaluated on the calling thread (islands in worker
+        # processes, one core each; and no OpenMP threads in a parent that forks them).
+        self.one_thread = bool(one_thread)
 
     @classmethod
-    def from_compiled(cls, compiled, name="leverage"):
-        return cls(compiled.params, compiled.lower, compiled.upper, compiled.n_obj, name)
+    def from_compiled(cls, compiled, name="leverage", one_thread=False):
+        return cls(
+            compiled.params, compiled.lower, compiled.upper, compiled.n_obj, name, one_thread
+        )
+
+    def with_one_thread(self) -> "LeveragingUDP":
+        """The same problem, its batches evaluated on the calling thread."""
+        return LeveragingUDP(
+            self.params, self.lower, self.upper, self.n_obj, self.name, one_thread=True
+        )
 
     def fitness(self, x):
         return trajectory.fitness(np.asarray(x, dtype=float), self.params)
 
     def batch_fitness(self, dvs):
         xs = np.asarray(dvs, dtype=float).reshape(-1, self.lower.shape[0])
+        # getattr: a UDP pickled in a checkpoint of an older version has no flag
+        if getattr(self, "one_thread", False):
+            return trajectory.batch_fitness_one_thread(xs, self.params).ravel()
         return trajectory.batch_fitness(xs, self.params).ravel()
 
     def has_batch_fitness(self):
@@ -64,3 +78,8 @@ class LeveragingUDP:
     def details(self, x):
         """All derived quantities of one point (slots in core.layout)."""
         return trajectory.details(np.asarray(x, dtype=float), self.params)
+
+    def batch_details(self, xs):
+        """``details`` of every row of xs (rows of N_Q quantities)."""
+        xs = np.asarray(xs, dtype=float).reshape(-1, self.lower.shape[0])
+        return trajectory.batch_details(xs, self.params)

@@ -76,6 +76,7 @@ class WorkerPool:
         ctx = mp.get_context(start_method)
         self._workers = []
         self._busy = set()
+        self._pending = None  # (item count, run) of a submitted run
         # SIG_IGN survives exec, so a Ctrl-C while a worker boots cannot reach it.
         previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
         try:
@@ -96,20 +97,24 @@ class WorkerPool:
     def pids(self) -> list:
         return [proc.pid for proc, _ in self._workers]
 
-    def imap_unordered(self, fn, items):
-        """Yield ``(index, fn(items[index]))`` as workers finish, in finishing order."""
-        queue = list(enumerate(items))[::-1]
-        owner = {}  # pipe -> (index, process)
-
-        def dispatch(proc, conn):
-            if queue:
-                index, item = queue.pop()
-                conn.send((fn, item))
-                owner[conn] = (index, proc)
-                self._busy.add(conn)
-
+    def _start(self, fn, items) -> dict:
+        """Send the first items to the workers at once; the rest go as workers free up
+        (in ``_results``)."""
+        run = {"fn": fn, "queue": list(enumerate(items))[::-1], "owner": {}}
         for proc, conn in self._workers:
-            dispatch(proc, conn)
+            self._dispatch(run, proc, conn)
+        return run
+
+    def _dispatch(self, run, proc, conn):
+        if run["queue"]:
+            index, item = run["queue"].pop()
+            conn.send((run["fn"], item))
+            run["owner"][conn] = (index, proc)
+            self._busy.add(conn)
+
+    def _results(self, run):
+        """Yield ``(index, result)`` of a started run as workers finish."""
+        owner = run["owner"]  # pipe -> (index, process)
         while owner:
             for conn in wait(list(owner), timeout=POLL_S):
                 index, proc = owner.pop(conn)
@@ -123,14 +128,38 @@ class WorkerPool:
                 self._busy.discard(conn)
                 if not ok:
                     raise WorkerFailed(value)
-                dispatch(proc, conn)
+                self._dispatch(run, proc, conn)
                 yield index, value
+
+    def imap_unordered(self, fn, items):
+        """Yield ``(index, fn(items[index]))`` as workers finish, in finishing order."""
+        yield from self._results(self._start(fn, items))
 
     def map(self, fn, items) -> list:
         """``[fn(item) for item in items]`` across the workers, in input order."""
         items = list(items)
         out = [None] * len(items)
         for index, value in self.imap_unordered(fn, items):
+            out[index] = value
+        return out
+
+    def submit(self, fn, items) -> None:
+        """Start ``map(fn, items)`` and return at once (the items are sent, so the caller
+        may change its own objects meanwhile); ``collect()`` waits for its list. One run
+        at a time."""
+        if self._pending is not None:
+            raise RuntimeError("a submitted run is still being worked on")
+        items = list(items)
+        self._pending = (len(items), self._start(fn, items))
+
+    def collect(self) -> list:
+        """The results of the submitted run, in input order (waits for them)."""
+        if self._pending is None:
+            raise RuntimeError("nothing was submitted")
+        n, run = self._pending
+        self._pending = None
+        out = [None] * n
+        for index, value in self._results(run):
             out[index] = value
         return out
 
@@ -158,3 +187,4 @@ class WorkerPool:
             conn.close()
         self._workers = []
         self._busy = set()
+        self._pending = None

@@ -25,6 +25,7 @@ from leverage.core.kepler import (
     eccentric_from_mean,
     elements_from_state,
     orbit_energy,
+    orbit_shape,
     propagate,
     state_from_elements,
     true_from_eccentric,
@@ -434,3 +435,38 @@ def test_rectilinear_state_gives_nan_elements_not_an_error():
     """Zero angular momentum has no orbit plane (common practice); never raise."""
     el = elements_from_state(MU_EARTH, np.array([7000.0, 0.0, 0.0]), np.array([1.0, 0.0, 0.0]))
     assert all(np.isnan(v) for v in el)
+
+
+def _bits(values):
+    return np.array(values, dtype=float).view(np.int64).tolist()
+
+
+@settings(deadline=None, max_examples=300)
+@given(
+    r=st.lists(st.floats(-2e8, 2e8), min_size=3, max_size=3),
+    v=st.lists(st.floats(-60.0, 60.0), min_size=3, max_size=3),
+)
+def test_orbit_shape_is_bit_for_bit_the_first_three_elements(r, v):
+    """orbit_shape (the fitness's lean a, e, i) must equal elements_from_state's
+    (poliastro's rv2coe) to the last bit, NaN where rv2coe raises."""
+    r, v = np.array(r), np.array(v)
+    assert _bits(orbit_shape(MU_EARTH, r, v)) == _bits(elements_from_state(MU_EARTH, r, v)[:3])
+
+
+@pytest.mark.parametrize(
+    "r, v",
+    [
+        ([7000.0, 0.0, 0.0], [1.0, 0.0, 0.0]),  # rectilinear: no plane
+        ([0.0, 0.0, 0.0], [1.0, 2.0, 3.0]),  # at the centre
+        ([7000.0, 0.0, 0.0], [0.0, 7.546053290107541, 0.0]),  # circular, equatorial
+        ([7000.0, 0.0, 0.0], [0.0, 8.0, 0.0]),  # equatorial ellipse
+        ([7000.0, 0.0, 0.0], [0.0, 5.0, 5.0]),  # inclined ellipse
+        ([7000.0, 0.0, 0.0], [0.0, 0.0, 10.671887]),  # near-parabolic, polar
+        ([7000.0, 0.0, 0.0], [3.0, 9.0, 4.0]),  # hyperbola
+        ([7000.0, 100.0, 0.0], [-20.0, 0.0, 0.1]),  # inbound hyperbola
+        ([np.nan, 0.0, 0.0], [0.0, 8.0, 0.0]),
+    ],
+)
+def test_orbit_shape_matches_on_special_states(r, v):
+    r, v = np.array(r), np.array(v)
+    assert _bits(orbit_shape(MU_EARTH, r, v)) == _bits(elements_from_state(MU_EARTH, r, v)[:3])

@@ -33,7 +33,7 @@ from leverage.astro import bodies
 from leverage.core import layout as L
 from leverage.core.ephemeris import EPHEMERIS_SIZE, body_state_in
 from leverage.core.kepler import propagate
-from leverage.core.trajectory import details
+from leverage.core.trajectory import batch_fitness, details, fitness, objectives
 from leverage.problem.load import load_problem
 
 DEMO = Path(__file__).resolve().parents[2] / "problems" / "demo.toml"
@@ -251,3 +251,24 @@ def test_off_resonance_loop_needs_a_dsm():
     q = details(x, p)
     assert q[L.Q_OK] == 1.0
     assert q[L.Q_DSM] > 0.05
+
+
+BUNDLED = sorted((Path(__file__).resolve().parents[2] / "problems").glob("*.toml"))
+
+
+@pytest.mark.parametrize("path", BUNDLED, ids=lambda p: p.stem)
+def test_scoring_pass_gives_the_objectives_of_the_full_pass(path):
+    """fitness and batch_fitness skip what only the record needs; their objectives must
+    be those of details' quantities to the last bit (same seed, same champion), on
+    random points in and a little outside the bounds (failed legs included)."""
+    c = load_problem(path).compile()
+    rng = np.random.default_rng(3)
+    xs = c.lower + (rng.random((400, c.lower.size)) * 1.2 - 0.1) * (c.upper - c.lower)
+    batch = batch_fitness(xs, c.params)
+    for x, fb in zip(xs, batch):
+        f = np.empty(c.n_obj)
+        objectives(details(x, c.params), c.params, f)
+        one = fitness(x, c.params)
+        assert (
+            f.view(np.int64).tolist() == one.view(np.int64).tolist() == fb.view(np.int64).tolist()
+        )

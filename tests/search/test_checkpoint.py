@@ -205,3 +205,48 @@ def test_the_largest_allowed_seed_and_island_fit_pygmo():
     assert len(pop) == 8
     algo = pg.algorithm(pg.sade(gen=1, seed=largest))
     assert algo.evolve(pop).champion_f[0] <= pop.champion_f[0]
+
+
+@pytest.mark.slow
+def test_a_front_search_gives_the_same_front_in_worker_processes(problems_dir, tmp_path):
+    # In worker processes each island evolves on one thread (one-thread batches); in
+    # this process each batch is spread over the cores. Same seed, same front and log.
+    problem = load_problem(problems_dir / "trade-front.toml")
+    over = {"islands": 2, "population": 16, "generations": 30, "generations_per_migration": 10}
+    serial, _ = small_search(problem, SerialIslands(), **over)
+    x_ref, f_ref = run_out(serial)
+    pool = ProcessIslands(2)
+    try:
+        in_workers, settings = small_search(problem, pool, **over)
+        in_workers.step()  # the next evolution now runs in the workers meanwhile
+        checkpoint.save(tmp_path, problem, settings, in_workers)
+        x, f = run_out(in_workers)
+    finally:
+        pool.close()
+    assert in_workers.where == "processes" and serial.where.startswith("this process")
+    np.testing.assert_array_equal(x, x_ref)
+    np.testing.assert_array_equal(f, f_ref)
+    np.testing.assert_array_equal(in_workers.state.archive_f, serial.state.archive_f)
+    assert [r.best_violation for r in in_workers.state.history] == [
+        r.best_violation for r in serial.state.history
+    ]
+    # the checkpoint written while the workers evolved holds the first evolution
+    assert checkpoint.load(tmp_path)["state"].evolution == 1
+
+
+def test_worker_pool_submit_returns_at_once_and_collect_keeps_the_order():
+    from leverage.search.workers import WorkerPool
+
+    pool = WorkerPool(2)
+    try:
+        items = [3, 1, 2]
+        pool.submit(abs, items)
+        with pytest.raises(RuntimeError):
+            pool.submit(abs, items)  # one run at a time
+        items.append(4)  # the items were sent: changing the list changes nothing
+        assert pool.collect() == [3, 1, 2]
+        with pytest.raises(RuntimeError):
+            pool.collect()
+        assert pool.map(abs, [-5, 6]) == [5, 6]
+    finally:
+        pool.close()

@@ -163,7 +163,11 @@ def _target_leg(x, p, q, r2):
     r3, v3_body = body_state_in(p, L.P_TARGET_EPH, t3)
     if not np.isfinite(r3[0]):  # outside the target's ephemeris table
         return v3_body, False
-    v_dep, v_arr, ok = lambert(p[L.P_MU_SUN], r2, r3, t3 - t2, 0, True, True)
+    # Typed, not literal, arguments: literal ones made numba compile a second copy of
+    # the whole Izzo solver for this one call (cold compile, benchmarks/README.md).
+    v_dep, v_arr, ok = lambert(
+        p[L.P_MU_SUN], r2, r3, t3 - t2, np.int64(0), np.bool_(True), np.bool_(True)
+    )
     if not ok:
         return v_dep, False
     vinf_arr = _norm(v_arr - v3_body)

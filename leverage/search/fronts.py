@@ -35,12 +35,7 @@ import pygmo as pg
 from leverage.core import layout as L
 from leverage.fileio import write_atomic
 from leverage.problem.load import check_algorithm
-from leverage.record.design import (  # noqa: F401 (KNEE_MIN_DISTANCE re-exported)
-    DERIVED,
-    KNEE_MIN_DISTANCE,
-    clean,
-    feasible_rows,
-)
+from leverage.record.design import DERIVED, clean, feasible_rows
 from leverage.search.islands import SerialIslands, evolve_ahead, evolved
 from leverage.search.single import IslandRecord, SearchState, island_seed
 

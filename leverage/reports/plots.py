@@ -742,8 +742,9 @@ def launch_window(record, folder) -> Picture | None:
         ax.set_ylabel(shown.label())
         name = (meta.get("problem") or record.get("problem") or {}).get("name", "")
         ax.set_title(f"{name}: best design per launch slice ({path.name})")
-        ax.legend(loc="best", fontsize="small")
-        fig.subplots_adjust(left=0.11, right=0.97, bottom=0.14, top=0.92)
+        # Below the axes: inside, it hid slices' bars wherever it went.
+        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=3, fontsize="small")
+        fig.subplots_adjust(left=0.11, right=0.97, bottom=0.28, top=0.93)
     return Picture(_save(fig, folder / "launch_window.png"), artists)
 
 

@@ -77,7 +77,9 @@ def random_points(compiled, n, seed=7):
 @njit
 def kernel_pair_inputs(xs, p):
     """Per point: launch state (r0 km, v0 km/s) and the launch, DSM and flyby epochs
-    (s TDB), as the fitness builds them (made before timing the kernel pair)."""
+    (s TDB), as the fitness builds them (made before timing the kernel pair). Written
+    out here rather than called from ``trajectory``: compare_trees.py runs this file
+    against older checkouts, which have no such entry point."""
     out = np.empty((xs.shape[0], 9))
     deg = np.pi / 180.0
     for i in range(xs.shape[0]):

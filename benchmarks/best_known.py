@@ -48,6 +48,7 @@ import pygmo as pg
 from benchmarks.common import BENCH_PROBLEMS, DEMO, print_footer, print_header
 from leverage.core import layout as L
 from leverage.core import trajectory
+from leverage.core.constants import DAY_S
 from leverage.problem.load import load_problem
 from leverage.search.udp import LeveragingUDP
 
@@ -318,7 +319,7 @@ def narrowed_text(text: str, launch_days=None, loop_days=None) -> str:
 
     if launch_days is not None:
         for key, day in zip(("window_open_utc", "window_close_utc"), launch_days):
-            text = sub(key, f'"{utc_iso(day * 86400.0)}"', text)
+            text = sub(key, f'"{utc_iso(day * DAY_S)}"', text)
     if loop_days is not None:
         text = sub("duration_days", f"[{loop_days[0]:.3f}, {loop_days[1]:.3f}]", text)
     return text

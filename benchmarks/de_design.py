@@ -26,8 +26,8 @@ from benchmarks.common import print_footer, print_header
 from leverage.astro import bodies
 from leverage.astro import de_tables as D
 from leverage.core import ephemeris as E
+from leverage.core.constants import DAY_S
 
-DAY_S = 86400.0
 T0 = (2029 - 2000) * 365.25 * DAY_S
 T1 = (2037 - 2000) * 365.25 * DAY_S
 

@@ -20,7 +20,7 @@ from pathlib import Path
 import numpy as np
 
 from leverage.about import CAUTION, __version__
-from leverage.astro import times
+from leverage.astro import bodies, times
 from leverage.astro.ephemerides import EQUATORIAL_TO_ECLIPTIC
 from leverage.core.constants import AU_KM, DAY_S
 from leverage.record.arcs import design_arcs
@@ -405,8 +405,9 @@ def plot_png(rec, record, arcs) -> bytes:
             arc.r_km[:, 0] / au,
             arc.r_km[:, 1] / au,
             "--",
-            color="0.55",
-            lw=1.0,
+            color="black",
+            lw=0.9,
+            zorder=3,  # over the refined arcs, which it nearly covers
             label="patched conic" if k == 0 else None,
         )
     colours = ["tab:blue", "tab:orange", "tab:green"]
@@ -431,12 +432,17 @@ def plot_png(rec, record, arcs) -> bytes:
         fontsize=10,
     )
     ax.legend(fontsize=7, loc="lower left")
+    planet = bodies.planet(record["problem"]["body"])
     circle = np.linspace(0, 2 * math.pi, 200)
-    ax2.plot(6.378 * np.cos(circle), 6.378 * np.sin(circle), "k-", lw=1)
+    r_body = planet.equatorial_radius_km / 1e3
+    ax2.plot(r_body * np.cos(circle), r_body * np.sin(circle), "k-", lw=1)
     ax2.set_aspect("equal")
-    ax2.set_xlabel("x from the flyby body (1000 km, ecliptic axes)")
+    ax2.set_xlabel(f"x from {planet.name} (1000 km, ecliptic axes)")
     ax2.set_ylabel("y (1000 km)")
-    ax2.set_title("within 300,000 km of the flyby body (refined)", fontsize=10)
+    ax2.set_title(
+        f"within 300,000 km of {planet.name}: departure and return flyby (refined)",
+        fontsize=10,
+    )
     ax2.legend(fontsize=7)
     buf = io.BytesIO()
     fig.savefig(buf, format="png")

@@ -1,4 +1,4 @@
-"""The polish lands inside the limits."""
+"""The polish lands inside the limits; the widened box of the islands clips to the true one."""
 
 import math
 
@@ -10,7 +10,7 @@ from leverage.record.design import feasible
 from leverage.run.runner import make_search, settings_from
 from leverage.search.islands import SerialIslands
 from leverage.search.single import inside_limits
-from leverage.search.udp import LeveragingUDP
+from leverage.search.udp import LeveragingUDP, WidenedUDP
 
 # A demo design with its launch C3 on the limit (24 km^2/s^2 less the 0.1 design margin):
 # a search's champion, launch v-infinity sqrt(23.9) km/s.
@@ -57,3 +57,19 @@ def test_polish_from_a_point_past_the_limit_ends_inside(demo_path):
     q = udp.details(xp)
     assert feasible(q) and used > 0
     assert f[0] == udp.fitness(xp)[0] < udp.fitness(x)[0] + 0.001
+
+
+def test_widened_box_evaluates_the_clipped_point(demo_path):
+    _, udp = demo_udp(demo_path)
+    wide = WidenedUDP.around(udp, 0.05)
+    low, high = wide.get_bounds()
+    span = udp.upper - udp.lower
+    assert np.allclose(low, udp.lower - 0.05 * span) and np.allclose(high, udp.upper + 0.05 * span)
+    x = np.array(DEMO_ON_C3)
+    x[1] = udp.lower[1] - 0.02 * span[1]  # launch v-infinity below its bound
+    clipped = x.copy()
+    clipped[1] = udp.lower[1]
+    assert np.array_equal(wide.clip(x), clipped)
+    assert wide.fitness(x)[0] == udp.fitness(clipped)[0]
+    assert wide.batch_fitness(np.concatenate([x, clipped]))[0] == udp.fitness(clipped)[0]
+    assert np.array_equal(wide.details(x), udp.details(clipped), equal_nan=True)

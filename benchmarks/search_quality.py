@@ -142,10 +142,35 @@ def main(argv=None) -> int:
         metavar="FILE",
         help="write every run (problem, algorithm, seed, objective, design) to this JSON file",
     )
+    ap.add_argument(
+        "--bound-widening",
+        type=float,
+        metavar="FRACTION",
+        help="islands search the box widened by this fraction of each range, clipped to "
+        "the true bounds before the kernel (search.single.BOUND_WIDENING; --in-process)",
+    )
+    ap.add_argument(
+        "--restarts",
+        type=int,
+        metavar="K",
+        help="K restart epochs of equal length, the best champion kept "
+        "(search.single.RESTARTS; --in-process)",
+    )
     ap.add_argument("--smoke", action="store_true", help="tiny: demo, 2 seeds, 1 evolution")
     args = ap.parse_args(argv)
-    if not args.in_process and (args.generations_per_migration or args.polish):
-        ap.error("--generations-per-migration and --polish need --in-process")
+    if not args.in_process and (
+        args.generations_per_migration or args.polish or args.bound_widening is not None
+    ):
+        ap.error("--generations-per-migration, --polish and --bound-widening need --in-process")
+    if args.restarts:
+        from leverage.search import single
+
+        single.RESTARTS = args.restarts
+        single.MIN_EPOCH_GENERATIONS = 1  # as many epochs as asked, however short
+    if args.bound_widening is not None:
+        from leverage.search import single
+
+        single.BOUND_WIDENING = args.bound_widening
     if not args.file_settings:
         defaults = keys_by_section()["search"]
         for name in TUNABLE:
@@ -171,6 +196,7 @@ def main(argv=None) -> int:
         f"settings: {source}, "
         + (", ".join(f"{k} {v}" for k, v in overrides.items()) or "no overrides")
         + ("; in this process (search and polish only)" if args.in_process else "")
+        + (f"; bound widening {args.bound_widening}" if args.bound_widening is not None else "")
         + f"; seeds 1..{args.seeds}; hit = feasible and within {TOLERANCE * 1000:.0f} m/s "
         "of the best-known objective"
     )

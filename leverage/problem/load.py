@@ -607,7 +607,7 @@ def _check_trade_relations(source: str, values: dict, target, vehicle) -> None:
     kind = goal["kind"]
     front = kind == "front"
     if search["algorithm"] is None:
-        search["algorithm"] = "nsga2" if front else "sade"
+        search["algorithm"] = "nsga2" if front else "de"
     if front:
         search["polish"] = "none"  # a single-objective polish does not apply to a front
     check_algorithm(source, "[search] algorithm", search["algorithm"], front, search["population"])

@@ -19,7 +19,7 @@ if "OMP_WAIT_POLICY" not in os.environ:
 
 import numpy as np  # noqa: E402
 
-from leverage.core import trajectory  # noqa: E402
+from leverage.core import box, trajectory  # noqa: E402
 
 
 class LeveragingUDP:
@@ -83,3 +83,42 @@ class LeveragingUDP:
         """``details`` of every row of xs (rows of N_Q quantities)."""
         xs = np.asarray(xs, dtype=float).reshape(-1, self.lower.shape[0])
         return trajectory.batch_details(xs, self.params)
+
+
+class WidenedUDP(LeveragingUDP):
+    """The same problem seen by a global optimiser over a box widened by ``widen`` of
+    each variable's range on both sides; every point is clipped to the true bounds
+    before the kernel, so the fitness of a point outside is that of its clipped image.
+
+    pygmo's DE variants re-sample a trial point that leaves the box, so an optimum on a
+    bound is reached only by sampling the bound itself; in the widened box every trial
+    past the bound (up to ``widen``) lands on it. Record and polish the clipped point
+    (``clip``) with a ``LeveragingUDP`` over the true bounds.
+    """
+
+    def __init__(self, params, lower, upper, n_obj=1, name="leverage", widen=0.0):
+        super().__init__(params, lower, upper, n_obj, name)
+        self.widen = float(widen)
+        span = self.upper - self.lower
+        self.box_lower = self.lower - self.widen * span
+        self.box_upper = self.upper + self.widen * span
+
+    @classmethod
+    def around(cls, udp: LeveragingUDP, widen: float) -> "WidenedUDP":
+        return cls(udp.params, udp.lower, udp.upper, udp.n_obj, udp.name, widen)
+
+    def clip(self, x):
+        return np.minimum(np.maximum(np.asarray(x, dtype=float), self.lower), self.upper)
+
+    def fitness(self, x):
+        return box.fitness_clipped(np.asarray(x, dtype=float), self.lower, self.upper, self.params)
+
+    def batch_fitness(self, dvs):
+        xs = self.clip(np.asarray(dvs, dtype=float).reshape(-1, self.lower.shape[0]))
+        return trajectory.batch_fitness(xs, self.params).ravel()
+
+    def get_bounds(self):
+        return (self.box_lower, self.box_upper)
+
+    def details(self, x):
+        return trajectory.details(self.clip(x), self.params)

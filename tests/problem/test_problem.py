@@ -78,7 +78,7 @@ def test_minimal_file_gets_the_documented_defaults(tmp_path):
     assert v["goal"]["kind"] == "min_dsm"
     assert v["goal"]["dsm_budget_km_s"] is None
     s = v["search"]
-    assert (s["algorithm"], s["islands"], s["seed"]) == ("sade", 2, 1)
+    assert (s["algorithm"], s["islands"], s["seed"]) == ("de", 2, 1)
     assert s["population"] >= 8 and s["generations"] >= 1
 
 

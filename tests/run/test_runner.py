@@ -112,7 +112,12 @@ def test_known_answer_resonant_return_needs_no_dsm(loop, revs, tmp_path, full_si
     record = best(out)
     d = record["derived"]
     assert d["dsm"]["value"] < 1e-3  # km/s: under 1 m/s
-    assert abs(d["vinf_gain"]["value"]) < 0.01  # km/s
+    # The search's Earth is DE421's Earth, not the Earth-Moon barycentre: it moves about
+    # the barycentre at the Moon's speed over 1 + EMRAT, 1.02 / 82.3 = 12.4 m/s (both
+    # from memory), so launch and return v-infinity of a zero-DSM resonant loop differ
+    # by up to twice that with the Moon's phase (measured 12.0-12.9 m/s at DSM 2e-11
+    # km/s, loop 365.266 days, with the de default search).
+    assert abs(d["vinf_gain"]["value"]) < 0.025  # km/s
     assert 1.0 - 1e-9 <= d["c3"]["value"] <= 9.0 + 1e-9
 
 

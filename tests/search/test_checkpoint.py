@@ -250,3 +250,39 @@ def test_worker_pool_submit_returns_at_once_and_collect_keeps_the_order():
         assert pool.map(abs, [-5, 6]) == [5, 6]
     finally:
         pool.close()
+
+
+@pytest.mark.slow
+def test_a_restart_gives_the_same_champion_in_workers_and_after_a_resume(
+    demo_path, tmp_path, monkeypatch
+):
+    """Two restart epochs of 3 evolutions each: the restart must replace the populations
+    before the workers start the next evolution, and a checkpoint taken right after it
+    must resume to the same answer."""
+    from leverage.search import single
+
+    monkeypatch.setattr(single, "MIN_EPOCH_GENERATIONS", 30)
+    problem = load_problem(demo_path)
+    straight, _ = small_search(problem)
+    x_ref, f_ref = run_out(straight)
+    assert len(straight.state.kept) == 1  # the first epoch's champion, kept aside
+
+    pool = ProcessIslands(2)
+    try:
+        x_w, f_w = run_out(small_search(problem, pool)[0])
+    finally:
+        pool.close()
+    np.testing.assert_array_equal(x_w, x_ref)
+    assert f_w[0] == f_ref[0]
+
+    first, settings = small_search(problem)
+    for _ in range(3):
+        first.step()
+    assert len(first.state.kept) == 1  # restarted at the end of evolution 3
+    checkpoint.save(tmp_path, problem, settings, first)
+    resumed, _ = small_search(problem)
+    checkpoint.restore(resumed, checkpoint.load(tmp_path))
+    x_r, f_r = run_out(resumed)
+    np.testing.assert_array_equal(x_r, x_ref)
+    assert f_r[0] == f_ref[0]
+    assert resumed.state.evaluations == straight.state.evaluations

@@ -129,12 +129,15 @@ def _event_label(name, ev, record) -> str:
     return f"{EVENT_NAMES[name]} {date}{extra}"
 
 
-def _label_place(r_au, inward: bool) -> dict:
-    """Text offset (points) and alignment that push a label toward or away from the Sun."""
+def _label_place(r_au, away_from=None) -> dict:
+    """Text offset (points) and alignment that push a label away from the Sun, or, given
+    ``away_from`` (another labelled point, au), sideways along the orbit away from it:
+    toward the Sun the label covered the Sun once the view was zoomed out to 5 au."""
     u = np.asarray(r_au[:2], float)
     u = u / (np.linalg.norm(u) or 1.0)
-    if inward:
-        u = -u
+    if away_from is not None:
+        side = np.array([-u[1], u[0]])
+        u = side if side @ (np.asarray(r_au[:2]) - np.asarray(away_from[:2])) >= 0 else -side
     ha = "left" if u[0] > 0.35 else "right" if u[0] < -0.35 else "center"
     va = "bottom" if u[1] > 0.35 else "top" if u[1] < -0.35 else "center"
     return {"xytext": (14 * u[0], 14 * u[1]), "ha": ha, "va": va}
@@ -176,6 +179,20 @@ def trajectory(record, folder) -> Picture:
         artists["sun"] = top.scatter(
             [0.0], [0.0], s=110, color=COLOURS["sun"], zorder=3, edgecolor="#a07800", label="Sun"
         )
+        aphelion = (record.get("margins") or {}).get("min_outgoing_aphelion") or {}
+        if aphelion.get("limit") is not None:
+            # The goal as a circle: the outgoing orbit must reach it (in the top view, where
+            # the ecliptic-plane distance is within cos(i) of the true one).
+            turn = np.linspace(0.0, 2.0 * np.pi, 361)
+            radius = float(aphelion["limit"])
+            (artists["aphelion goal"],) = top.plot(
+                radius * np.cos(turn),
+                radius * np.sin(turn),
+                ls=":",
+                lw=1.0,
+                color=COLOURS["outgoing"],
+                label=f"required aphelion {radius:g} au",
+            )
         horizontal, vertical, _ = side_axes(record)
         for arc in arcs:
             colour = COLOURS.get(arc.key, "#444444")
@@ -212,7 +229,7 @@ def trajectory(record, folder) -> Picture:
             top.annotate(
                 _event_label(name, ev[name], record),
                 (r[0], r[1]),
-                **_label_place(r, inward=name == "flyby"),
+                **_label_place(r, ev["launch"]["r"] / AU_KM if name == "flyby" else None),
                 fontsize=8.5,
                 color=COLOURS["text"],
                 textcoords="offset points",

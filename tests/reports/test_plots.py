@@ -77,6 +77,16 @@ def test_trajectory_draws_the_records_arcs_and_events(folder, record):
     assert np.allclose(pic.artists["sun"].get_offsets()[0], [0.0, 0.0])
 
 
+def test_an_aphelion_goal_is_drawn_as_a_circle_of_its_radius_in_au(folder, record):
+    assert "aphelion goal" not in plots.trajectory(record, folder).artists  # demo: no such goal
+    goal = json.loads(json.dumps(record))
+    goal["margins"]["min_outgoing_aphelion"] = {"limit": 1.3, "unit": "au", "margin": 0.01}
+    circle = plots.trajectory(goal, folder).artists["aphelion goal"]
+    radius = np.hypot(circle.get_xdata(), circle.get_ydata())
+    assert np.allclose(radius, 1.3)  # au, as stated in the record (not km, not a diameter)
+    assert circle.get_label() == "required aphelion 1.3 au"
+
+
 def test_side_view_looks_across_the_outgoing_node_line(record):
     horizontal, vertical, looking = plots.side_axes(record)
     ev = event_states(record)

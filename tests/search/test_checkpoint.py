@@ -42,6 +42,15 @@ def run_out(search):
     return search.champion()
 
 
+def run_in_workers(problem):
+    """``run_out`` of the small search with its 2 islands in 2 worker processes."""
+    pool = ProcessIslands(2)
+    try:
+        return run_out(small_search(problem, pool)[0])
+    finally:
+        pool.close()
+
+
 @pytest.mark.slow
 def test_save_load_continue_gives_the_same_champion(demo_path, tmp_path):
     problem = load_problem(demo_path)
@@ -82,11 +91,7 @@ def test_same_seed_and_islands_same_champion_whatever_the_evolver(demo_path):
     problem = load_problem(demo_path)
     x1, f1 = run_out(small_search(problem)[0])
     x2, f2 = run_out(small_search(problem)[0])
-    pool = ProcessIslands(2)
-    try:
-        x3, f3 = run_out(small_search(problem, pool)[0])
-    finally:
-        pool.close()
+    x3, f3 = run_in_workers(problem)
     np.testing.assert_array_equal(x1, x2)
     np.testing.assert_array_equal(x1, x3)
     assert f1[0] == f2[0] == f3[0]
@@ -267,11 +272,7 @@ def test_a_restart_gives_the_same_champion_in_workers_and_after_a_resume(
     x_ref, f_ref = run_out(straight)
     assert len(straight.state.kept) == 1  # the first epoch's champion, kept aside
 
-    pool = ProcessIslands(2)
-    try:
-        x_w, f_w = run_out(small_search(problem, pool)[0])
-    finally:
-        pool.close()
+    x_w, f_w = run_in_workers(problem)
     np.testing.assert_array_equal(x_w, x_ref)
     assert f_w[0] == f_ref[0]
 

@@ -68,6 +68,10 @@ def demo_point(u, revolutions=None):
     return x, p, q
 
 
+# Found by this test: a Lambert arc of 179.94 deg (DSM point and flyby almost opposite
+# across the Sun), where the arc's plane is ill-defined (inclination 56 deg).
+NEAR_HALF_TURN = [0.203125, 0.9375, 0.251953125, 0.20703125, 0.404296875, 0.92578125, 0.0, 0.0]
+
 # Found by this test: a near-parabolic Lambert arc (e = 0.985, 41 km/s of DSM) on which
 # poliastro's universal-variable iteration did not settle at that one time of flight;
 # core.kepler.propagate (own safeguarded solver) must handle it.
@@ -86,6 +90,7 @@ NEAR_PARABOLIC = [
 @settings(deadline=None, max_examples=200)
 @given(u=POINTS, revs=st.sampled_from([None, (0, 2)]))
 @example(u=NEAR_PARABOLIC, revs=None)
+@example(u=NEAR_HALF_TURN, revs=None)
 def test_identities_of_one_evaluation(u, revs):
     x, p, q = demo_point(u, revs)
     assume(q[L.Q_OK] == 1.0)
@@ -130,9 +135,16 @@ def test_identities_of_one_evaluation(u, revs):
     r2p, v2p, ok = propagate(MU_SUN, vec(q, L.Q_R_DSM), vec(q, L.Q_V_DSM_AFTER), t2 - t1)
     assert ok
     # Izzo's solver stops at a 1e-10 relative tolerance; measured over 1500 random demo
-    # points: landing within 6e-6 km (6 mm), arrival velocity within 1.1e-12 km/s.
-    assert np.linalg.norm(r2p - r2) < 5e-5  # km
-    np.testing.assert_allclose(v2p, vec(q, L.Q_V_FLYBY_IN), rtol=0, atol=1e-11)
+    # points: landing within 6e-6 km (6 mm), arrival velocity within 1.1e-12 km/s. Near
+    # a 180 deg transfer the arc's plane is ill-defined and the landing error grows as
+    # 1/sin(angle): hypothesis found 2.0e-4 km at 179.94 deg (sin 1.0e-3).
+    sin_angle = np.linalg.norm(np.cross(r2, vec(q, L.Q_R_DSM))) / (
+        np.linalg.norm(r2) * np.linalg.norm(vec(q, L.Q_R_DSM))
+    )
+    assert np.linalg.norm(r2p - r2) < 5e-5 / max(sin_angle, 1e-6)  # km
+    np.testing.assert_allclose(
+        v2p, vec(q, L.Q_V_FLYBY_IN), rtol=0, atol=1e-11 / max(sin_angle, 1e-6)
+    )
 
     # Flyby: |v_inf in| as stored, gain = in - launch, |v_inf out| = |v_inf in|.
     vin = vec(q, L.Q_V_FLYBY_IN) - vb2

@@ -36,7 +36,7 @@ from .kepler import orbit_shape, propagate
 from .lambert import branch_range, branch_revs, lambert
 from .mass import injected_mass, mass_ratio
 from .penalties import total_penalty
-from .vec3 import dot
+from .vec3 import dot, norm
 
 FAIL_OBJECTIVE = 1.0e3  # objective value of a point whose legs could not be solved
 _ECLIPTIC_POLE = np.array([0.0, 0.0, 1.0])
@@ -48,11 +48,6 @@ def _put(q, slot, vec):
     q[slot] = vec[0]
     q[slot + 1] = vec[1]
     q[slot + 2] = vec[2]
-
-
-@njit(cache=True)
-def _norm(v):
-    return np.sqrt(dot(v, v))
 
 
 @njit(cache=True)
@@ -170,7 +165,7 @@ def _target_leg(x, p, q, r2):
     )
     if not ok:
         return v_dep, False
-    vinf_arr = _norm(v_arr - v3_body)
+    vinf_arr = norm(v_arr - v3_body)
     q[L.Q_T_ARRIVAL] = t3
     q[L.Q_VINF_ARRIVAL] = vinf_arr
     q[L.Q_ARRIVAL_DV] = vinf_arr if p[L.P_ARRIVAL_BURN] == 1.0 else 0.0
@@ -213,8 +208,8 @@ def _loop_arc(p, q, branch, r1, v1m, r2, vb2, full):
         return v2, False
     dsm = v1p - v1m
     vinf_in = v2 - vb2
-    speed_in = _norm(vinf_in)
-    dsm_mag = _norm(dsm)
+    speed_in = norm(vinf_in)
+    dsm_mag = norm(dsm)
     q[L.Q_DSM] = dsm_mag
     q[L.Q_VINF_IN] = speed_in
     q[L.Q_GAIN] = speed_in - q[L.Q_VINF_LAUNCH]
@@ -264,7 +259,7 @@ def _target_flyby(p, q, vinf_in, vinf_out):
     """
     mu_b = p[L.P_BODY_MU]
     speed_in = q[L.Q_VINF_IN]
-    speed_out = _norm(vinf_out)
+    speed_out = norm(vinf_out)
     cos_turn = dot(vinf_in, vinf_out) / (speed_in * speed_out)
     turn = np.arccos(min(1.0, max(-1.0, cos_turn)))
     rp = powered_periapsis(mu_b, speed_in, speed_out, turn)

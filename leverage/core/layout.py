@@ -160,3 +160,31 @@ Q_V_ARRIVAL = 78  # spacecraft heliocentric velocity arriving at the target
 Q_V_TARGET_ARRIVAL = 81  # the target's heliocentric velocity at arrival
 Q_PENALTY = 84  # total penalty added to each objective
 N_Q = 85
+
+# --- limits ----------------------------------------------------------------
+# The way that tightens each limit slot of ``p``: +1 raises a minimum, -1 lowers a
+# maximum. The outgoing requirements count only when set (> 0; 0 means none).
+LIMIT_INWARD = {
+    P_MIN_ALT_KM: 1.0,
+    P_C3_MAX: -1.0,
+    P_DLA_MIN: 1.0,
+    P_DLA_MAX: -1.0,
+    P_DSM_BUDGET_KMS: -1.0,
+    P_ARRIVAL_VINF_MAX_KMS: -1.0,
+    P_ARRIVAL_OPEN_S: 1.0,
+    P_ARRIVAL_CLOSE_S: -1.0,
+    P_VINF_MATCH_TOL_KMS: -1.0,
+    P_REQ_VINF_OUT_KMS: 1.0,
+    P_REQ_INC_RAD: 1.0,
+    P_REQ_APHELION_KM: 1.0,
+}
+REQUIREMENT_SLOTS = (P_REQ_VINF_OUT_KMS, P_REQ_INC_RAD, P_REQ_APHELION_KM)
+
+
+def tighten_limits(p, amounts) -> None:
+    """Move the limits of ``p`` inward in place by ``amounts`` ({slot: amount >= 0},
+    each in its slot's kernel unit); an unset requirement stays unset."""
+    for slot, amount in amounts.items():
+        if slot in REQUIREMENT_SLOTS and not p[slot] > 0.0:
+            continue
+        p[slot] += LIMIT_INWARD[slot] * amount

@@ -796,18 +796,20 @@ def _tighten_by_margins(problem: Problem, p: np.ndarray) -> None:
     """Move each limit in ``p`` inward by its design margin, so the penalties and the
     kernel's margins measure against the tightened limit."""
     m = problem.values["margins"]
-    p[L.P_C3_MAX] -= m["c3_km2_s2"]
-    p[L.P_MIN_ALT_KM] += m["flyby_altitude_km"]
-    p[L.P_DLA_MIN] += math.radians(m["dla_deg"])
-    p[L.P_DLA_MAX] -= math.radians(m["dla_deg"])
-    p[L.P_DSM_BUDGET_KMS] -= m["dsm_km_s"]  # inf stays inf
-    p[L.P_ARRIVAL_VINF_MAX_KMS] -= m["arrival_vinf_km_s"]
-    if p[L.P_REQ_VINF_OUT_KMS] > 0.0:
-        p[L.P_REQ_VINF_OUT_KMS] += m["outgoing_vinf_km_s"]
-    if p[L.P_REQ_INC_RAD] > 0.0:
-        p[L.P_REQ_INC_RAD] += math.radians(m["outgoing_inclination_deg"])
-    if p[L.P_REQ_APHELION_KM] > 0.0:
-        p[L.P_REQ_APHELION_KM] += m["outgoing_aphelion_au"] * bodies.AU_KM
+    L.tighten_limits(  # an unlimited one (inf) stays unlimited
+        p,
+        {
+            L.P_C3_MAX: m["c3_km2_s2"],
+            L.P_MIN_ALT_KM: m["flyby_altitude_km"],
+            L.P_DLA_MIN: math.radians(m["dla_deg"]),
+            L.P_DLA_MAX: math.radians(m["dla_deg"]),
+            L.P_DSM_BUDGET_KMS: m["dsm_km_s"],
+            L.P_ARRIVAL_VINF_MAX_KMS: m["arrival_vinf_km_s"],
+            L.P_REQ_VINF_OUT_KMS: m["outgoing_vinf_km_s"],
+            L.P_REQ_INC_RAD: math.radians(m["outgoing_inclination_deg"]),
+            L.P_REQ_APHELION_KM: m["outgoing_aphelion_au"] * bodies.AU_KM,
+        },
+    )
 
 
 def _use_ephemeris(problem: Problem, compiled: CompiledProblem) -> None:

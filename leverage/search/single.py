@@ -109,23 +109,13 @@ def inside_limits(
     and the penalty weight times ``weight_factor``."""
     p = np.array(params, dtype=float, copy=True)
     p[L.P_PENALTY_WEIGHT] *= weight_factor
-
-    def step(slot):
-        v = p[slot]
-        return inside * max(1.0, abs(v)) if np.isfinite(v) else 0.0
-
-    p[L.P_MIN_ALT_KM] += step(L.P_MIN_ALT_KM)
-    p[L.P_C3_MAX] -= step(L.P_C3_MAX)
-    p[L.P_DLA_MIN] += step(L.P_DLA_MIN)
-    p[L.P_DLA_MAX] -= step(L.P_DLA_MAX)
-    p[L.P_DSM_BUDGET_KMS] -= step(L.P_DSM_BUDGET_KMS)
-    p[L.P_ARRIVAL_VINF_MAX_KMS] -= step(L.P_ARRIVAL_VINF_MAX_KMS)
-    p[L.P_ARRIVAL_OPEN_S] += step(L.P_ARRIVAL_OPEN_S)
-    p[L.P_ARRIVAL_CLOSE_S] -= step(L.P_ARRIVAL_CLOSE_S)
-    p[L.P_VINF_MATCH_TOL_KMS] -= step(L.P_VINF_MATCH_TOL_KMS)
-    for slot in (L.P_REQ_VINF_OUT_KMS, L.P_REQ_INC_RAD, L.P_REQ_APHELION_KM):
-        if p[slot] > 0.0:  # 0: no requirement
-            p[slot] += step(slot)
+    L.tighten_limits(
+        p,
+        {
+            slot: inside * max(1.0, abs(p[slot])) if np.isfinite(p[slot]) else 0.0
+            for slot in L.LIMIT_INWARD
+        },
+    )
     return p
 
 

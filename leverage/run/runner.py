@@ -198,14 +198,10 @@ def prepare(problem, settings: SearchSettings, evolver, compiled=None):
     return compiled, udp, search
 
 
-def islands_evolved(search, evolver) -> str:
+def islands_evolved(search) -> str:
     """Where the islands evolved, for the record (a front search says it itself: in this
     process its batches spread over the cores)."""
-    if hasattr(search, "where"):
-        return search.where
-    if getattr(search, "evolver", None) is evolver:
-        return evolver.name
-    return "this process (batch evaluation)"
+    return getattr(search, "where", None) or search.evolver.name
 
 
 def finish(
@@ -360,7 +356,7 @@ def run(
                 compiled, udp, search = prepare(problem, settings, evolver, compiled)
                 run_info["start_s"] = round(time.monotonic() - started, 3)
                 progress.shown = objective.shown_objectives(compiled.params)[0]
-                run_info["islands_evolved"] = islands_evolved(search, evolver)
+                run_info["islands_evolved"] = islands_evolved(search)
                 if resume is not None:
                     checkpoint.restore(search, resume)
                     run_info["resumed_from_evolution"] = search.state.evolution

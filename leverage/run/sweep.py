@@ -75,7 +75,7 @@ def solve(task: Task) -> dict:
         compiled, udp, search = prepare(problem, settings, evolver)
         while not search.done:
             search.step()
-        where = islands_evolved(search, evolver)
+        where = islands_evolved(search)
         with tempfile.TemporaryDirectory() as tmp:
             front_path = Path(tmp) / "front.csv"
             record = finish(

@@ -50,7 +50,7 @@ SECTIONS = {
 # Sections a problem may leave out entirely; then their keys are not used at all.
 OPTIONAL_SECTIONS = ("target", "vehicle")
 
-ALGORITHMS = ("sade", "de", "de1220", "pso", "cmaes")
+ALGORITHMS = ("sade", "de", "pygmo_de", "de1220", "pso", "cmaes")
 FRONT_ALGORITHMS = ("nsga2", "moead", "nspso")  # multi-objective, for goal kind "front"
 POLISHERS = ("bobyqa", "slsqp", "mbh", "none")
 # "auto": JPL DE421 when every date fits 1900-2050, else DE423 (1800-2200); mean elements
@@ -573,14 +573,13 @@ KEYS = [
         minimum=1,
         maximum=MAX_ISLANDS,
     ),
-    # Defaults chosen by benchmarks/search_quality.py (see benchmarks/README.md): at 64 x
-    # 2000 on 2 islands, de (with the widened box and the two restart epochs of
-    # search.single) reached the best-known design within 1 m/s in 20, 20, 20, 18, 20
-    # and 18 of 20 seeds on the six reference problems (sade alone: 19, 19, 8, 16, 19, 5).
+    # Defaults chosen by benchmarks/search_quality.py (benchmarks/README.md, "Compiled
+    # differential evolution"): 2 islands x 64 x 4000 generations of the compiled de,
+    # with the widened box and 1000-generation restart epochs of search.single.
     Key(
         "search", "population", "integer", 64, "Individuals per island.", minimum=8, maximum=100000
     ),
-    Key("search", "generations", "integer", 2000, "Generations per island in all.", minimum=1),
+    Key("search", "generations", "integer", 4000, "Generations per island in all.", minimum=1),
     Key(
         "search",
         "generations_per_migration",

@@ -107,19 +107,27 @@ class CompileNotice:
         return False
 
 
-def warm_up(udp, x, batch: bool = False, stream=None, enabled: bool = True) -> float:
+def warm_up(
+    udp, x, batch: bool = False, stream=None, enabled: bool = True, algorithm_warm_up=None
+) -> float:
     """Load or compile the kernels a search calls by evaluating ``x`` once; returns the
     seconds spent compiling (0.0 when everything came from the cache). ``batch``: also
     the parallel batch evaluation (a front search; a single-objective search never
-    calls it, so it is not compiled there)."""
+    calls it, so it is not compiled there). ``algorithm_warm_up(udp, x)``: the search
+    algorithm's own compiled kernel, if it has one (``search.single.algorithm_warm_up``);
+    loaded here, before worker processes are forked, so they do not each load it."""
     import numpy as np
 
+    steps = 2 + bool(batch) + (algorithm_warm_up is not None)
     with CompileNotice(stream, enabled) as notice:
-        notice.step("[1/%d] the objective" % (3 if batch else 2))
+        notice.step(f"[1/{steps}] the objective")
         udp.fitness(x)
-        notice.step("[2/%d] the derived quantities" % (3 if batch else 2))
+        notice.step(f"[2/{steps}] the derived quantities")
         udp.details(x)
         if batch:
-            notice.step("[3/3] the parallel batch evaluation")
+            notice.step(f"[3/{steps}] the parallel batch evaluation")
             udp.batch_fitness(np.asarray(x, dtype=float)[None, :])
+        if algorithm_warm_up is not None:
+            notice.step(f"[{steps}/{steps}] the search algorithm")
+            algorithm_warm_up(udp, x)
     return notice.seconds

@@ -31,7 +31,7 @@ from leverage.run import afterrun, compile_notice, rescue
 from leverage.search import checkpoint, cluster
 from leverage.search.fronts import search_class
 from leverage.search.islands import ClusterIslands, local_evolver
-from leverage.search.single import IslandRecord, SearchSettings
+from leverage.search.single import IslandRecord, SearchSettings, algorithm_warm_up
 from leverage.search.udp import LeveragingUDP
 from leverage.search.workers import WorkerLost
 from leverage.verify import report as verify
@@ -350,6 +350,7 @@ def run(
                     batch=compiled.n_obj > 1,
                     stream=progress.stream,
                     enabled=progress.enabled,
+                    algorithm_warm_up=algorithm_warm_up(settings.algorithm),
                 )
                 if compile_s:
                     run_info["compile_s"] = round(compile_s, 1)

@@ -38,7 +38,7 @@ from leverage.run.slices import window_slices, write_slice_problems
 from leverage.search import cluster
 from leverage.search.fronts import search_class
 from leverage.search.islands import SerialIslands, cpu_count
-from leverage.search.single import SearchSettings
+from leverage.search.single import SearchSettings, algorithm_warm_up
 from leverage.search.udp import LeveragingUDP
 from leverage.search.workers import WorkerLost, WorkerPool
 
@@ -372,6 +372,7 @@ class Sweep:
             x,
             stream=getattr(progress, "stream", None),
             enabled=getattr(progress, "enabled", True),
+            algorithm_warm_up=algorithm_warm_up(task.settings.algorithm),
         )
 
     def _run_local(self, pending, workers, on_result, progress):

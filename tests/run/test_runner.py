@@ -177,7 +177,7 @@ def _tiny_run(tmp_path, label, problem=DEMO, *extra):
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("algorithm", ["sade", "de", "de1220", "pso", "cmaes"])
+@pytest.mark.parametrize("algorithm", ["sade", "de", "pygmo_de", "de1220", "pso", "cmaes"])
 def test_every_offered_algorithm_runs(algorithm, tmp_path, no_pictures):
     """Each ends, at this small size (60 generations of 16), on a design meeting every
     limit of the demo (measured: objectives 0.84-1.93, every one feasible; seed 1 makes

@@ -312,6 +312,7 @@ FILL_MID_SEARCH = (
     DRIVER_HEAD
     + """
 from leverage.search import checkpoint
+checkpoint.WRITE_EVERY_S = 0.0  # a checkpoint after every evolution, as this scenario needs
 real = checkpoint.Checkpointer.save
 count = [0]
 def save(self, search, final=False):

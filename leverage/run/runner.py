@@ -1,8 +1,9 @@
 """One optimisation run: problem -> search -> polished champion -> files on disk.
 
 Writes into the run folder, as it goes: ``problem.toml`` (a copy),
-``convergence.csv`` (flushed after every evolution), ``checkpoint.pickle`` (after
-every evolution, atomically; see ``checkpoint.py``), and at the end ``best.json``
+``convergence.csv`` (flushed after every evolution), ``checkpoint.pickle`` (after the
+first evolution, every few seconds, the last and an interrupted run's last whole
+evolution, atomically; see ``checkpoint.py``), and at the end ``best.json``
 and ``summary.txt`` (atomically). Ctrl-C or SIGTERM stops the search within moments
 (worker processes are killed, cluster evolutions already sent are awaited); the best
 design found so far is still written, marked "interrupted" (``RunOutcome.status``).
@@ -172,6 +173,16 @@ class ConvergenceLog:
         self._fh.close()
 
 
+def _checkpoint_last(saver):
+    """Write the checkpoint of an interrupted run's last logged evolution if it is not
+    on disk yet (the one there may be a few seconds older); a failed write leaves that
+    older one."""
+    try:
+        saver.flush()
+    except OSError:
+        pass
+
+
 def make_search(compiled, udp, settings: SearchSettings, evolver=None):
     """The search for this problem (Search, or FrontSearch for several objectives), its
     islands evolved by ``evolver`` (default: in this process)."""
@@ -339,7 +350,8 @@ def run(
     search = None
     fault = None  # an OSError (disk full, folder gone read-only) that stopped the search
     run_info = {}
-    logged = None  # evolutions whose log rows and checkpoint are written
+    logged = None  # evolutions whose log rows are written (and checkpoint, when due)
+    saver = None
     with StopSignals() as stop:
         try:
             try:
@@ -375,7 +387,8 @@ def run(
                     logged = search.state.evolution
                     while not search.done:
                         rows = search.step()
-                        # An evolution counts once its log rows and checkpoint are written.
+                        # An evolution counts once its log rows (and checkpoint, when
+                        # one is due) are written.
                         with stop.deferred():
                             log.write(rows)
                             saver.save(search, final=search.done)
@@ -413,6 +426,8 @@ def run(
                     # cut inside an evolution: the record counts what the log and the
                     # checkpoint hold (the champion may still come from the cut one)
                     run_info["evolutions"] = logged
+                if saver is not None and fault is None:
+                    _checkpoint_last(saver)
                 progress.note(
                     f"interrupted ({why}) at evolution {search.state.evolution}: "
                     "writing the best design found so far"

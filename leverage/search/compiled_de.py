@@ -10,10 +10,12 @@ default; its search quality was measured on the reference problems before it bec
 the default.
 """
 
+import copy
+
 import numpy as np
 
 from leverage.core import diffevo
-from leverage.search.udp import LeveragingUDP, WidenedUDP
+from leverage.search.udp import LeveragingUDP, WidenedUDP, reraise_interrupt
 
 WEIGHT = 0.8  # differential weight F (Storn and Price 1997)
 CROSSOVER = 0.9  # crossover probability CR
@@ -63,22 +65,30 @@ class CompiledDE:
             raise ValueError(f"compiled DE needs at least 4 individuals, got {n}")
         if self.gen == 0:
             return pop
+        # pygmo hands a Python algorithm the caller's own population; pygmo's C++
+        # algorithms work on a copy, and the search relies on that (an evolution cut
+        # short, and a checkpoint kept while the next evolution runs, leave it as it was).
+        pop = copy.deepcopy(pop)
         udp, lo, hi = box_of(pop.problem)
         x0 = pop.get_x()
         f0 = np.ascontiguousarray(pop.get_f()[:, 0])
-        x, f, used = diffevo.evolve(
-            x0,
-            f0,
-            self.gen,
-            self.weight,
-            self.crossover,
-            lo,
-            hi,
-            udp.lower,
-            udp.upper,
-            udp.params,
-            call_seed(self.seed, self.calls),
-        )
+        seed = call_seed(self.seed, self.calls)
+        try:
+            x, f, used = diffevo.evolve(
+                x0,
+                f0,
+                self.gen,
+                self.weight,
+                self.crossover,
+                lo,
+                hi,
+                udp.lower,
+                udp.upper,
+                udp.params,
+                seed,
+            )
+        except SystemError as exc:
+            reraise_interrupt(exc)
         self.calls += 1
         for i in np.flatnonzero((x != x0).any(axis=1)):
             pop.set_xf(int(i), x[i], [f[i]])

@@ -100,6 +100,46 @@ def test_same_seed_and_islands_same_champion_whatever_the_evolver(demo_path):
     assert not np.array_equal(x1, x4)
 
 
+@pytest.mark.slow
+def test_checkpoints_are_written_first_then_when_due_and_at_the_end(demo_path, tmp_path):
+    problem = load_problem(demo_path)
+    search, settings = small_search(problem)
+    saver = checkpoint.Checkpointer(tmp_path, problem, settings, write_every_s=3600.0)
+    on_disk = []
+    while not search.done:
+        search.step()
+        wrote = saver.save(search, final=search.done)
+        on_disk.append((wrote is not None, checkpoint.load(tmp_path)["state"].evolution))
+    # 6 evolutions: the first written, the next four not yet due, the last one final
+    assert on_disk == [(True, 1), (False, 1), (False, 1), (False, 1), (False, 1), (True, 6)]
+    assert saver.written == 6 and saver.flush() is None  # nothing left to write
+
+
+@pytest.mark.slow
+def test_an_unwritten_evolution_is_flushed_as_it_was_and_resumes_exactly(demo_path, tmp_path):
+    """A stop mid-run writes the last logged evolution (kept in memory when its
+    checkpoint was not due), unchanged by the evolution begun after it."""
+    problem = load_problem(demo_path)
+    x_ref, f_ref = run_out(small_search(problem)[0])
+    search, settings = small_search(problem)
+    saver = checkpoint.Checkpointer(tmp_path, problem, settings, write_every_s=3600.0)
+    for _ in range(3):
+        search.step()
+        saver.save(search)
+    search.step()  # evolution 4 runs, as if a stop came while it was logged
+    assert checkpoint.load(tmp_path)["state"].evolution == 1
+    saver.flush()
+    data = checkpoint.load(tmp_path)
+    assert data["state"].evolution == 3 and saver.written == 3
+    resumed, _ = small_search(problem)
+    checkpoint.restore(resumed, data)
+    x, f = run_out(resumed)
+    np.testing.assert_array_equal(x, x_ref)
+    np.testing.assert_array_equal(f, f_ref)
+    every = checkpoint.Checkpointer(tmp_path, problem, settings, write_every_s=0.0)
+    assert every.save(search) is not None and every.save(search) is not None
+
+
 def test_load_refuses_missing_and_foreign_files(tmp_path):
     with pytest.raises(ProblemError, match="no checkpoint.pickle here"):
         checkpoint.load(tmp_path)

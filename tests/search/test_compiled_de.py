@@ -43,6 +43,17 @@ def test_evolve_counts_evaluations_and_keeps_pygmo_champion(problem):
         assert problem.fitness(x)[0] == f[0]
 
 
+def test_evolve_leaves_the_given_population_as_it_was(problem):
+    # as pygmo's own algorithms do (they evolve a copy); pygmo gives a Python
+    # algorithm the caller's population itself
+    pop = pg.population(problem, 8, seed=2)
+    x, f = pop.get_x().copy(), pop.get_f().copy()
+    out = pg.algorithm(CompiledDE(gen=5, seed=4)).evolve(pop)
+    np.testing.assert_array_equal(pop.get_x(), x)
+    np.testing.assert_array_equal(pop.get_f(), f)
+    assert not np.array_equal(out.get_x(), x)
+
+
 def test_a_pickled_algorithm_goes_on_as_the_original(problem):
     straight = pg.algorithm(CompiledDE(gen=5, seed=4))
     pop = pg.population(problem, 8, seed=1)

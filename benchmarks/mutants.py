@@ -206,6 +206,30 @@ MUTANTS = (
         ("tests/astro/test_times.py",),
         "calendar dates counted in UTC instead of TDB (a 69 s time-scale mix-up)",
     ),
+    Mutant(
+        "nsga2-tournament-crowded",
+        "leverage/core/nsga2.py",
+        "return a if crowd[a] > crowd[b] else b",
+        "return a if crowd[a] < crowd[b] else b",
+        ("tests/core/test_nsga2.py",),
+        "the crowded tournament prefers the more crowded member (a sign flip)",
+    ),
+    Mutant(
+        "nsga2-sweep-duplicates",
+        "leverage/core/nsga2.py",
+        "(latest_second[k] == b and latest_first[k] < a)",
+        "(latest_second[k] == b and latest_first[k] <= a)",
+        ("tests/core/test_nsga2.py",),
+        "two-objective sort lets an equal row dominate (< for <=)",
+    ),
+    Mutant(
+        "nsga2-sbx-bound-exponent",
+        "leverage/core/nsga2.py",
+        "alpha = 2.0 - beta ** -(eta_c + 1.0)",
+        "alpha = 2.0 - beta ** -(eta_c + 2.0)",
+        ("tests/core/test_nsga2.py",),
+        "bounded SBX cuts the distribution at the wrong place (exponent off by one)",
+    ),
 )
 SMOKE = "turn-angle-half"
 

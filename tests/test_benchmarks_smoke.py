@@ -86,3 +86,10 @@ def test_every_mutant_finds_its_text_once():
     counts = {m.name: (ROOT / m.path).read_text(encoding="utf-8").count(m.old) for m in MUTANTS}
     assert all(n == 1 for n in counts.values()), counts
     assert len(MUTANTS) >= 12
+
+
+@pytest.mark.slow
+def test_front_search_smoke():
+    out = smoke("front_search")
+    assert "x floor" in out and "compiled_nsga2" in out
+    assert "hypervolume (km/s)^2: median" in out

@@ -22,7 +22,13 @@ from leverage.astro import bodies, times
 from leverage.core import layout as L
 from leverage.errors import NO_VALUE, ProblemError
 from leverage.problem import plausibility, sense
-from leverage.problem.schema import FRONT_ALGORITHMS, OPTIONAL_SECTIONS, REQUIRED, keys_by_section
+from leverage.problem.schema import (
+    FRONT_ALGORITHMS,
+    OPTIONAL_SECTIONS,
+    POPULATION_IN_FOURS,
+    REQUIRED,
+    keys_by_section,
+)
 from leverage.problem.target import Target, arrival_window_s, target_from_values
 from leverage.problem.vehicle import LaunchVehicle, vehicle_from_values
 
@@ -664,9 +670,12 @@ def check_algorithm(source: str, key: str, algorithm: str, front: bool, populati
         raise ProblemError(
             source, key, algorithm, 'is multi-objective; use it with [goal] kind = "front"'
         )
-    if algorithm == "nsga2" and (population % 4 or population < 8):
+    if algorithm in POPULATION_IN_FOURS and (population % 4 or population < 8):
         raise ProblemError(
-            source, "[search] population", population, "nsga2 needs a multiple of 4, at least 8"
+            source,
+            "[search] population",
+            population,
+            f"{algorithm} needs a multiple of 4, at least 8",
         )
 
 

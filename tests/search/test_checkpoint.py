@@ -210,11 +210,13 @@ def test_resume_refuses_another_problem_in_one_line(demo_path, tmp_path, capsys)
 
 
 @pytest.mark.slow
-def test_a_front_search_checkpoints_the_same_way(problems_dir, tmp_path):
+@pytest.mark.parametrize("algorithm", ["nsga2", "compiled_nsga2"])
+def test_a_front_search_checkpoints_the_same_way(problems_dir, tmp_path, algorithm):
     # FrontSearch (leverage/fronts.py) keeps an archive in its state; the checkpoint
     # pickles whatever the state holds, so a resumed front search ends the same.
     problem = load_problem(problems_dir / "trade-front.toml")
     over = {"islands": 2, "population": 16, "generations": 30, "generations_per_migration": 10}
+    over["algorithm"] = algorithm
 
     def fresh():
         settings = settings_from(problem, over)
@@ -253,11 +255,13 @@ def test_the_largest_allowed_seed_and_island_fit_pygmo():
 
 
 @pytest.mark.slow
-def test_a_front_search_gives_the_same_front_in_worker_processes(problems_dir, tmp_path):
+@pytest.mark.parametrize("algorithm", ["nsga2", "compiled_nsga2"])
+def test_a_front_search_gives_the_same_front_in_worker_processes(problems_dir, tmp_path, algorithm):
     # In worker processes each island evolves on one thread (one-thread batches); in
     # this process each batch is spread over the cores. Same seed, same front and log.
     problem = load_problem(problems_dir / "trade-front.toml")
     over = {"islands": 2, "population": 16, "generations": 30, "generations_per_migration": 10}
+    over["algorithm"] = algorithm
     serial, _ = small_search(problem, SerialIslands(), **over)
     x_ref, f_ref = run_out(serial)
     pool = ProcessIslands(2)

@@ -270,7 +270,7 @@ def measure_in_process(compiled, evaluations, population):
         gens = max(1, evaluations // size)
         for n_threads in sorted({1, threads}):
             numba.set_num_threads(n_threads)
-            uda = pg.nsga2(gen=gens, seed=1)
+            uda = pg.nsga2(gen=gens, seed=1)  # pygmo's (pygmo_nsga2): see front_search.py
             uda.set_bfe(pg.bfe())
             pop = pg.population(pg.problem(front_udp), size, b=pg.bfe(), seed=1)
             before = pop.problem.get_fevals()
@@ -278,7 +278,7 @@ def measure_in_process(compiled, evaluations, population):
             pop = pg.algorithm(uda).evolve(pop)
             wall = time.perf_counter() - start
             out[
-                f"trade-front: nsga2 + batch evaluation, pop. {size}, {n_threads} thread(s), "
+                f"trade-front: pygmo_nsga2 + batch evaluation, pop. {size}, {n_threads} thread(s), "
                 f"per core"
             ] = wall * n_threads / (pop.problem.get_fevals() - before) * 1e6
         numba.set_num_threads(threads)

@@ -51,10 +51,10 @@ SECTIONS = {
 OPTIONAL_SECTIONS = ("target", "vehicle")
 
 ALGORITHMS = ("sade", "de", "pygmo_de", "de1220", "pso", "cmaes")
-# multi-objective, for goal kind "front"; compiled_nsga2 is leverage's own NSGA-II
-FRONT_ALGORITHMS = ("nsga2", "compiled_nsga2", "moead", "nspso")
+# multi-objective, for goal kind "front"; nsga2 is leverage's own compiled NSGA-II
+FRONT_ALGORITHMS = ("nsga2", "pygmo_nsga2", "moead", "nspso")
 # these breed children from groups of four: the population must be a multiple of 4
-POPULATION_IN_FOURS = ("nsga2", "compiled_nsga2")
+POPULATION_IN_FOURS = ("nsga2", "pygmo_nsga2")
 POLISHERS = ("bobyqa", "slsqp", "mbh", "none")
 # "auto": JPL DE421 when every date fits 1900-2050, else DE423 (1800-2200); mean elements
 # only when asked for (fast screening, dates outside every DE span).
@@ -563,8 +563,8 @@ KEYS = [
         "choice",
         None,
         "Global algorithm on every island (default de; nsga2 for a front goal). Single "
-        "objective: sade, de, de1220, pso, cmaes; front: nsga2 (population a multiple of 4), "
-        "compiled_nsga2 (the same method, compiled whole; the same rule), moead, nspso.",
+        "objective: de (compiled), pygmo_de, sade, de1220, pso, cmaes; front: nsga2 "
+        "(compiled; population a multiple of 4), pygmo_nsga2 (the same rule), moead, nspso.",
         choices=ALGORITHMS + FRONT_ALGORITHMS,
     ),
     Key(

@@ -25,7 +25,7 @@ import copy
 import numpy as np
 
 from leverage.core import nsga2
-from leverage.search.udp import LeveragingUDP
+from leverage.search.udp import LeveragingUDP, reraise_interrupt
 
 DEFAULT_CR = 0.95  # crossover probability (pygmo nsga2's default)
 DEFAULT_ETA_C = 10.0  # SBX distribution index (pygmo nsga2's default)
@@ -82,21 +82,24 @@ class CompiledNSGA2:
         m = 1.0 / len(lower) if self.m is None else self.m
         seed32 = self.call_seed()
         self.calls += 1
-        x, f = nsga2.evolve(
-            np.ascontiguousarray(pop.get_x(), dtype=float),
-            np.ascontiguousarray(pop.get_f(), dtype=float),
-            lower,
-            upper,
-            udp.params,
-            self.gen,
-            self.cr,
-            self.eta_c,
-            m,
-            self.eta_m,
-            seed32,
-            # getattr: a UDP pickled by an older version has no flag
-            not getattr(udp, "one_thread", False),
-        )
+        try:
+            x, f = nsga2.evolve(
+                np.ascontiguousarray(pop.get_x(), dtype=float),
+                np.ascontiguousarray(pop.get_f(), dtype=float),
+                lower,
+                upper,
+                udp.params,
+                self.gen,
+                self.cr,
+                self.eta_c,
+                m,
+                self.eta_m,
+                seed32,
+                # getattr: a UDP pickled by an older version has no flag
+                not getattr(udp, "one_thread", False),
+            )
+        except SystemError as exc:
+            reraise_interrupt(exc)
         for i in range(n):
             pop.set_xf(i, x[i], f[i])
         pop.problem.increment_fevals(self.gen * n)
@@ -111,3 +114,15 @@ class CompiledNSGA2:
             f"\tGenerations per evolve: {self.gen}\n\tcr: {self.cr:g}, eta_c: {self.eta_c:g}, "
             f"m: {m}, eta_m: {self.eta_m:g}\n\tSeed: {self.seed}, calls so far: {self.calls}"
         )
+
+
+def warm_up(udp, x):
+    """Load (or compile) the evolution kernel: one generation of 8 copies of x, on this
+    thread (a parent that forks worker processes must not start numba's threads)."""
+    x = np.asarray(x, dtype=float)
+    xs = np.repeat(x[None, :], 8, axis=0)
+    f = np.repeat(np.asarray(udp.fitness(x), dtype=float)[None, :], 8, axis=0)
+    lower, upper = (np.asarray(b, dtype=float) for b in udp.get_bounds())
+    nsga2.evolve(
+        xs, f, lower, upper, udp.params, 1, DEFAULT_CR, DEFAULT_ETA_C, 0.1, DEFAULT_ETA_M, 1, False
+    )

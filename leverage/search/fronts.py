@@ -1,5 +1,5 @@
-"""Trade fronts: multi-objective search with pygmo nsga2, moead (moead_gen) or nspso, or
-leverage's compiled NSGA-II (``compiled_nsga2``).
+"""Trade fronts: multi-objective search with leverage's compiled NSGA-II (``nsga2``, the
+default) or pygmo's nsga2 (``pygmo_nsga2``), moead (moead_gen) or nspso.
 
 ``FrontSearch`` has the interface of ``search.Search`` (``udp``, ``settings``,
 ``state``, ``start_time``; ``done``, ``step()``, ``champion()``, ``polish(x)``) so the
@@ -42,9 +42,9 @@ from leverage.search.islands import SerialIslands, evolve_ahead, evolved
 from leverage.search.single import IslandRecord, SearchState, island_seed
 
 FRONT_ALGORITHM_NOTES = {
-    "nsga2": "non-dominated sorting genetic algorithm II (pygmo nsga2, batch evaluation)",
-    "compiled_nsga2": "the same method with every generation of an evolution in one compiled "
-    "call (leverage.core.nsga2): about 1.4 x the fitness floor per evaluation against 2.5 x",
+    "nsga2": "non-dominated sorting genetic algorithm II, every generation of an evolution "
+    "in one compiled call (leverage.core.nsga2)",
+    "pygmo_nsga2": "non-dominated sorting genetic algorithm II (pygmo nsga2, batch evaluation)",
     "moead": "decomposition-based evolutionary algorithm, DE variant (pygmo moead_gen, "
     "batch evaluation)",
     "nspso": "non-dominated sorting particle swarm (pygmo nspso, batch evaluation)",
@@ -86,9 +86,9 @@ def make_front_algorithm(
 ) -> pg.algorithm:
     """A pygmo multi-objective algorithm: the compiled NSGA-II, or one of pygmo's with
     batch fitness evaluation."""
-    if name == "compiled_nsga2":
-        return pg.algorithm(CompiledNSGA2(gen=generations, seed=seed))
     if name == "nsga2":
+        return pg.algorithm(CompiledNSGA2(gen=generations, seed=seed))
+    if name == "pygmo_nsga2":
         uda = pg.nsga2(gen=generations, seed=seed)
     elif name == "moead":
         # "grid" weights need special sizes beyond two objectives; low discrepancy does not.

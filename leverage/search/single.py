@@ -22,7 +22,7 @@ import pygmo as pg
 
 from leverage.core import layout as L
 from leverage.record.design import feasible
-from leverage.search import compiled_de
+from leverage.search import compiled_de, compiled_nsga2
 from leverage.search.compiled_de import CompiledDE
 from leverage.search.islands import SerialIslands, evolve_ahead, evolved
 from leverage.search.udp import LeveragingUDP, WidenedUDP
@@ -127,7 +127,7 @@ def inside_limits(
 def algorithm_warm_up(name: str):
     """A function (udp, x) that loads the compiled kernel of algorithm ``name``, or
     None when the algorithm has none (pygmo's own run in pygmo)."""
-    return compiled_de.warm_up if name == "de" else None
+    return {"de": compiled_de.warm_up, "nsga2": compiled_nsga2.warm_up}.get(name)
 
 
 def make_polisher(name: str, seed: int):

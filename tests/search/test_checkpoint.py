@@ -210,7 +210,7 @@ def test_resume_refuses_another_problem_in_one_line(demo_path, tmp_path, capsys)
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("algorithm", ["nsga2", "compiled_nsga2"])
+@pytest.mark.parametrize("algorithm", ["nsga2", "pygmo_nsga2"])
 def test_a_front_search_checkpoints_the_same_way(problems_dir, tmp_path, algorithm):
     # FrontSearch (leverage/fronts.py) keeps an archive in its state; the checkpoint
     # pickles whatever the state holds, so a resumed front search ends the same.
@@ -255,7 +255,7 @@ def test_the_largest_allowed_seed_and_island_fit_pygmo():
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("algorithm", ["nsga2", "compiled_nsga2"])
+@pytest.mark.parametrize("algorithm", ["nsga2", "pygmo_nsga2"])
 def test_a_front_search_gives_the_same_front_in_worker_processes(problems_dir, tmp_path, algorithm):
     # In worker processes each island evolves on one thread (one-thread batches); in
     # this process each batch is spread over the cores. Same seed, same front and log.

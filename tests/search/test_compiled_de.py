@@ -76,3 +76,17 @@ def test_refuses_a_foreign_problem_and_too_small_a_population(problem):
         )
     with pytest.raises(ValueError, match="at least 4 individuals"):
         pg.algorithm(CompiledDE(gen=1, seed=1)).evolve(pg.population(problem, 3))
+
+
+def test_the_run_loads_the_kernel_of_a_compiled_algorithm_before_forking(problem):
+    """``single.algorithm_warm_up`` names the kernel to load for the compiled
+    algorithms (both run it once) and none for pygmo's own."""
+    from leverage.core import diffevo, nsga2
+    from leverage.search.single import algorithm_warm_up
+
+    assert algorithm_warm_up("sade") is None and algorithm_warm_up("pygmo_de") is None
+    udp = problem.extract(WidenedUDP)
+    x = (udp.lower + udp.upper) / 2.0
+    for name, kernel in (("de", diffevo.evolve), ("nsga2", nsga2.evolve)):
+        algorithm_warm_up(name)(udp, x)
+        assert kernel.signatures, name  # compiled or loaded for the arguments a run passes

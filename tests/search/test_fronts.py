@@ -117,7 +117,7 @@ def test_bad_front_files_are_refused_in_one_line(problems_dir, tmp_path, edit, m
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("algorithm", ["nsga2", "compiled_nsga2", "moead", "nspso"])
+@pytest.mark.parametrize("algorithm", ["nsga2", "pygmo_nsga2", "moead", "nspso"])
 def test_front_run_writes_a_feasible_non_dominated_front(
     problems_dir, tmp_path, full_size, algorithm
 ):

@@ -96,8 +96,11 @@ def child_run(path: str, generations: int | None) -> dict:
     if len(evolutions) >= 2:
         first = [r for r in log if int(r["evolution"]) == evolutions[0]]
         last = [r for r in log if int(r["evolution"]) == evolutions[-1]]
-        d_evals = sum(int(r["evaluations"]) for r in last) - sum(
-            int(r["evaluations"]) for r in first
+        # from the generations column: an island's evaluations count restarts from its
+        # new population at each restart epoch
+        population = int(outcome.record["search"]["population"])
+        d_evals = population * sum(
+            int(b["generations"]) - int(a["generations"]) for a, b in zip(first, last)
         )
         d_wall = float(last[0]["wall_time_s"]) - float(first[0]["wall_time_s"])
         out["steady_us_per_core"] = d_wall * cores / d_evals * 1e6

@@ -120,6 +120,8 @@ def compiled_settings(args) -> dict:
         out["generations"] = args.compiled_generations
     if args.compiled_islands:
         out["islands"] = args.compiled_islands
+    if args.compiled_generations_per_migration:
+        out["generations_per_migration"] = args.compiled_generations_per_migration
     return out
 
 
@@ -178,6 +180,7 @@ def main(argv=None) -> int:
     parser.add_argument(
         "--compiled-islands", type=int, default=None, help="islands of the compiled one's runs"
     )
+    parser.add_argument("--compiled-generations-per-migration", type=int, default=None)
     parser.add_argument(
         "--better-than",
         type=float,

@@ -55,8 +55,32 @@ class SerialIslands:
         pass
 
 
+def _evolve_pairs(pairs):
+    """Evolve several islands once, in turn (runs in a worker process)."""
+    return [_evolve_pair(pair) for pair in pairs]
+
+
+def shares(items: list, n: int) -> list:
+    """``items`` cut into at most ``n`` consecutive runs of near-equal length, in order."""
+    n = max(1, min(n, len(items)))
+    size, extra = divmod(len(items), n)
+    out, start = [], 0
+    for k in range(n):
+        end = start + size + (k < extra)
+        out.append(items[start:end])
+        start = end
+    return out
+
+
 class ProcessIslands:
-    """Evolve the islands in worker processes on this machine (started on first use)."""
+    """Evolve the islands in worker processes on this machine (started on first use).
+
+    Each worker gets its share of the islands in one task (``shares``), all sent at
+    once: with more islands than workers, handing out the rest one by one as workers
+    finished waited on the parent, which is busy with the log rows and the front's
+    archive while the workers evolve (``evolve_ahead``); workers stood idle meanwhile
+    (a trade-front run with 4 islands on 2 workers: 40 ms an evolution for 22 ms of
+    evaluations)."""
 
     name = "processes"
 
@@ -64,22 +88,28 @@ class ProcessIslands:
         self.workers = int(workers)
         self._pool = None
 
-    def evolve(self, algorithms, populations):
+    def _tasks(self, algorithms, populations):
         if self._pool is None:
             self._pool = WorkerPool(self.workers)
-        pairs = self._pool.map(_evolve_pair, list(zip(algorithms, populations)))
+        return shares(list(zip(algorithms, populations)), self.workers)
+
+    @staticmethod
+    def _flat(results):
+        pairs = [pair for share in results for pair in share]
         return [a for a, _ in pairs], [p for _, p in pairs]
+
+    def evolve(self, algorithms, populations):
+        tasks = self._tasks(algorithms, populations)
+        return self._flat(self._pool.map(_evolve_pairs, tasks))
 
     def submit(self, algorithms, populations):
         """Start one evolution of every island and return at once (``collect`` waits)."""
-        if self._pool is None:
-            self._pool = WorkerPool(self.workers)
-        self._pool.submit(_evolve_pair, list(zip(algorithms, populations)))
+        tasks = self._tasks(algorithms, populations)
+        self._pool.submit(_evolve_pairs, tasks)
 
     def collect(self):
         """The algorithms and populations of the submitted evolution, in island order."""
-        pairs = self._pool.collect()
-        return [a for a, _ in pairs], [p for _, p in pairs]
+        return self._flat(self._pool.collect())
 
     def close(self):
         if self._pool is not None:

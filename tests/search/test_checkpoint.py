@@ -17,7 +17,7 @@ from leverage.errors import ProblemError
 from leverage.problem.load import load_problem
 from leverage.run.runner import make_search, resumed_settings, settings_from
 from leverage.search import checkpoint
-from leverage.search.islands import ProcessIslands, SerialIslands
+from leverage.search.islands import ProcessIslands, SerialIslands, shares
 from leverage.search.udp import LeveragingUDP
 
 SMALL = {
@@ -281,6 +281,31 @@ def test_a_front_search_gives_the_same_front_in_worker_processes(problems_dir, t
     ]
     # the checkpoint written while the workers evolved holds the first evolution
     assert checkpoint.load(tmp_path)["state"].evolution == 1
+
+
+@pytest.mark.slow
+def test_more_islands_than_workers_give_the_same_champion(demo_path):
+    """3 islands on 2 workers (one worker evolves two of them in turn, ``shares``)."""
+    problem = load_problem(demo_path)
+    x1, f1 = run_out(small_search(problem, islands=3)[0])
+    pool = ProcessIslands(2)
+    try:
+        x2, f2 = run_out(small_search(problem, pool, islands=3)[0])
+    finally:
+        pool.close()
+    np.testing.assert_array_equal(x1, x2)
+    assert f1[0] == f2[0]
+
+
+def test_shares_cut_the_islands_in_order_and_evenly():
+    for n_items in range(0, 9):
+        for n in range(1, 5):
+            items = list(range(n_items))
+            got = shares(items, n)
+            assert [i for share in got for i in share] == items
+            assert len(got) <= n and (len(got) == min(n, n_items) or n_items == 0)
+            sizes = [len(share) for share in got]
+            assert not sizes or max(sizes) - min(sizes) <= 1
 
 
 def test_worker_pool_submit_returns_at_once_and_collect_keeps_the_order():

@@ -122,10 +122,10 @@ def test_known_answer_resonant_return_needs_no_dsm(loop, revs, tmp_path, full_si
 
 
 def test_generations_are_whole_migration_intervals():
-    problem = load_problem(DEMO)  # generations_per_migration = 50
-    s = settings_from(problem, {"generations": 30})
+    problem = load_problem(DEMO)
+    s = settings_from(problem, {"generations": 30, "generations_per_migration": 50})
     assert (s.generations, s.generations_per_migration, s.evolutions) == (30, 30, 1)
-    s = settings_from(problem, {"generations": 120})
+    s = settings_from(problem, {"generations": 120, "generations_per_migration": 50})
     assert (s.generations, s.generations_per_migration, s.evolutions) == (150, 50, 3)
     s = settings_from(problem, {"seed": 9, "islands": 3})
     assert (s.seed, s.islands, s.generations) == (9, 3, problem.values["search"]["generations"])

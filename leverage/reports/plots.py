@@ -351,6 +351,17 @@ def _log_rows(path) -> list[dict]:
     return rows
 
 
+def restarts(rows, island: str) -> list:
+    """Generations after which every island started again from a new population: where
+    ``island``'s evaluation count falls back (search.single, restart epochs)."""
+    mine = [r for r in rows if r["island"] == island]
+    return [
+        _float(a["generations"])
+        for a, b in zip(mine, mine[1:])
+        if _float(b["evaluations"]) < _float(a["evaluations"])
+    ]
+
+
 def convergence(record, folder) -> Picture | None:
     """convergence.png from convergence.csv (None when the log is missing or empty)."""
     folder = Path(folder)
@@ -361,6 +372,9 @@ def convergence(record, folder) -> Picture | None:
     if not rows:
         return None
     islands = sorted({r["island"] for r in rows}, key=lambda s: (len(s), s))
+    # Generations never go back; an island's evaluation count starts again from its new
+    # population at each restart epoch (README, convergence.csv). Older logs: evaluations.
+    along = "generations" if "generations" in rows[0] else "evaluations"
     has_hv = "hypervolume" in rows[0] and any(math.isfinite(_float(r["hypervolume"])) for r in rows)
     fig = _new_figure(8.0, 6.4 if has_hv else 4.6)
     artists = {}
@@ -376,7 +390,7 @@ def convergence(record, folder) -> Picture | None:
                 lw=1.4,
             )
             mine = [r for r in rows if r["island"] == island]
-            x = np.array([_float(r["evaluations"]) for r in mine])
+            x = np.array([_float(r[along]) for r in mine])
             y = shown.value(np.array([_float(r["best_objective"]) for r in mine]))
             label = f"island {island}" if island.isdigit() else island
             (artists[f"island {island}"],) = axes[0].plot(x, y, label=label, **look)
@@ -393,6 +407,18 @@ def convergence(record, folder) -> Picture | None:
                 ls=":",
                 label=f"after polish: {shown.text(final)}",
             )
+        for k, x in enumerate(restarts(rows, islands[0]) if along == "generations" else []):
+            for ax in axes:
+                first = k == 0 and ax is axes[0]
+                line = ax.axvline(
+                    x,
+                    color="#999999",
+                    lw=0.8,
+                    ls="--",
+                    label="restart: new populations" if first else None,
+                )
+                if first:
+                    artists["restart"] = line
         axes[-1].set_xlim(left=0)
         per_island = min(sum(r["island"] == i for r in rows) for i in islands)
         if per_island < 3:
@@ -416,7 +442,9 @@ def convergence(record, folder) -> Picture | None:
         if has_hv:
             axes[1].set_ylabel("hypervolume of the front")
         axes[-1].set_xlabel(
-            "objective evaluations per island"
+            "generations per island"
+            if along == "generations"
+            else "objective evaluations per island"
             + (" (front: all islands together)" if "front" in islands else "")
         )
         fig.subplots_adjust(

@@ -105,12 +105,32 @@ def test_convergence_draws_the_log(folder, record):
     for island in {r["island"] for r in rows}:
         mine = [r for r in rows if r["island"] == island]
         line = pic.artists[f"island {island}"]
-        assert np.allclose(line.get_xdata(), [float(r["evaluations"]) for r in mine])
+        assert np.allclose(line.get_xdata(), [float(r["generations"]) for r in mine])
         factor = record["objective_shown"][0]["factor"]  # drawn in its own unit and sign
         assert np.allclose(line.get_ydata(), [factor * float(r["best_objective"]) for r in mine])
     axes = pic.artists["island 0"].axes
     assert axes.get_ylabel() == "best total DSM (km/s, lower is better)"
-    assert axes.get_xlabel().startswith("objective evaluations per island")
+    assert axes.get_xlabel() == "generations per island"
+
+
+def test_convergence_marks_each_restart_and_never_runs_back(folder, record, tmp_path):
+    """A log of two restart epochs (an island's evaluation count starts again with its
+    new population): the line goes on in generations, one marker at the restart."""
+    dest = tmp_path / "run"
+    shutil.copytree(folder, dest)
+    rows = [["evolution", "island", "generations", "evaluations", "best_objective"]]
+    for island in (0, 1):
+        for evolution, (gens, evals, best) in enumerate(
+            [(200, 12864, 1.1), (400, 25664, 0.9), (600, 12864, 1.2), (800, 25664, 0.85)], 1
+        ):
+            rows.append([evolution, island, gens, evals, best])
+    with open(dest / "convergence.csv", "w", newline="") as fh:
+        csv.writer(fh).writerows(rows)
+    pic = plots.convergence(record, dest)
+    assert_sensible_png(pic.path)
+    assert list(pic.artists["island 1"].get_xdata()) == [200, 400, 600, 800]
+    assert list(pic.artists["restart"].get_xdata()) == [400, 400]
+    assert plots.restarts(plots._log_rows(dest / "convergence.csv"), "0") == [400.0]
 
 
 def test_convergence_adds_the_hypervolume_when_logged(folder, record, tmp_path):

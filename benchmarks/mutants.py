@@ -230,6 +230,30 @@ MUTANTS = (
         ("tests/core/test_nsga2.py",),
         "bounded SBX cuts the distribution at the wrong place (exponent off by one)",
     ),
+    Mutant(
+        "de-target-in-mutant",
+        "leverage/core/diffevo.py",
+        "r1 = _distinct(n, i, i, i)",
+        "r1 = np.random.randint(0, n)",
+        ("tests/core/test_diffevo.py",),
+        "the mutant may be built from the target member itself (r1 = i allowed)",
+    ),
+    Mutant(
+        "de-crossover-one-short",
+        "leverage/core/diffevo.py",
+        "if taken >= d or np.random.random() >= crossover:",
+        "if taken >= d - 1 or np.random.random() >= crossover:",
+        ("tests/core/test_diffevo.py",),
+        "exponential crossover never takes every component (a bound off by one)",
+    ),
+    Mutant(
+        "de-keeps-the-worse",
+        "leverage/core/diffevo.py",
+        "if f_trial[0] <= f_old[i]:",
+        "if f_trial[0] >= f_old[i]:",
+        ("tests/core/test_diffevo.py",),
+        "selection keeps the worse of trial and member (a sign flip)",
+    ),
 )
 SMOKE = "turn-angle-half"
 

@@ -24,12 +24,10 @@ state stays that of the evolution just logged and checkpointed.
 
 import copy
 import os
-import pickle
 import time
 
 import pygmo as pg
 
-from leverage.search.udp import params_by_key
 from leverage.search.workers import WorkerPool
 
 
@@ -57,18 +55,9 @@ class SerialIslands:
         pass
 
 
-def _evolve_share(task):
-    """Evolve several islands once, in turn (runs in a worker process). ``task`` is
-    (by_key, pairs); by_key: the islands came with their problems' parameters as keys
-    (``udp.params_by_key``; the worker was forked holding them), and go back so."""
-    by_key, pairs = task
-    with params_by_key(by_key):
-        out = [_evolve_pair(pair) for pair in pairs]
-        return pickle.dumps(out, protocol=pickle.HIGHEST_PROTOCOL) if by_key else out
-
-
-def _received(result, by_key: bool):
-    return pickle.loads(result) if by_key else result
+def _evolve_pairs(pairs):
+    """Evolve several islands once, in turn (runs in a worker process)."""
+    return [_evolve_pair(pair) for pair in pairs]
 
 
 def shares(items: list, n: int) -> list:
@@ -101,35 +90,25 @@ class ProcessIslands:
     def _tasks(self, algorithms, populations):
         if self._pool is None:
             self._pool = WorkerPool(self.workers)
-        pairs = list(zip(algorithms, populations))
-        return [(self._by_key, share) for share in shares(pairs, self.workers)]
+        return shares(list(zip(algorithms, populations)), self.workers)
 
-    @property
-    def _by_key(self) -> bool:
-        # Forked workers hold the parent's parameter arrays: send keys, not 110 kB
-        # tables (benchmarks/README.md); spawned ones do not.
-        return self._pool.start_method == "fork"
-
-    def _flat(self, results):
-        pairs = [pair for r in results for pair in _received(r, self._by_key)]
+    @staticmethod
+    def _flat(results):
+        pairs = [pair for share in results for pair in share]
         return [a for a, _ in pairs], [p for _, p in pairs]
 
     def evolve(self, algorithms, populations):
         tasks = self._tasks(algorithms, populations)
-        with params_by_key(self._by_key):
-            return self._flat(self._pool.map(_evolve_share, tasks))
+        return self._flat(self._pool.map(_evolve_pairs, tasks))
 
     def submit(self, algorithms, populations):
         """Start one evolution of every island and return at once (``collect`` waits)."""
         tasks = self._tasks(algorithms, populations)
-        with params_by_key(self._by_key):  # the tasks are pickled as they are sent
-            self._pool.submit(_evolve_share, tasks)
+        self._pool.submit(_evolve_pairs, tasks)
 
     def collect(self):
         """The algorithms and populations of the submitted evolution, in island order."""
-        results = self._pool.collect()
-        with params_by_key(self._by_key):
-            return self._flat(results)
+        return self._flat(self._pool.collect())
 
     def close(self):
         if self._pool is not None:

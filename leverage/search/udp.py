@@ -17,38 +17,9 @@ import os
 if "OMP_WAIT_POLICY" not in os.environ:
     os.environ.setdefault("GOMP_SPINCOUNT", "1000")
 
-import hashlib  # noqa: E402
-import weakref  # noqa: E402
-from contextlib import contextmanager  # noqa: E402
-
 import numpy as np  # noqa: E402
 
 from leverage.core import box, trajectory  # noqa: E402
-
-# Parameter arrays by content key, so a UDP can be pickled without its array (a DE421
-# problem's is 110 kB, most of a population's pickle) to a process that already holds
-# it: a worker forked after the UDP was made. Weak: an entry goes with its last UDP.
-_SHARED = weakref.WeakValueDictionary()
-_BY_KEY = [False]
-
-
-def _params_key(params: np.ndarray) -> str:
-    return hashlib.blake2b(params.tobytes(), digest_size=16).hexdigest()
-
-
-@contextmanager
-def params_by_key(on: bool = True):
-    """Within this block, UDPs pickle their parameter array as its key (``on``).
-
-    Only for pickles read by this process or by a worker forked from it after the UDPs
-    were made (``search.islands.ProcessIslands``): there the key finds the same array.
-    A checkpoint, a spawned process or a cluster engine needs the array itself."""
-    before = _BY_KEY[0]
-    _BY_KEY[0] = on
-    try:
-        yield
-    finally:
-        _BY_KEY[0] = before
 
 
 def reraise_interrupt(exc: SystemError):
@@ -79,19 +50,6 @@ class LeveragingUDP:
         # True: batches are evaluated on the calling thread (islands in worker
         # processes, one core each; and no OpenMP threads in a parent that forks them).
         self.one_thread = bool(one_thread)
-        self._key = _params_key(self.params)
-        _SHARED.setdefault(self._key, self.params)
-
-    def __getstate__(self):
-        state = self.__dict__.copy()
-        if _BY_KEY[0] and _SHARED.get(state.get("_key")) is not None:
-            state["params"] = None  # params_by_key: the receiver holds the array
-        return state
-
-    def __setstate__(self, state):
-        if state.get("params") is None:
-            state["params"] = _SHARED[state["_key"]]
-        self.__dict__.update(state)
 
     @classmethod
     def from_compiled(cls, compiled, name="leverage", one_thread=False):

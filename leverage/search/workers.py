@@ -74,7 +74,6 @@ class WorkerPool:
         if n < 1:
             raise ValueError("a worker pool needs at least one worker")
         ctx = mp.get_context(start_method)
-        self.start_method = start_method
         self._workers = []
         self._busy = set()
         self._pending = None  # (item count, run) of a submitted run

@@ -18,7 +18,7 @@ from leverage.problem.load import load_problem
 from leverage.run.runner import make_search, resumed_settings, settings_from
 from leverage.search import checkpoint
 from leverage.search.islands import ProcessIslands, SerialIslands, shares
-from leverage.search.udp import LeveragingUDP, WidenedUDP, params_by_key
+from leverage.search.udp import LeveragingUDP
 
 SMALL = {
     "islands": 2,
@@ -295,29 +295,6 @@ def test_more_islands_than_workers_give_the_same_champion(demo_path):
         pool.close()
     np.testing.assert_array_equal(x1, x2)
     assert f1[0] == f2[0]
-
-
-def test_workers_get_parameters_by_key_and_checkpoints_keep_them_whole(demo_path, tmp_path):
-    """Between this process and its forked workers a population travels without its
-    problem's DE421 table (``udp.params_by_key``); a checkpoint carries it whole."""
-    problem = load_problem(demo_path)
-    search, settings = small_search(problem)
-    pop = search.state.populations[0]
-    size = len(checkpoint.encode({"x": pop}))
-    with params_by_key():
-        light = pickle.dumps(pop)
-    assert len(light) < size / 5 and size > 100_000  # the table is ~110 kB
-    back = pickle.loads(light).problem.extract(WidenedUDP)
-    assert back.params is search.udp.params or np.array_equal(back.params, search.udp.params)
-    pool = ProcessIslands(2)
-    try:
-        in_workers, _ = small_search(problem, pool)
-        in_workers.step()
-        in_workers.step()
-    finally:
-        pool.close()
-    path = checkpoint.save(tmp_path, problem, settings, in_workers)
-    assert path.stat().st_size > 2 * 100_000  # both islands' tables, not keys
 
 
 def test_shares_cut_the_islands_in_order_and_evenly():

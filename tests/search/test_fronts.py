@@ -14,7 +14,10 @@ import csv
 import json
 
 import numpy as np
+import pygmo as pg
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from leverage.core import layout as L
 from leverage.errors import ProblemError
@@ -37,6 +40,28 @@ def test_non_dominated_keeps_exactly_the_undominated_rows():
     for i in range(len(f)):
         undominated = not any(dominates(f[j], f[i]) for j in range(len(f)) if j != i)
         assert (i in keep) == undominated
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    st.integers(2, 3),
+    st.lists(
+        st.tuples(st.integers(0, 6), st.integers(0, 6), st.integers(0, 6)), min_size=1, max_size=40
+    ),
+)
+def test_non_dominated_is_pygmos_first_front(n_obj, rows):
+    """Against pygmo's fast non-dominated sorting (Deb et al. 2002), on small integer
+    grids so ties and equal rows are common (the two-objective sweep has its own code)."""
+    f = np.array(rows, dtype=float)[:, :n_obj]
+    keep = non_dominated(f)
+    _, first = np.unique(f, axis=0, return_index=True)
+    first = np.sort(first)
+    expected = (
+        first[np.sort(np.asarray(pg.fast_non_dominated_sorting(f[first])[0][0], dtype=int))]
+        if len(first) > 1
+        else first
+    )
+    assert keep.tolist() == expected.tolist()
 
 
 def test_non_dominated_drops_duplicates():

@@ -15,7 +15,7 @@ Only ``leverage.search.udp.LeveragingUDP`` problems (exact type) can be evolved:
 kernel calls ``core.trajectory`` with the problem's parameter array.
 
 Random numbers: each call seeds the kernel with a 32-bit value drawn from the
-algorithm's seed and the number of calls made so far (``numpy.random.SeedSequence``),
+algorithm's seed and the number of calls made so far (``search.seeds.call_seed``),
 so successive calls differ, the same seed repeats a search, and an algorithm pickled
 between calls (worker processes, checkpoints) continues exactly as the original would.
 """
@@ -25,6 +25,7 @@ import copy
 import numpy as np
 
 from leverage.core import nsga2
+from leverage.search.seeds import call_seed
 from leverage.search.udp import LeveragingUDP, reraise_interrupt
 
 DEFAULT_CR = 0.95  # crossover probability (pygmo nsga2's default)
@@ -57,11 +58,6 @@ class CompiledNSGA2:
         self.seed = int(seed)
         self.calls = 0
 
-    def call_seed(self) -> int:
-        """The 32-bit seed of the next evolve call."""
-        entropy = np.random.SeedSequence((self.seed, self.calls))
-        return int(entropy.generate_state(1, np.uint32)[0])
-
     def evolve(self, pop):
         udp = pop.problem.extract(LeveragingUDP)
         if udp is None:
@@ -80,7 +76,7 @@ class CompiledNSGA2:
         pop = copy.deepcopy(pop)
         lower, upper = (np.asarray(b, dtype=float) for b in pop.problem.get_bounds())
         m = 1.0 / len(lower) if self.m is None else self.m
-        seed32 = self.call_seed()
+        seed32 = call_seed(self.seed, self.calls)
         self.calls += 1
         try:
             x, f = nsga2.evolve(

@@ -1,8 +1,6 @@
 """Tests of leverage.search.compiled_de: the compiled DE as a pygmo algorithm.
 
-Outside sources: the splitmix64 generator's published reference output (Steele, Lea
-and Flood 2014; Vigna's reference C code: state 1234567 gives 6457827717110365317
-first, from memory) for the per-call seeds; pygmo's own population bookkeeping
+Outside sources: pygmo's own population bookkeeping
 (evaluation count, champion) for the wrapper. The demo problem (problems/demo.toml)
 is an invented scenario.
 """
@@ -14,15 +12,8 @@ import pygmo as pg
 import pytest
 
 from leverage.problem.load import load_problem
-from leverage.search.compiled_de import CompiledDE, call_seed
+from leverage.search.compiled_de import CompiledDE
 from leverage.search.udp import LeveragingUDP, WidenedUDP
-
-
-def test_call_seed_is_splitmix64_of_seed_and_call():
-    # state = seed * 2^32 + call; one splitmix64 step; its low 32 bits
-    assert call_seed(0, 1234567) == 6457827717110365317 & 0xFFFFFFFF
-    seeds = {call_seed(s, c) for s in range(200) for c in range(50)}
-    assert len(seeds) == 200 * 50  # no two (seed, call) pairs share a stream here
 
 
 @pytest.fixture(scope="module")

@@ -330,8 +330,8 @@ def test_disk_full_during_the_search_writes_the_best_design_and_resumes(tmp_path
     out = tmp_path / "run"
     driver = tmp_path / "fill.py"
     driver.write_text(FILL_MID_SEARCH.format(root=str(ROOT)))
-    # 5 evolutions of the demo's 200 generations: the disk fills at the third
-    args = [str(DEMO), "--out", str(out), "--workers", "1", "--generations", "1000", "--quiet"]
+    # 4 evolutions of the demo's 500 generations: the disk fills at the third
+    args = [str(DEMO), "--out", str(out), "--workers", "1", "--generations", "2000", "--quiet"]
     proc = subprocess.run(
         [sys.executable, str(driver), "run", *args],
         env=ENV,

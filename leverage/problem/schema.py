@@ -577,10 +577,11 @@ KEYS = [
         maximum=MAX_ISLANDS,
     ),
     # Defaults chosen by benchmarks/search_quality.py (benchmarks/README.md, "Compiled
-    # differential evolution"): 2 islands x 64 x 4000 generations of the compiled de,
-    # with the widened box and 1000-generation restart epochs of search.single, 200
-    # generations per migration (50 cost the run ~20% in per-evolution work for the
-    # same hits).
+    # search, end of round"): 2 islands x 64 x 4000 generations of the compiled de,
+    # with the widened box and 1000-generation restart epochs of search.single, 500
+    # generations per migration (each evolution costs the run a few ms of sending,
+    # logging and waiting: 50 ran ~20% slower than 200, 200 ~14% slower than 500, for
+    # the same hits within one seed).
     Key(
         "search", "population", "integer", 64, "Individuals per island.", minimum=8, maximum=100000
     ),
@@ -589,7 +590,7 @@ KEYS = [
         "search",
         "generations_per_migration",
         "integer",
-        200,
+        500,
         "Generations between migrations (and log lines).",
         minimum=1,
     ),

@@ -209,14 +209,19 @@ def test_resume_refuses_another_problem_in_one_line(demo_path, tmp_path, capsys)
     assert "--islands = 3: the run being resumed used 1" in capsys.readouterr().err
 
 
+def small_front(problems_dir, algorithm):
+    """The trade-front template and small search settings with ``algorithm``."""
+    problem = load_problem(problems_dir / "trade-front.toml")
+    over = {"islands": 2, "population": 16, "generations": 30, "generations_per_migration": 10}
+    return problem, {**over, "algorithm": algorithm}
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("algorithm", ["nsga2", "pygmo_nsga2"])
 def test_a_front_search_checkpoints_the_same_way(problems_dir, tmp_path, algorithm):
     # FrontSearch (leverage/fronts.py) keeps an archive in its state; the checkpoint
     # pickles whatever the state holds, so a resumed front search ends the same.
-    problem = load_problem(problems_dir / "trade-front.toml")
-    over = {"islands": 2, "population": 16, "generations": 30, "generations_per_migration": 10}
-    over["algorithm"] = algorithm
+    problem, over = small_front(problems_dir, algorithm)
 
     def fresh():
         settings = settings_from(problem, over)
@@ -259,9 +264,7 @@ def test_the_largest_allowed_seed_and_island_fit_pygmo():
 def test_a_front_search_gives_the_same_front_in_worker_processes(problems_dir, tmp_path, algorithm):
     # In worker processes each island evolves on one thread (one-thread batches); in
     # this process each batch is spread over the cores. Same seed, same front and log.
-    problem = load_problem(problems_dir / "trade-front.toml")
-    over = {"islands": 2, "population": 16, "generations": 30, "generations_per_migration": 10}
-    over["algorithm"] = algorithm
+    problem, over = small_front(problems_dir, algorithm)
     serial, _ = small_search(problem, SerialIslands(), **over)
     x_ref, f_ref = run_out(serial)
     pool = ProcessIslands(2)

@@ -3,7 +3,7 @@ compiled fitness (``core.diffevo``), wrapped as a pygmo user-defined algorithm s
 islands, populations, migration and checkpoints work as with pygmo's own.
 
 pygmo's ``de`` calls the fitness once per member through Python; here one ``evolve``
-is one compiled call (benchmarks/README.md, "Compiled differential evolution", has
+is one compiled call (benchmarks/README.md, "Compiled search, end of round", has
 the measured cost against the floor). The algorithm is DE/rand/1/exp with
 weight 0.8 and crossover 0.9, the variant and settings pygmo's ``de`` uses by
 default; its search quality was measured on the reference problems before it became
@@ -16,7 +16,7 @@ import numpy as np
 
 from leverage.core import diffevo
 from leverage.search.seeds import call_seed
-from leverage.search.udp import LeveragingUDP, WidenedUDP, reraise_interrupt
+from leverage.search.udp import LeveragingUDP, WidenedUDP, call_kernel
 
 WEIGHT = 0.8  # differential weight F (Storn and Price 1997)
 CROSSOVER = 0.9  # crossover probability CR
@@ -61,22 +61,20 @@ class CompiledDE:
         x0 = pop.get_x()
         f0 = np.ascontiguousarray(pop.get_f()[:, 0])
         seed = call_seed(self.seed, self.calls)
-        try:
-            x, f, used = diffevo.evolve(
-                x0,
-                f0,
-                self.gen,
-                self.weight,
-                self.crossover,
-                lo,
-                hi,
-                udp.lower,
-                udp.upper,
-                udp.params,
-                seed,
-            )
-        except SystemError as exc:
-            reraise_interrupt(exc)
+        x, f, used = call_kernel(
+            diffevo.evolve,
+            x0,
+            f0,
+            self.gen,
+            self.weight,
+            self.crossover,
+            lo,
+            hi,
+            udp.lower,
+            udp.upper,
+            udp.params,
+            seed,
+        )
         self.calls += 1
         for i in np.flatnonzero((x != x0).any(axis=1)):
             pop.set_xf(int(i), x[i], [f[i]])

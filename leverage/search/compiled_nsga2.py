@@ -26,7 +26,7 @@ import numpy as np
 
 from leverage.core import nsga2
 from leverage.search.seeds import call_seed
-from leverage.search.udp import LeveragingUDP, reraise_interrupt
+from leverage.search.udp import LeveragingUDP, call_kernel
 
 DEFAULT_CR = 0.95  # crossover probability (pygmo nsga2's default)
 DEFAULT_ETA_C = 10.0  # SBX distribution index (pygmo nsga2's default)
@@ -78,24 +78,22 @@ class CompiledNSGA2:
         m = 1.0 / len(lower) if self.m is None else self.m
         seed32 = call_seed(self.seed, self.calls)
         self.calls += 1
-        try:
-            x, f = nsga2.evolve(
-                np.ascontiguousarray(pop.get_x(), dtype=float),
-                np.ascontiguousarray(pop.get_f(), dtype=float),
-                lower,
-                upper,
-                udp.params,
-                self.gen,
-                self.cr,
-                self.eta_c,
-                m,
-                self.eta_m,
-                seed32,
-                # getattr: a UDP pickled by an older version has no flag
-                not getattr(udp, "one_thread", False),
-            )
-        except SystemError as exc:
-            reraise_interrupt(exc)
+        x, f = call_kernel(
+            nsga2.evolve,
+            np.ascontiguousarray(pop.get_x(), dtype=float),
+            np.ascontiguousarray(pop.get_f(), dtype=float),
+            lower,
+            upper,
+            udp.params,
+            self.gen,
+            self.cr,
+            self.eta_c,
+            m,
+            self.eta_m,
+            seed32,
+            # getattr: a UDP pickled by an older version has no flag
+            not getattr(udp, "one_thread", False),
+        )
         for i in range(n):
             pop.set_xf(i, x[i], f[i])
         pop.problem.increment_fevals(self.gen * n)

@@ -38,6 +38,15 @@ def reraise_interrupt(exc: SystemError):
     raise exc
 
 
+def call_kernel(kernel, *args):
+    """``kernel(*args)`` (a compiled function), a signal's KeyboardInterrupt raised as
+    itself rather than inside a SystemError (``reraise_interrupt``)."""
+    try:
+        return kernel(*args)
+    except SystemError as exc:
+        reraise_interrupt(exc)
+
+
 class LeveragingUDP:
     """pygmo problem over the decision vector described in ``core.layout``."""
 
@@ -64,20 +73,14 @@ class LeveragingUDP:
         )
 
     def fitness(self, x):
-        try:
-            return trajectory.fitness(np.asarray(x, dtype=float), self.params)
-        except SystemError as exc:
-            reraise_interrupt(exc)
+        return call_kernel(trajectory.fitness, np.asarray(x, dtype=float), self.params)
 
     def batch_fitness(self, dvs):
         xs = np.asarray(dvs, dtype=float).reshape(-1, self.lower.shape[0])
-        try:
-            # getattr: a UDP pickled in a checkpoint of an older version has no flag
-            if getattr(self, "one_thread", False):
-                return trajectory.batch_fitness_one_thread(xs, self.params).ravel()
-            return trajectory.batch_fitness(xs, self.params).ravel()
-        except SystemError as exc:
-            reraise_interrupt(exc)
+        # getattr: a UDP pickled in a checkpoint of an older version has no flag
+        if getattr(self, "one_thread", False):
+            return call_kernel(trajectory.batch_fitness_one_thread, xs, self.params).ravel()
+        return call_kernel(trajectory.batch_fitness, xs, self.params).ravel()
 
     def has_batch_fitness(self):
         return True
@@ -99,18 +102,12 @@ class LeveragingUDP:
 
     def details(self, x):
         """All derived quantities of one point (slots in core.layout)."""
-        try:
-            return trajectory.details(np.asarray(x, dtype=float), self.params)
-        except SystemError as exc:
-            reraise_interrupt(exc)
+        return call_kernel(trajectory.details, np.asarray(x, dtype=float), self.params)
 
     def batch_details(self, xs):
         """``details`` of every row of xs (rows of N_Q quantities)."""
         xs = np.asarray(xs, dtype=float).reshape(-1, self.lower.shape[0])
-        try:
-            return trajectory.batch_details(xs, self.params)
-        except SystemError as exc:
-            reraise_interrupt(exc)
+        return call_kernel(trajectory.batch_details, xs, self.params)
 
 
 class WidenedUDP(LeveragingUDP):
@@ -139,19 +136,12 @@ class WidenedUDP(LeveragingUDP):
         return np.minimum(np.maximum(np.asarray(x, dtype=float), self.lower), self.upper)
 
     def fitness(self, x):
-        try:
-            return box.fitness_clipped(
-                np.asarray(x, dtype=float), self.lower, self.upper, self.params
-            )
-        except SystemError as exc:
-            reraise_interrupt(exc)
+        x = np.asarray(x, dtype=float)
+        return call_kernel(box.fitness_clipped, x, self.lower, self.upper, self.params)
 
     def batch_fitness(self, dvs):
         xs = self.clip(np.asarray(dvs, dtype=float).reshape(-1, self.lower.shape[0]))
-        try:
-            return trajectory.batch_fitness(xs, self.params).ravel()
-        except SystemError as exc:
-            reraise_interrupt(exc)
+        return call_kernel(trajectory.batch_fitness, xs, self.params).ravel()
 
     def get_bounds(self):
         return (self.box_lower, self.box_upper)

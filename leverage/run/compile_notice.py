@@ -3,8 +3,8 @@ update takes 20-60 s (23 s on a quiet 2-core machine, 41-57 s at a load of 3-4;
 benchmarks/README.md "Start-up") and was silent before.
 
 ``warm_up(udp, x, stream)`` evaluates one point with every compiled entry point the
-search will call (``fitness`` and ``details``; ``batch_fitness`` only for a front, the
-only search that evaluates in batches), inside ``CompileNotice``. The notice listens to
+search will call (``fitness``, ``details`` and ``batch_details``; ``batch_fitness`` only
+for a front, the only search that evaluates in batches), inside ``CompileNotice``. The notice listens to
 numba's ``numba:compile`` events, which numba sends only when it compiles (never
 when it loads a function from its cache): on a warm cache it prints nothing. On a cold
 one it prints what is happening, a live count of the functions compiled with the
@@ -124,6 +124,9 @@ def warm_up(
         udp.fitness(x)
         notice.step(f"[2/{steps}] the derived quantities")
         udp.details(x)
+        # Loading even a cached kernel takes ~40 ms (measured); a search's first log
+        # row calls batch_details, where that load would compete with the workers.
+        udp.batch_details(np.asarray(x, dtype=float)[None, :])
         if batch:
             notice.step(f"[3/{steps}] the parallel batch evaluation")
             udp.batch_fitness(np.asarray(x, dtype=float)[None, :])

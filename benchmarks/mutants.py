@@ -113,10 +113,18 @@ MUTANTS = (
     Mutant(
         "penalty-skips-last-margin",
         "leverage/core/penalties.py",
-        "for k in range(L.N_MARGINS):",
-        "for k in range(L.N_MARGINS - 1):",
+        "for k in range(L.N_MARGINS):\n        s += margin_penalty",
+        "for k in range(L.N_MARGINS - 1):\n        s += margin_penalty",
         ("tests/core/test_penalties.py",),
         "the last margin (arrival window) never penalised",
+    ),
+    Mutant(
+        "feasible-flag-of-last-branch",
+        "leverage/core/trajectory.py",
+        "        q[L.Q_FEASIBLE] = best_feasible  # the scoring pass's q holds the last branch",
+        "        pass",
+        ("tests/core/test_penalties.py",),
+        "the scoring pass's feasibility flag is the last Lambert branch's, not the kept one's",
     ),
     Mutant(
         "powered-burn-half-well",

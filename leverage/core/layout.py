@@ -159,7 +159,8 @@ Q_R_ARRIVAL = 75
 Q_V_ARRIVAL = 78  # spacecraft heliocentric velocity arriving at the target
 Q_V_TARGET_ARRIVAL = 81  # the target's heliocentric velocity at arrival
 Q_PENALTY = 84  # total penalty added to each objective
-N_Q = 85
+Q_FEASIBLE = 85  # 1 if every leg solved and every limit margin >= 0 (penalties.all_limits_hold)
+N_Q = 86
 
 # --- limits ----------------------------------------------------------------
 # The way that tightens each limit slot of ``p``: +1 raises a minimum, -1 lowers a

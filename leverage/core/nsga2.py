@@ -328,21 +328,132 @@ def next_generation(x, f, children, f_children):
 
 
 @njit(cache=True)
-def evolve(x, f, lower, upper, p, generations, cr, eta_c, m, eta_m, seed32, threads):
+def front_of_two(f):
+    """Rows of a two-column f (minimised) that no other row dominates or equals (of
+    equal rows the first in sort order), in order of the first objective: sorted by
+    the first objective, then the second, a row is kept when its second objective is
+    below every earlier row's (Kung, Luccio and Preparata 1975, J. ACM 22(4))."""
+    by_second = np.argsort(f[:, 1], kind="mergesort")
+    first = np.empty(f.shape[0])
+    for a in range(f.shape[0]):
+        first[a] = f[by_second[a], 0]
+    order = by_second[np.argsort(first, kind="mergesort")]
+    keep = np.empty(f.shape[0], np.int64)
+    kept = 0
+    lowest = np.inf
+    for i in order:
+        if f[i, 1] < lowest:
+            keep[kept] = i
+            kept += 1
+            lowest = f[i, 1]
+    return keep[:kept]
+
+
+@njit(cache=True)
+def archive_merge(ax, af, count, bx, bf, nb):
+    """Merge the nb offered designs bx[:nb], bf[:nb] into the archive ax[:count],
+    af[:count] of mutually non-dominated designs (two minimised objectives); returns
+    the new count. Designs dominated by or equal to another leave (``front_of_two``);
+    beyond the archive's capacity (its rows) it keeps its 3/4 most spread members:
+    largest crowding distance, its two extreme members first (the crowded truncation
+    of Deb et al. 2002, Sec. III-B, on one front)."""
+    all_x = np.vstack((ax[:count], bx[:nb]))
+    all_f = np.vstack((af[:count], bf[:nb]))
+    keep = front_of_two(all_f)
+    if keep.shape[0] > ax.shape[0]:
+        crowd = np.zeros(all_f.shape[0])
+        _crowd_front(all_f, keep, crowd)
+        spread = np.argsort(-crowd[keep], kind="mergesort")[: ax.shape[0] * 3 // 4]
+        keep = keep[np.sort(spread)]
+    for a in range(keep.shape[0]):
+        ax[a] = all_x[keep[a]]
+        af[a] = all_f[keep[a]]
+    return keep.shape[0]
+
+
+@njit(cache=True)
+def settle(x, f, children, f_children, feasible, archive):
+    """The second half of a generation: the feasible children offered to the archive
+    (two objectives; ``archive`` = (ax, af, bx, bf, counts): the archive, a buffer of
+    offers of the same size, and counts[0] members, counts[1] offers; the buffer is
+    merged when full, ``archive_merge``), then elitist survival (``next_generation``).
+    Returns (x, f, rank, crowd)."""
+    ax, af, bx, bf, counts = archive
+    if ax.shape[0] > 0:
+        for i in range(children.shape[0]):
+            if feasible[i]:
+                if counts[1] == bx.shape[0]:
+                    counts[0] = archive_merge(ax, af, counts[0], bx, bf, counts[1])
+                    counts[1] = 0
+                bx[counts[1]] = children[i]
+                bf[counts[1]] = f_children[i]
+                counts[1] += 1
+    return next_generation(x, f, children, f_children)
+
+
+@njit(cache=True)
+def new_archive(rows, n_var, n_obj):
+    """An empty archive for ``settle`` (no archive when rows is 0 or n_obj is not 2)."""
+    rows = rows if n_obj == 2 else 0
+    return (
+        np.empty((rows, n_var)),
+        np.empty((rows, n_obj)),
+        np.empty((rows, n_var)),
+        np.empty((rows, n_obj)),
+        np.zeros(2, np.int64),
+    )
+
+
+@njit(cache=True)
+def archive_contents(archive):
+    """(x, f) of the archive's members after merging its pending offers."""
+    ax, af, bx, bf, counts = archive
+    if counts[1] > 0:
+        counts[0] = archive_merge(ax, af, counts[0], bx, bf, counts[1])
+        counts[1] = 0
+    return ax[: counts[0]].copy(), af[: counts[0]].copy()
+
+
+@njit(cache=True)
+def evolve(x, f, lower, upper, p, generations, cr, eta_c, m, eta_m, seed32, archive_rows):
     """``generations`` NSGA-II generations of the population (x: rows of decision
     vectors in [lower, upper]; f: their objectives from ``trajectory.fitness`` with
-    parameter array p), all in this call. Children are evaluated a generation at a
-    time by ``trajectory.batch_fitness`` (threads True: numba's threads) or
-    ``batch_fitness_one_thread`` (the same values on this thread). Returns the final
-    (x, f); evaluations made: generations * len(x)."""
+    parameter array p), all in this call, on this thread: the children are evaluated
+    a generation at a time by ``trajectory.batch_scores_one_thread``.
+
+    With two objectives every feasible child is offered to an archive of at most
+    ``archive_rows`` mutually non-dominated designs (``settle``), so the feasible front
+    of every generation is kept, not only of the last; with more, none is kept.
+
+    Returns the final (x, f) and the archive's (x, f); evaluations made:
+    generations * len(x)."""
     np.random.seed(seed32)
     rank = non_dominated_ranks(f)
     crowd = crowding_distances(f, rank)
+    archive = new_archive(archive_rows, x.shape[1], f.shape[1])
     for _ in range(generations):
         children = offspring(x, rank, crowd, lower, upper, cr, eta_c, m, eta_m)
-        if threads:
-            f_children = trajectory.batch_fitness(children, p)
-        else:
-            f_children = trajectory.batch_fitness_one_thread(children, p)
-        x, f, rank, crowd = next_generation(x, f, children, f_children)
-    return x, f
+        f_children, feasible = trajectory.batch_scores_one_thread(children, p)
+        x, f, rank, crowd = settle(x, f, children, f_children, feasible, archive)
+    met_x, met_f = archive_contents(archive)
+    return x, f, met_x, met_f
+
+
+def evolve_in_threads(
+    x, f, lower, upper, p, generations, cr, eta_c, m, eta_m, seed32, archive_rows
+):
+    """``evolve`` with each generation's children evaluated in numba's threads
+    (``trajectory.batch_scores``): the same result, the generations driven from Python
+    (a cached compiled function must not call a numba-parallel one; see
+    ``trajectory.batch_fitness``). For a search in one process; ~20 us of Python a
+    generation against ~100-200 us of evaluations."""
+    seed(seed32)
+    rank = non_dominated_ranks(f)
+    crowd = crowding_distances(f, rank)
+    archive = new_archive(archive_rows, x.shape[1], f.shape[1])
+    for _ in range(generations):
+        children = offspring(x, rank, crowd, lower, upper, cr, eta_c, m, eta_m)
+        f_children, feasible = trajectory.batch_scores(children, p)
+        x, f, rank, crowd = settle(x, f, children, f_children, feasible, archive)
+    met_x, met_f = archive_contents(archive)
+    return x, f, met_x, met_f

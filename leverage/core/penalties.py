@@ -48,6 +48,19 @@ def margin_penalty(margin, scale):
 
 
 @njit(cache=True)
+def all_limits_hold(q):
+    """The feasibility rule, the one place it is written: 1.0 if every leg solved and
+    every limit margin is >= 0 (from the margins, not the penalty: a zero
+    penalty_weight must not hide a violation; a NaN margin does not hold), else 0.0."""
+    if q[L.Q_OK] != 1.0:
+        return 0.0
+    for k in range(L.N_MARGINS):
+        if not q[L.Q_MARGIN_ALT_KM + k] >= 0.0:
+            return 0.0
+    return 1.0
+
+
+@njit(cache=True)
 def total_penalty(q, weight):
     """Weighted sum of the penalties of every margin slot in ``q`` (> 0 iff a limit
     fails, for weight > 0)."""

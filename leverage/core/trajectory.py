@@ -35,7 +35,7 @@ from .frames import direction_from_angles, launch_asymptote, rtn_components, vel
 from .kepler import orbit_shape, propagate
 from .lambert import branch_range, branch_revs, lambert
 from .mass import injected_mass, mass_ratio
-from .penalties import total_penalty
+from .penalties import all_limits_hold, total_penalty
 from .vec3 import dot, norm
 
 FAIL_OBJECTIVE = 1.0e3  # objective value of a point whose legs could not be solved
@@ -313,6 +313,7 @@ def _mark_failed(q):
         q[L.Q_MARGIN_ALT_KM + k] = np.inf
     q[L.Q_MARGIN_LAMBERT] = -1.0
     q[L.Q_PENALTY] = np.inf
+    q[L.Q_FEASIBLE] = 0.0
 
 
 @njit(cache=True)
@@ -325,7 +326,7 @@ def evaluate(x, p, q, f, full):
     ``full=False`` is the scoring pass of a search: f is the same to the last bit,
     but q is only scratch (quantities that no objective or limit uses, such as the
     event states and the DSM's components, are not computed; ``details`` computes
-    them). Callers pass ``full`` as ``np.bool_``, a run-time value: a literal
+    them) except ``q[Q_FEASIBLE]``, the kept branch's feasibility in either pass. Callers pass ``full`` as ``np.bool_``, a run-time value: a literal
     True/False made numba compile this function and its callees twice (measured:
     cold compile 28 -> 24 s, the scoring pass's speed unchanged, results bit-identical).
     """
@@ -351,6 +352,7 @@ def evaluate(x, p, q, f, full):
     trial = q.copy() if full else q
     f_trial = np.empty_like(f)
     best = np.inf
+    best_feasible = 0.0
     for branch in range(first, last + 1):
         vinf_in, solved = _loop_arc(p, trial, branch, r1, v1m, r2, vb2, full)
         if not solved:
@@ -362,15 +364,19 @@ def evaluate(x, p, q, f, full):
             _finish(p, trial, r2, vb2 + _free_flyby(x, p, trial, vinf_in), full)
         trial[L.Q_OK] = 1.0
         trial[L.Q_PENALTY] = total_penalty(trial, p[L.P_PENALTY_WEIGHT])
+        trial[L.Q_FEASIBLE] = all_limits_hold(trial)
         objectives(trial, p, f_trial)
         if f_trial[0] < best:
             best = f_trial[0]
+            best_feasible = trial[L.Q_FEASIBLE]
             if full:
                 q[:] = trial
             f[:] = f_trial
     if best == np.inf:
         _mark_failed(q)
         objectives(q, p, f)
+    else:
+        q[L.Q_FEASIBLE] = best_feasible  # the scoring pass's q holds the last branch
 
 
 @njit(cache=True)
@@ -383,32 +389,50 @@ def fitness(x, p):
 
 
 @njit(cache=True, parallel=True)
-def batch_fitness(xs, p):
-    """Objectives of many decision vectors (rows of xs), in parallel threads."""
+def batch_scores(xs, p):
+    """Objectives of many decision vectors (rows of xs), in parallel threads, and
+    whether each is feasible (``q[Q_FEASIBLE]`` of its scoring pass, as a bool)."""
     n = xs.shape[0]
     n_obj = int(p[L.P_N_OBJ])
     out = np.empty((n, n_obj))
+    feasible = np.empty(n, np.bool_)
     for i in prange(n):
         q = np.empty(L.N_Q)
         f = np.empty(n_obj)
         evaluate(xs[i], p, q, f, np.bool_(False))
         out[i, :] = f
-    return out
+        feasible[i] = q[L.Q_FEASIBLE] == 1.0
+    return out, feasible
 
 
 @njit(cache=True)
-def batch_fitness_one_thread(xs, p):
-    """``batch_fitness`` on this thread only (no thread pool is started): for worker
+def batch_scores_one_thread(xs, p):
+    """``batch_scores`` on this thread only (no thread pool is started): for worker
     processes that each evolve one island, and for a parent that will fork them."""
     n = xs.shape[0]
     n_obj = int(p[L.P_N_OBJ])
     out = np.empty((n, n_obj))
+    feasible = np.empty(n, np.bool_)
     q = np.empty(L.N_Q)
     f = np.empty(n_obj)
     for i in range(n):
         evaluate(xs[i], p, q, f, np.bool_(False))
         out[i, :] = f
-    return out
+        feasible[i] = q[L.Q_FEASIBLE] == 1.0
+    return out, feasible
+
+
+# Plain Python on purpose: a cached compiled function that calls a numba-parallel one
+# segfaults when a later process loads it from the cache (numba issue #8578;
+# reproduced here with numba 0.68.1), so only Python calls ``batch_scores``.
+def batch_fitness(xs, p):
+    """Objectives of many decision vectors (rows of xs), in parallel threads."""
+    return batch_scores(xs, p)[0]
+
+
+def batch_fitness_one_thread(xs, p):
+    """``batch_fitness`` on this thread only (``batch_scores_one_thread``)."""
+    return batch_scores_one_thread(xs, p)[0]
 
 
 @njit(cache=True)

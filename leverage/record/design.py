@@ -122,12 +122,11 @@ KNEE_MIN_DISTANCE = 0.02
 
 
 def feasible_rows(qs) -> np.ndarray:
-    """The feasibility rule, the one place it is written: every leg solved and every limit
-    margin >= 0 (from the margins, not the penalty: a zero penalty_weight must not hide a
-    violation). ``qs``: rows of the kernel's derived quantities; one bool per row."""
+    """Feasible rows of the kernel's derived quantities ``qs``: every leg solved and every
+    limit margin >= 0, as the kernel marked them (``core.penalties.all_limits_hold``,
+    where the rule is written); one bool per row."""
     qs = np.asarray(qs, dtype=float).reshape(-1, L.N_Q)
-    margins = qs[:, L.Q_MARGIN_ALT_KM : L.Q_MARGIN_ALT_KM + L.N_MARGINS]
-    return (qs[:, L.Q_OK] == 1.0) & np.all(margins >= 0.0, axis=1)
+    return qs[:, L.Q_FEASIBLE] == 1.0
 
 
 def feasible(q) -> bool:

@@ -3,7 +3,9 @@
 ``CompiledNSGA2.evolve(pop)`` hands the population's decision vectors and objectives to
 ``leverage.core.nsga2.evolve`` (Deb et al. 2002; the method and its operators are
 described there), which runs every generation of the call and evaluates the children
-with the compiled fitness itself, and writes the survivors back. pygmo's own nsga2
+with the compiled fitness itself, and writes the survivors back. The feasible
+non-dominated designs among all of the call's children come back too
+(``take_met``), so a front search sees every generation's front, not only the last. pygmo's own nsga2
 spends about as long per generation on its bookkeeping and on copying the problem (its
 110 kB parameter array) for each batch as on the 64 evaluations
 (benchmarks/README.md); here nothing runs in Python between generations.
@@ -31,6 +33,7 @@ from leverage.search.udp import LeveragingUDP, call_kernel
 DEFAULT_CR = 0.95  # crossover probability (pygmo nsga2's default)
 DEFAULT_ETA_C = 10.0  # SBX distribution index (pygmo nsga2's default)
 DEFAULT_ETA_M = 50.0  # polynomial-mutation distribution index (pygmo nsga2's default)
+ARCHIVE_ROWS = 600  # designs one call's archive holds (twice the front search's 300)
 
 
 class CompiledNSGA2:
@@ -53,6 +56,14 @@ class CompiledNSGA2:
         self.eta_m = float(eta_m)
         self.seed = int(seed)
         self.calls = 0  # evolve calls made: the second half of each call's seed
+        self.met = None  # (x, f) of the feasible non-dominated designs of the last call
+
+    def take_met(self):
+        """(x, f) of the feasible, mutually non-dominated designs among the children of
+        the last ``evolve`` call (rows; None before the first call or once taken), and
+        forget them (so they do not travel with the algorithm to the next call)."""
+        met, self.met = getattr(self, "met", None), None
+        return met
 
     def set_seed(self, seed):
         self.seed = int(seed)
@@ -78,8 +89,10 @@ class CompiledNSGA2:
         m = 1.0 / len(lower) if self.m is None else self.m
         seed32 = call_seed(self.seed, self.calls)
         self.calls += 1
-        x, f = call_kernel(
-            nsga2.evolve,
+        # getattr: a UDP pickled by an older version has no flag
+        threads = not getattr(udp, "one_thread", False)
+        x, f, met_x, met_f = call_kernel(
+            nsga2.evolve_in_threads if threads else nsga2.evolve,
             np.ascontiguousarray(pop.get_x(), dtype=float),
             np.ascontiguousarray(pop.get_f(), dtype=float),
             lower,
@@ -91,9 +104,9 @@ class CompiledNSGA2:
             m,
             self.eta_m,
             seed32,
-            # getattr: a UDP pickled by an older version has no flag
-            not getattr(udp, "one_thread", False),
+            ARCHIVE_ROWS,
         )
+        self.met = (met_x, met_f)
         for i in range(n):
             pop.set_xf(i, x[i], f[i])
         pop.problem.increment_fevals(self.gen * n)
@@ -118,5 +131,16 @@ def warm_up(udp, x):
     f = np.repeat(np.asarray(udp.fitness(x), dtype=float)[None, :], 8, axis=0)
     lower, upper = (np.asarray(b, dtype=float) for b in udp.get_bounds())
     nsga2.evolve(
-        xs, f, lower, upper, udp.params, 1, DEFAULT_CR, DEFAULT_ETA_C, 0.1, DEFAULT_ETA_M, 1, False
+        xs,
+        f,
+        lower,
+        upper,
+        udp.params,
+        1,
+        DEFAULT_CR,
+        DEFAULT_ETA_C,
+        0.1,
+        DEFAULT_ETA_M,
+        1,
+        ARCHIVE_ROWS,
     )

@@ -26,7 +26,10 @@ Outside sources, beside each check:
   0.033482 for real-coded NSGA-II on ZDT1 (from memory).
 - The whole-evolution kernel ``evolve`` is checked against the same pieces driven one
   generation at a time from Python (numba's generator is shared by the compiled
-  functions of a thread), which is how the ZDT1 run drives them with another fitness.
+  functions of a thread), which is how the ZDT1 run drives them with another fitness;
+  its archive against the non-dominated set, by pygmo.fast_non_dominated_sorting, of
+  every child whose margins from ``trajectory.batch_details`` all hold.
+- The archive's thinning keeps the members of largest pygmo.crowding_distance.
 The trade-front problem used for ``evolve`` is invented (problems/trade-front.toml).
 """
 
@@ -39,6 +42,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
+from leverage.core import layout as L
 from leverage.core import nsga2, trajectory
 from leverage.problem.load import load_problem
 
@@ -220,14 +224,23 @@ def test_mutated_points_stay_in_bounds(seed, eta_m, m):
 
 
 def drive(x, f, lower, upper, fitness, generations, cr, eta_c, m, eta_m, seed32):
-    """NSGA-II one generation at a time from Python, with any batch fitness."""
+    """NSGA-II one generation at a time from Python, with any batch fitness; returns
+    the final (x, f) and every child made (rows)."""
     nsga2.seed(seed32)
     rank = nsga2.non_dominated_ranks(f)
     crowd = nsga2.crowding_distances(f, rank)
+    made = []
     for _ in range(generations):
         children = nsga2.offspring(x, rank, crowd, lower, upper, cr, eta_c, m, eta_m)
+        made.append(children)
         x, f, rank, crowd = nsga2.next_generation(x, f, children, fitness(children))
-    return x, f
+    return x, f, np.vstack(made)
+
+
+def pygmo_front(f):
+    """Rows of f in pygmo's first front, duplicates dropped, as a set of tuples."""
+    fronts = pg.fast_non_dominated_sorting(f)[0]
+    return {tuple(row) for row in f[np.asarray(fronts[0], dtype=int)]}
 
 
 @pytest.fixture(scope="module")
@@ -241,8 +254,8 @@ def trade_front():
 def test_evolve_is_the_pieces_generation_by_generation(trade_front):
     c, x0, f0 = trade_front
     args = (c.lower, c.upper, c.params, 12, 0.95, 10.0, 0.125, 50.0, 1234)
-    x, f = nsga2.evolve(x0, f0, *args, False)
-    x_ref, f_ref = drive(
+    x, f, met_x, met_f = nsga2.evolve(x0, f0, *args, 1000)
+    x_ref, f_ref, children = drive(
         x0,
         f0,
         c.lower,
@@ -260,13 +273,69 @@ def test_evolve_is_the_pieces_generation_by_generation(trade_front):
     # the objectives handed back are those of the decision vectors handed back
     np.testing.assert_array_equal(f, trajectory.batch_fitness_one_thread(x, c.params))
     assert np.all(x >= c.lower) and np.all(x <= c.upper)
+    # the archive: the feasible children's non-dominated set (never full here), with
+    # each member's own objectives
+    q = trajectory.batch_details(children, c.params)
+    feasible = (q[:, L.Q_OK] == 1.0) & np.all(
+        q[:, L.Q_MARGIN_ALT_KM : L.Q_MARGIN_ALT_KM + L.N_MARGINS] >= 0.0, axis=1
+    )
+    assert 0 < feasible.sum() < len(children)  # the check means something
+    f_children = trajectory.batch_fitness_one_thread(children, c.params)
+    assert {tuple(r) for r in met_f} == pygmo_front(f_children[feasible])
+    assert len(met_f) == len({tuple(r) for r in met_f})
+    np.testing.assert_array_equal(met_f, trajectory.batch_fitness_one_thread(met_x, c.params))
+    # an archive just big enough merges its buffer of offers many times: the same set
+    rows = len(met_f)
+    assert feasible.sum() > 3 * rows
+    _, _, _, met_f_small = nsga2.evolve(x0, f0, *args, rows)
+    np.testing.assert_array_equal(met_f_small, met_f)
     # numba's threads give the same batches, so the same evolution
-    x_threads, f_threads = nsga2.evolve(x0, f0, *args, True)
+    x_threads, _, _, met_f_threads = nsga2.evolve_in_threads(x0, f0, *args, 1000)
     np.testing.assert_array_equal(x_threads, x)
+    np.testing.assert_array_equal(met_f_threads, met_f)
     # the same seed repeats it; another seed does not
-    np.testing.assert_array_equal(nsga2.evolve(x0, f0, *args, False)[0], x)
+    np.testing.assert_array_equal(nsga2.evolve(x0, f0, *args, 1000)[0], x)
     other = args[:-1] + (1235,)
-    assert not np.array_equal(nsga2.evolve(x0, f0, *other, False)[0], x)
+    assert not np.array_equal(nsga2.evolve(x0, f0, *other, 1000)[0], x)
+
+
+@settings(max_examples=200, deadline=None)
+@given(objective_sets(min_rows=2, max_rows=80), st.integers(1, 9))
+def test_archive_keeps_the_non_dominated_set_of_what_it_was_offered(case, batch):
+    n, _, seed, ties = case
+    f = draw_set((n, 2, seed, ties))
+    x = np.arange(n, dtype=float)[:, None] * np.ones((1, 3))  # row number, to trace
+    ax, af = np.empty((n + 1, 3)), np.empty((n + 1, 2))
+    count = 0
+    for start in range(0, n, batch):  # offered a few at a time, merged each time
+        stop = min(n, start + batch)
+        count = nsga2.archive_merge(ax, af, count, x[start:stop], f[start:stop], stop - start)
+    assert {tuple(r) for r in af[:count]} == pygmo_front(f)
+    assert count == len({tuple(r) for r in af[:count]})  # an equal design is dropped
+    np.testing.assert_array_equal(af[:count], f[ax[:count, 0].astype(int)])
+
+
+def test_a_full_archive_keeps_its_most_spread_members():
+    """Points on the front f2 = 1 - f1 (all non-dominated), unevenly spaced, merged
+    into an archive of 16 rows: it keeps the 12 (3/4) with the largest pygmo crowding
+    distance, the two extremes among them."""
+    rng = np.random.default_rng(5)
+    f1 = np.sort(rng.random(20))
+    f = np.column_stack((f1, 1.0 - f1))
+    shuffled = rng.permutation(20)
+    ax, af = np.empty((16, 1)), np.empty((16, 2))
+    count = nsga2.archive_merge(ax, af, 0, shuffled[:, None].astype(float), f[shuffled], 20)
+    kept = set(ax[:count, 0].astype(int))
+    assert count == 12
+    assert kept == set(np.argsort(-pg.crowding_distance(f), kind="stable")[:12])
+    assert {0, 19} <= kept
+    np.testing.assert_array_equal(af[:count], f[ax[:count, 0].astype(int)])
+
+
+def test_no_archive_beyond_two_objectives():
+    ax, af, bx, bf, counts = nsga2.new_archive(600, 8, 3)
+    assert ax.shape == (0, 8) and bx.shape[0] == 0
+    assert nsga2.new_archive(600, 8, 2)[0].shape == (600, 8)
 
 
 def test_survivors_are_whole_fronts_then_the_least_crowded():

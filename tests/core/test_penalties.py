@@ -5,7 +5,9 @@ Outside sources: none numeric. The checks are the properties the model promises
 and penalties"): the margin penalty v + v^2, v = -m/s, is zero iff m >= 0 and grows
 with the violation, and over random decision vectors of the demo problem
 (problems/demo.toml, an invented scenario) the total penalty in q is zero exactly
-when every margin slot is >= 0. The penalty's size inside the objective is compared with
+when every margin slot is >= 0, and the kernel's feasibility flag (``Q_FEASIBLE``, in
+the scoring pass too) says exactly that, also where several Lambert branches compete
+(problems/multi-year-loops.toml, invented). The penalty's size inside the objective is compared with
 an independent re-implementation (benchmarks/unit_aware_baseline.py) in
 tests/core/test_unit_aware.py.
 """
@@ -25,7 +27,7 @@ from leverage.core.penalties import (
     margin_penalty,
     total_penalty,
 )
-from leverage.core.trajectory import details
+from leverage.core.trajectory import batch_details, batch_scores_one_thread, details
 from leverage.problem.load import load_problem
 
 MARGINS = st.floats(allow_nan=True, allow_infinity=True)
@@ -118,6 +120,23 @@ def test_demo_penalty_is_zero_exactly_when_every_margin_holds(u):
     assert (q[L.Q_PENALTY] == 0.0) == bool(np.all(margins >= 0.0)), (x, margins)
     if q[L.Q_OK] != 1.0:
         assert q[L.Q_PENALTY] > 0.0
+
+
+@pytest.mark.parametrize("name", ["demo.toml", "multi-year-loops.toml"])
+def test_feasible_flag_is_every_margin_holding_in_both_passes(name):
+    """The scoring pass keeps only the best branch's objectives, not its q; its flag
+    must still be that branch's (the full pass keeps the best branch's q)."""
+    path = Path(__file__).resolve().parents[2] / "problems" / name
+    c = load_problem(path).compile()
+    rng = np.random.default_rng(11)
+    xs = c.lower + rng.uniform(-0.1, 1.1, (2000, len(c.lower))) * (c.upper - c.lower)
+    qs = batch_details(xs, c.params)
+    margins = qs[:, L.Q_MARGIN_ALT_KM : L.Q_MARGIN_ALT_KM + L.N_MARGINS]
+    by_margins = (qs[:, L.Q_OK] == 1.0) & np.all(margins >= 0.0, axis=1)
+    assert 20 < by_margins.sum() < len(xs) - 20  # both cases occur
+    np.testing.assert_array_equal(qs[:, L.Q_FEASIBLE] == 1.0, by_margins)
+    _, flags = batch_scores_one_thread(xs, c.params)
+    np.testing.assert_array_equal(flags, by_margins)
 
 
 def test_demo_sample_has_both_feasible_and_violating_points():

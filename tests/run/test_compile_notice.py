@@ -19,7 +19,7 @@ from leverage.search.udp import LeveragingUDP
 
 c = load_problem(Path("problems/demo.toml")).compile()
 udp = LeveragingUDP.from_compiled(c, "demo")
-names = ("fitness", "details", "batch_details", "batch_fitness")
+names = ("fitness", "details", "batch_details", "batch_scores")
 before = [bool(getattr(trajectory, n).signatures) for n in names]
 warm_up(udp, (c.lower + c.upper) / 2.0, batch={batch}, enabled=False)
 after = [bool(getattr(trajectory, n).signatures) for n in names]

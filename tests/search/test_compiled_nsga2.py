@@ -83,3 +83,27 @@ def test_it_refuses_other_problems_and_sizes(udp):
         algo.evolve(pg.population(pg.problem(widened), 8, seed=1))
     with pytest.raises(ValueError):
         CompiledNSGA2(cr=1.5)
+
+
+def test_the_designs_met_are_feasible_non_dominated_and_taken_once(udp):
+    from leverage.record.design import feasible_rows
+    from leverage.search.fronts import non_dominated, taken_met
+
+    algo = pg.algorithm(CompiledNSGA2(gen=20, seed=5))
+    evolved = algo.evolve(population(udp, size=32))
+    assert algo.extract(CompiledNSGA2).met is not None
+    [(x, f)] = taken_met([algo])
+    assert len(f) > 0
+    assert np.all(feasible_rows(udp.batch_details(x)))  # checked in the full pass
+    np.testing.assert_array_equal(f, udp.batch_fitness(x).reshape(f.shape))
+    assert len(non_dominated(f)) == len(f)
+    # taken: gone from the algorithm, so it does not travel with it to the next call
+    assert algo.extract(CompiledNSGA2).take_met() is None and taken_met([algo]) == []
+    # none from pygmo's algorithms
+    reference = pg.nsga2(gen=1)
+    reference.set_bfe(pg.bfe())
+    assert taken_met([pg.algorithm(reference)]) == []
+    # the final population's feasible members are no better than what was met
+    q = udp.batch_details(evolved.get_x())
+    for fp in evolved.get_f()[feasible_rows(q)]:
+        assert np.any(np.all(f <= fp, axis=1))

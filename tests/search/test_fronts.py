@@ -6,7 +6,8 @@ the union of the boxes each point dominates up to the reference point), and of r
 two-objective clouds by an independent sweep written in this file; Pareto
 dominance as defined by Deb et al. 2002 (NSGA-II, IEEE Trans. Evol. Comput. 6(2);
 from memory); the knee as the point farthest from the line through the extreme
-points (Das 1999, Structural Optimization 18; from memory). The template problem is
+points (Das 1999, Structural Optimization 18; from memory); the archive's truncation
+against pygmo.select_best_N_mo on one front (pygmo 2.19.5). The template problem is
 invented (problems/trade-front.toml).
 """
 
@@ -24,7 +25,13 @@ from leverage.errors import ProblemError
 from leverage.problem.load import load_problem
 from leverage.record.design import feasible
 from leverage.run.runner import Progress, run, settings_from
-from leverage.search.fronts import hypervolume, knee, non_dominated, reference_point
+from leverage.search.fronts import (
+    hypervolume,
+    knee,
+    most_spread,
+    non_dominated,
+    reference_point,
+)
 from leverage.search.udp import LeveragingUDP
 
 
@@ -67,6 +74,17 @@ def test_non_dominated_is_pygmos_first_front(n_obj, rows):
 def test_non_dominated_drops_duplicates():
     f = np.array([[1.0, 2.0], [1.0, 2.0], [2.0, 1.0], [3.0, 3.0]])
     assert non_dominated(f).tolist() == [0, 2]
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.sampled_from([2, 3]), st.integers(5, 120), st.integers(0, 2**32 - 1))
+def test_most_spread_picks_as_pygmo_select_best_n_mo_on_one_front(n_obj, size, seed):
+    # a non-dominated set: random points on the plane sum(f) = 1 (no ties)
+    rng = np.random.default_rng(seed)
+    f = rng.dirichlet(np.ones(n_obj), size)
+    n = int(rng.integers(2 * n_obj, size + 1)) if size > 2 * n_obj else size
+    expected = np.sort(np.asarray(pg.select_best_N_mo(f, n), dtype=int))
+    np.testing.assert_array_equal(most_spread(f, n), expected)
 
 
 def test_hypervolume_of_a_staircase_by_hand():

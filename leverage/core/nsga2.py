@@ -155,7 +155,9 @@ def _ranks_two_objectives(f):
 
 @njit(cache=True)
 def _crowd_front(f, members, out):
-    """Crowding distance of the rows ``members`` (one front) of f, into out[members]."""
+    """Crowding distance of the rows ``members`` (one front) of f, into out[members].
+    With two objectives one sort serves both: along a front, the first objective
+    rising means the second falling (equal rows aside, which then order differently)."""
     size = members.shape[0]
     for a in range(size):
         out[members[a]] = 0.0
@@ -164,10 +166,14 @@ def _crowd_front(f, members, out):
             out[members[a]] = np.inf
         return
     values = np.empty(size)
+    order = np.empty(size, np.int64)
     for k in range(f.shape[1]):
         for a in range(size):
             values[a] = f[members[a], k]
-        order = np.argsort(values, kind="mergesort")
+        if k == 0 or f.shape[1] != 2:
+            order = np.argsort(values, kind="mergesort")
+        else:
+            order = order[::-1].copy()
         low = values[order[0]]
         high = values[order[size - 1]]
         out[members[order[0]]] = np.inf

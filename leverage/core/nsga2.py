@@ -378,12 +378,24 @@ def archive_merge(ax, af, count, bx, bf, nb):
 
 
 @njit(cache=True)
-def settle(x, f, children, f_children, feasible, archive):
-    """The second half of a generation: the feasible children offered to the archive
+def start(x, f, seed32, archive_rows):
+    """What an evolution starts from: numba's generator of this thread seeded with
+    seed32, the population's front numbers and crowding distances, and an empty
+    archive (``new_archive``). Returns (rank, crowd, archive)."""
+    np.random.seed(seed32)
+    rank = non_dominated_ranks(f)
+    return rank, crowding_distances(f, rank), new_archive(archive_rows, x.shape[1], f.shape[1])
+
+
+@njit(cache=True)
+def settle(x, f, children, scores, archive):
+    """The second half of a generation, ``scores`` = (objectives, feasible flags) of
+    the children: the feasible children offered to the archive
     (two objectives; ``archive`` = (ax, af, bx, bf, counts): the archive, a buffer of
     offers of the same size, and counts[0] members, counts[1] offers; the buffer is
     merged when full, ``archive_merge``), then elitist survival (``next_generation``).
     Returns (x, f, rank, crowd)."""
+    f_children, feasible = scores
     ax, af, bx, bf, counts = archive
     if ax.shape[0] > 0:
         for i in range(children.shape[0]):
@@ -433,14 +445,11 @@ def evolve(x, f, lower, upper, p, generations, cr, eta_c, m, eta_m, seed32, arch
 
     Returns the final (x, f) and the archive's (x, f); evaluations made:
     generations * len(x)."""
-    np.random.seed(seed32)
-    rank = non_dominated_ranks(f)
-    crowd = crowding_distances(f, rank)
-    archive = new_archive(archive_rows, x.shape[1], f.shape[1])
+    rank, crowd, archive = start(x, f, seed32, archive_rows)
     for _ in range(generations):
         children = offspring(x, rank, crowd, lower, upper, cr, eta_c, m, eta_m)
-        f_children, feasible = trajectory.batch_scores_one_thread(children, p)
-        x, f, rank, crowd = settle(x, f, children, f_children, feasible, archive)
+        scores = trajectory.batch_scores_one_thread(children, p)
+        x, f, rank, crowd = settle(x, f, children, scores, archive)
     met_x, met_f = archive_contents(archive)
     return x, f, met_x, met_f
 
@@ -453,13 +462,8 @@ def evolve_in_threads(
     (a cached compiled function must not call a numba-parallel one; see
     ``trajectory.batch_fitness``). For a search in one process; ~20 us of Python a
     generation against ~100-200 us of evaluations."""
-    seed(seed32)
-    rank = non_dominated_ranks(f)
-    crowd = crowding_distances(f, rank)
-    archive = new_archive(archive_rows, x.shape[1], f.shape[1])
+    rank, crowd, archive = start(x, f, seed32, archive_rows)
     for _ in range(generations):
         children = offspring(x, rank, crowd, lower, upper, cr, eta_c, m, eta_m)
-        f_children, feasible = trajectory.batch_scores(children, p)
-        x, f, rank, crowd = settle(x, f, children, f_children, feasible, archive)
-    met_x, met_f = archive_contents(archive)
-    return x, f, met_x, met_f
+        x, f, rank, crowd = settle(x, f, children, trajectory.batch_scores(children, p), archive)
+    return (x, f) + archive_contents(archive)

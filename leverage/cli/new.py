@@ -35,6 +35,7 @@ TEMPLATES = {
             ("search", "algorithm"): "nsga2",
             ("search", "population"): 64,
             ("search", "generations"): 600,
+            ("search", "generations_per_migration"): 150,  # 4 log rows (trade-front.toml)
         },
         (),
     ),

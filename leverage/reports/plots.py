@@ -536,8 +536,9 @@ def front(record, folder) -> Picture | None:
             artists["no knee"] = ax.text(
                 0.97,
                 0.06,
-                f"no knee stands out (knee distance {distance:.4f} of the scaled "
-                "span); choose from front.csv",
+                # three short lines: one long line reached the front's far end
+                f"no knee stands out\n(knee distance {distance:.4f} of the scaled span);\n"
+                "choose from front.csv",
                 transform=ax.transAxes,
                 ha="right",
                 fontsize=8.5,

@@ -261,6 +261,8 @@ def refined_record(refiner, best, missed, wall_s, cross_check, record) -> dict:
         },
         "iterations": refiner.iterations,
         "optimisation_stopped": refiner.stop_reason,
+        # True: feasible, but the iteration budget ended an optimisation pass.
+        "stopped_at_iteration_limit": refiner.stopped_at_iteration_limit,
         "evaluations": refiner.evaluations,
         "wall_time": {"value": wall_s, "unit": "s"},
         "largest_constraint_error": {

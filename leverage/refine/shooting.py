@@ -158,6 +158,11 @@ class Refiner:
         self.evaluations = 0
         self.iterations = 0
         self.stop_reason = "not optimised: the joins or limits were not met first"
+        # Set by solve: the iteration budget ran out while an optimisation pass was
+        # still moving (then the refined DSM is feasible but not a proven optimum).
+        self.stopped_at_iteration_limit = False
+        self._pass_hit_limit = False
+        self._pass_last_moves_m_s = 0.0
         self.t_start = time.monotonic()
         flyby = ev["flyby"]
         self.vinf_out_conic = float(np.linalg.norm(flyby["v_out"] - flyby["v_body"]))
@@ -631,6 +636,9 @@ class Refiner:
             )
         if sol.status == 2:
             self.stop_reason = "the trust radius fell below 1e-8"
+        self._pass_hit_limit = sol.status == 0  # trust-constr: 0 = maxiter reached
+        recent = history[-STALL_ITER:]
+        self._pass_last_moves_m_s = (max(recent) - min(recent)) * 1e3 if recent else 0.0
         return best[0].z, last[0]
 
     def solve(self, max_iter=OPT_MAX_ITER):
@@ -644,9 +652,17 @@ class Refiner:
             for barrier in BARRIERS:
                 left = max_iter - self.iterations
                 if left <= 0:
-                    break
+                    reasons.append(f"barrier {barrier:g}: not run (no iterations left)")
+                    self.stopped_at_iteration_limit = True
+                    continue
                 found, last = self.optimise(matched, max_iter=left, barrier=barrier)
                 reasons.append(f"barrier {barrier:g}: {self.stop_reason}")
+                if self._pass_hit_limit:
+                    self.stopped_at_iteration_limit = True
+                    reasons[-1] += (
+                        f", its last {STALL_ITER} iterates still "
+                        f"{self._pass_last_moves_m_s:.1f} m/s apart"
+                    )
                 # Close the joins of the optimiser's best point and of its last
                 # iterate; keep the better of the two that meets every condition.
                 for cand in (found, last):

@@ -30,8 +30,14 @@ class _as_option:
 
 
 def add_search_options(parser):
+    from leverage.problem.schema import ALGORITHMS, FRONT_ALGORITHMS
+
     parser.add_argument("--seed", type=int, help="random seed (overrides [search] seed)")
     parser.add_argument("--generations", type=int, help="generations per island in all")
     parser.add_argument("--islands", type=int, help="islands (worker processes)")
     parser.add_argument("--population", type=int, help="individuals per island")
-    parser.add_argument("--algorithm", help="global algorithm: sade, de, de1220, pso, cmaes")
+    parser.add_argument(
+        "--algorithm",
+        help=f"global algorithm: {', '.join(ALGORITHMS)} (one objective; de is the default); "
+        f"{', '.join(FRONT_ALGORITHMS)} (a front; nsga2 is the default)",
+    )

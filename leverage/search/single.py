@@ -57,12 +57,16 @@ BOUND_WIDENING = 0.03
 # The generations are cut into equal epochs of at least MIN_EPOCH_GENERATIONS, at
 # most RESTARTS of them; after each but the last the champion is kept aside and every
 # island starts again from a new random population (seeds from ``restart_seed``); the
-# champion is the best of all epochs. DE settles on a family within a few hundred
-# generations, so each epoch is another draw of the family: on earth-one-or-two-year,
-# 4000 generations in 2 epochs hit 16 of 20 seeds, in 4 epochs 19 (5000 in 5: also
-# 19); epochs of 667 generations were too short for earth-incl-aphelion (pygmo de, 5
-# of 20). Short runs, such as the tests' 60-100 generations, run as one epoch.
-RESTARTS = 4
+# champion is the best of all epochs. Each epoch is another draw of the family of
+# loops, but an epoch must also be long enough to settle in its family: with the
+# compiled de at 4000 generations, 2 epochs of 2000 hit the six reference problems
+# 20, 20, 20, 20, 20, 19 of 20 seeds and 4 epochs of 1000 20, 20, 20, 19, 20, 19, while
+# on inclination-raise.toml (a whole-year window, loops of one to two years) 4 epochs
+# of 1000 ended 0.746-1.177 km/s over 20 seeds and 2 of 2000 0.683-0.764
+# (benchmarks/README.md, "Restart epochs"). Epochs of 667 generations were too short
+# for earth-incl-aphelion (pygmo de, 5 of 20). Short runs, such as the tests' 60-100
+# generations, run as one epoch.
+RESTARTS = 2
 MIN_EPOCH_GENERATIONS = 1000
 
 

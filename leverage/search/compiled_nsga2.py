@@ -4,11 +4,13 @@
 ``leverage.core.nsga2.evolve`` (Deb et al. 2002; the method and its operators are
 described there), which runs every generation of the call and evaluates the children
 with the compiled fitness itself, and writes the survivors back. The feasible
-non-dominated designs among all of the call's children come back too
-(``take_met``), so a front search sees every generation's front, not only the last. pygmo's own nsga2
-spends about as long per generation on its bookkeeping and on copying the problem (its
-110 kB parameter array) for each batch as on the 64 evaluations
-(benchmarks/README.md); here nothing runs in Python between generations.
+non-dominated designs among all of the call's children come back too (``take_met``),
+so a front search sees every generation's front, not only the last. pygmo's own
+nsga2 spends about as long per generation on its bookkeeping and on copying the
+problem (its 110 kB parameter array) for each batch as on the 64 evaluations
+(benchmarks/README.md); here nothing runs in Python between generations (in worker
+processes; in the run's own process ``nsga2.evolve_in_threads`` steps the
+generations from Python so that each batch can use numba's threads).
 
 The operators' settings default to pygmo nsga2's (crossover probability 0.95, SBX
 distribution index 10, mutation distribution index 50) except the mutation probability:

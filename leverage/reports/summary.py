@@ -131,6 +131,9 @@ def refined_line(refined) -> str:
     change = ""
     if isinstance(before, (int, float)) and isinstance(after, (int, float)):
         change = f"; DSM {before:.4f} -> {after:.4f} km/s ({(after - before) * 1e3:+.1f} m/s)"
+    if refined.get("stopped_at_iteration_limit"):
+        # feasible, but the optimiser was still moving when its budget ran out
+        change += "; stopped at its iteration limit, not a proven optimum"
     return f"refined   {refined.get('status', '?')} in an n-body model{change}; see refined/"
 
 

@@ -115,11 +115,21 @@ def test_show_says_whether_a_result_was_refined(folders, capsys, tmp_path):
     assert main(["show", str(folder)]) == 0
     out = capsys.readouterr().out
     assert "refined   converged in an n-body model; DSM 0.8112 -> 0.8011 km/s (-10.1 m/s)" in out
+    assert "iteration limit" not in out
     assert main(["show", str(folder), str(a)]) == 0
     row = next(
         ln for ln in capsys.readouterr().out.splitlines() if ln.startswith("refined DSM (km/s)")
     )
     assert row.split()[-2:] == ["0.8011", "not"] or row.endswith("not yet")
+    # refine says when its budget, not a settled optimiser, ended it (refined.json)
+    data = json.loads((folder / "refined" / "refined.json").read_text())
+    data["stopped_at_iteration_limit"] = True
+    (folder / "refined" / "refined.json").write_text(json.dumps(data))
+    assert main(["show", str(folder)]) == 0
+    assert (
+        "(-10.1 m/s); stopped at its iteration limit, not a proven optimum; see refined/"
+        in capsys.readouterr().out
+    )
 
 
 def test_six_long_named_folders_stay_aligned_in_100_columns(demo_result, tmp_path, capsys):

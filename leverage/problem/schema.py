@@ -577,8 +577,9 @@ KEYS = [
         maximum=MAX_ISLANDS,
     ),
     # Defaults chosen by benchmarks/search_quality.py (benchmarks/README.md, "Compiled
-    # search, end of round" and "Restart epochs"): 2 islands x 64 x 4000 generations of the compiled de,
-    # with the widened box and 2000-generation restart epochs of search.single, 500
+    # search, end of round" and "Launch-direction sectors"): 2 islands x 64 x 4000
+    # generations of the compiled de, with the widened box and the 1000-generation
+    # sector epochs of search.single, 500
     # generations per migration (each evolution costs the run a few ms of sending,
     # logging and waiting: 50 ran ~20% slower than 200, 200 ~14% slower than 500, for
     # the same hits within one seed).

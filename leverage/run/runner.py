@@ -229,7 +229,9 @@ def finish(
     x, f = search.champion()
     polish_evals = 0
     if status == "complete":
-        x, f, polish_evals = search.polish(x)
+        # every epoch's champion where the search keeps them (search.single)
+        polish_all = getattr(search, "polish_candidates", None)
+        x, f, polish_evals = polish_all() if polish_all else search.polish(x)
     record = base_record(problem, settings, status)
     record.update(design_record(compiled, udp, x))
     if hasattr(search, "write_front") and front_path is not None:

@@ -8,7 +8,10 @@ this process, in worker processes, or on ipyparallel engines; all give the same
 answer. ``state`` holds everything that moves (populations, algorithms with their
 random-engine state, counts, history, the champions of finished restart epochs),
 which is what ``leverage.checkpoint`` saves. The islands see a slightly widened box
-(``BOUND_WIDENING``) and start again from new populations halfway (``RESTARTS``).
+(``BOUND_WIDENING``), start again from new populations in epochs that each search one
+sector of the launch direction (``RESTARTS``), and score points with a gentler penalty
+than the problem's (``SCOUT_PENALTY_FACTOR``); champions and log rows are scored with
+the problem's own, and every epoch's champion is polished.
 With worker processes the next evolution starts as soon as migration is done, so the
 log row (and the runner's checkpoint) of this one are made while the workers evolve;
 ``state`` stays that of the evolution just finished until the next ``step``.
@@ -54,20 +57,71 @@ def island_seed(seed: int, island: int) -> int:
 # v-infinity on its 1 km/s floor) was rarely reached: pygmo's sade went from 8 to 17
 # of 20 seeds on earth-gain with 0.03. 0: the true box.
 BOUND_WIDENING = 0.03
-# The generations are cut into equal epochs of at least MIN_EPOCH_GENERATIONS, at
-# most RESTARTS of them; after each but the last the champion is kept aside and every
-# island starts again from a new random population (seeds from ``restart_seed``); the
-# champion is the best of all epochs. Each epoch is another draw of the family of
-# loops, but an epoch must also be long enough to settle in its family: with the
-# compiled de at 4000 generations, 2 epochs of 2000 hit the six reference problems
-# 20, 20, 20, 20, 20, 19 of 20 seeds and 4 epochs of 1000 20, 20, 20, 19, 20, 19, while
-# on inclination-raise.toml (a whole-year window, loops of one to two years) 4 epochs
-# of 1000 ended 0.746-1.177 km/s over 20 seeds and 2 of 2000 0.683-0.764
-# (benchmarks/README.md, "Restart epochs"). Epochs of 667 generations were too short
-# for earth-incl-aphelion (pygmo de, 5 of 20). Short runs, such as the tests' 60-100
-# generations, run as one epoch.
-RESTARTS = 2
+# The generations are cut into equal epochs of at least MIN_EPOCH_GENERATIONS and of
+# at least two evolutions, at most RESTARTS of them. Epoch j of k searches sector j of k
+# equal sectors of the launch in-plane angle (the problem's own range; each sector
+# widened by BOUND_WIDENING of the whole range on both sides, so an optimum on a sector
+# edge lies inside two); at its end the champion is kept aside and every island starts
+# again from a new random population (seeds from ``restart_seed``) in the next sector.
+# The direction of launch against the body's velocity is what sets the loop's family
+# (a longer or shorter period than the body's, leaving inward or outward): on
+# inclination-raise.toml the four families 0.683, 0.7225, 0.762 and 0.834 km/s sit at
+# in-plane angles near 111, -80, -107 and 84 deg, and a search over the whole circle
+# settled in the best one in about one epoch in ten whatever its length; one sector per
+# epoch gives each family its own epoch (benchmarks/README.md, "Launch-direction
+# sectors"). Short runs, such as the tests' 60-100 generations, run as one epoch over the
+# whole range.
+RESTARTS = 4
 MIN_EPOCH_GENERATIONS = 1000
+SECTOR_SLOT = L.X_LAUNCH_IN_PLANE_ANGLE_DEG
+
+# Penalty continuation (the sequential unconstrained minimisation of Fiacco and
+# McCormick, 1968): the islands score points with the problem's penalty weight times
+# SCOUT_PENALTY_FACTOR in the first half of each epoch's evolutions and times
+# SETTLE_PENALTY_FACTOR in the second half; the champion, the log rows and the polish use
+# the problem's own weight. An optimum on an active limit is the bottom of a V-shaped
+# valley under a steep penalty (inclination-raise: 0.02 deg past its inclination limit
+# costs 0.16 km/s at the default weight 10 against 0.03 km/s for the same step inside),
+# which DE crawls along slowly; a gentle penalty lets the population settle in its
+# family and come to the limit from both sides. Too gentle a penalty to the end leaves
+# a point past the limit that the polish cannot bring back (demo: 8 m/s short), hence
+# the second half. Measured on the seven reference problems (benchmarks/README.md).
+SCOUT_PENALTY_FACTOR = 0.03
+SETTLE_PENALTY_FACTOR = 0.06
+
+
+def epoch_count(settings) -> int:
+    """How many epochs a search with ``settings`` runs."""
+    k = min(RESTARTS, settings.generations // MIN_EPOCH_GENERATIONS, settings.evolutions // 2)
+    return max(1, k)
+
+
+def epoch_start(settings, epoch: int) -> int:
+    """The first evolution (0-based) of ``epoch``: the evolutions are shared out as
+    evenly as they go, every epoch getting at least two."""
+    return -(-epoch * settings.evolutions // epoch_count(settings))
+
+
+def phase_of(settings, evolution: int) -> tuple[int, float]:
+    """(epoch, penalty factor) of the evolution numbered ``evolution`` (0: the first):
+    SCOUT_PENALTY_FACTOR in the first half of its epoch, SETTLE_PENALTY_FACTOR after; a
+    search of one evolution has no halves and keeps the problem's own weight (1.0)."""
+    epoch = min(evolution, settings.evolutions - 1) * epoch_count(settings) // settings.evolutions
+    start, end = epoch_start(settings, epoch), epoch_start(settings, epoch + 1)
+    if end - start < 2:
+        return epoch, 1.0
+    scouting = evolution - start < (end - start) // 2
+    return epoch, SCOUT_PENALTY_FACTOR if scouting else SETTLE_PENALTY_FACTOR
+
+
+def sector(lower: float, upper: float, epoch: int, epochs: int, widen: float):
+    """(low, high) of sector ``epoch`` of ``epochs`` equal sectors of [lower, upper],
+    widened by ``widen`` of the whole range on both sides and kept inside the range
+    widened so; one sector: the whole widened range."""
+    span = upper - lower
+    low = lower + span * epoch / epochs - widen * span
+    high = lower + span * (epoch + 1) / epochs + widen * span
+    return max(low, lower - widen * span), min(high, upper + widen * span)
 
 
 def restart_seed(seed: int, island: int, epoch: int) -> int:
@@ -206,10 +260,10 @@ class Search:
         self.settings = settings
         self.evolver = evolver or SerialIslands()
         self.problem = pg.problem(udp)
-        s = settings
-        self.island_udps = [self._island_udp(i) for i in range(s.islands)]
-        problems = [self.problem if u is udp else pg.problem(u) for u in self.island_udps]
-        self._problems = problems
+        self._island_problems = {}  # (epoch, penalty factor) -> pygmo problem
+        # Log rows are scored on this thread: numba's OpenMP threads must not start in a
+        # process that may fork workers later (a sweep's worker, a test process).
+        self._scorer = udp.with_one_thread()
         pops, algos = self._start_islands(0)
         self.state = SearchState(
             populations=pops,
@@ -219,29 +273,49 @@ class Search:
         self.start_time = time.monotonic()
         self._submitted = False  # the next evolution is running in the workers
 
+    def island_problem(self, epoch: int, factor: float) -> pg.problem:
+        """The islands' problem in ``epoch``: the widened box with the launch in-plane
+        angle narrowed to the epoch's sector, the penalty weight times ``factor``."""
+        key = (epoch, factor)
+        if key not in self._island_problems:
+            u = WidenedUDP.around(self.udp, BOUND_WIDENING, factor)
+            k = epoch_count(self.settings)
+            lo, hi = self.udp.lower[SECTOR_SLOT], self.udp.upper[SECTOR_SLOT]
+            u = u.narrowed(SECTOR_SLOT, *sector(lo, hi, epoch, k, BOUND_WIDENING))
+            self._island_problems[key] = pg.problem(u)
+        return self._island_problems[key]
+
     def _start_islands(self, epoch: int):
         s = self.settings
         seeds = [restart_seed(s.seed, i, epoch) for i in range(s.islands)]
-        pops = [
-            pg.population(self._problems[i], s.population, seed=seeds[i]) for i in range(s.islands)
-        ]
+        problem = self.island_problem(*phase_of(s, epoch_start(s, epoch)))
+        pops = [pg.population(problem, s.population, seed=seeds[i]) for i in range(s.islands)]
         algos = [make_algorithm(s.algorithm, s.generations_per_migration, k) for k in seeds]
         return pops, algos
 
-    def _restart_if_due(self):
+    def _next_phase(self):
+        """Before the next evolution: new populations in the next sector when an epoch
+        ends, or the same members scored with the next penalty factor."""
         st, s = self.state, self.settings
-        k = min(RESTARTS, s.generations // MIN_EPOCH_GENERATIONS)
-        per = -(-s.evolutions // k) if k > 1 else 0
-        if per and st.evolution % per == 0 and st.evolution < s.evolutions:
-            st.kept.append(self.champion())
+        if st.evolution >= s.evolutions:
+            return
+        epoch, factor = phase_of(s, st.evolution)
+        if epoch != phase_of(s, st.evolution - 1)[0]:
+            st.kept.append(min(self._islands_best(), key=lambda c: c[1][0]))
             done = sum(p.problem.get_fevals() for p in st.populations)
-            st.populations, st.algorithms = self._start_islands(st.evolution // per)
+            st.populations, st.algorithms = self._start_islands(epoch)
             st.restart_evaluations = getattr(st, "restart_evaluations", 0) + done
+        elif factor != phase_of(s, st.evolution - 1)[1]:
+            st.populations = [self._rescored(pop, epoch, factor) for pop in st.populations]
 
-    def _island_udp(self, i: int):
-        if BOUND_WIDENING > 0:
-            return WidenedUDP.around(self.udp, BOUND_WIDENING)
-        return self.udp
+    def _rescored(self, pop, epoch: int, factor: float) -> pg.population:
+        """``pop``'s members in a population of the (epoch, factor) problem; its
+        evaluation count goes on from ``pop``'s."""
+        new = pg.population(self.island_problem(epoch, factor))
+        for x in pop.get_x():
+            new.push_back(x)
+        new.problem.increment_fevals(int(pop.problem.get_fevals()))
+        return new
 
     @property
     def done(self) -> bool:
@@ -257,16 +331,17 @@ class Search:
         self._migrate()
         st.evolution += 1
         finished, carried = st.populations, getattr(st, "restart_evaluations", 0)
-        # Before the next evolution is handed to the workers: a restart replaces the
-        # populations that evolution must start from.
-        self._restart_if_due()
+        # Before the next evolution is handed to the workers: a restart or a new
+        # penalty factor replaces the populations that evolution must start from.
+        self._next_phase()
         if not self.done:
             self._submitted = evolve_ahead(self.evolver, st.algorithms, st.populations)
         elapsed = time.monotonic() - self.start_time
         rows = []
         evals = 0
         for i, pop in enumerate(finished):
-            f = pop.get_f()[:, 0]
+            xs = self.udp_clip(pop.get_x())
+            f = self._scorer.batch_fitness(xs)  # the problem's own penalty weight
             evals += pop.problem.get_fevals()
             rows.append(
                 IslandRecord(
@@ -277,7 +352,7 @@ class Search:
                     wall_time_s=elapsed,
                     best_objective=float(f.min()),
                     median_objective=float(np.median(f)),
-                    best_violation=min_violation(self.island_udps[i], pop.get_x()),
+                    best_violation=min_violation(self.udp, xs),
                 )
             )
         st.evaluations = evals + carried
@@ -297,18 +372,46 @@ class Search:
             if f[0] < dest.get_f()[worst, 0]:
                 dest.set_xf(worst, x, f)
 
+    def udp_clip(self, xs) -> np.ndarray:
+        """``xs`` (points of the widened box) clipped to the problem's bounds."""
+        return np.minimum(np.maximum(np.asarray(xs, dtype=float), self.udp.lower), self.udp.upper)
+
+    def candidates(self) -> list:
+        """(x, f) of each finished epoch's champion and of each island's now, f scored
+        with the problem's own penalty weight, x inside the bounds."""
+        kept = [(x.copy(), f.copy()) for x, f in getattr(self.state, "kept", [])]
+        return kept + self._islands_best()
+
+    def _islands_best(self) -> list:
+        """(x, f) of each island's champion, x clipped to the bounds, f with the
+        problem's own penalty weight."""
+        out = []
+        for pop in self.state.populations:
+            x = self.udp_clip(pop.champion_x)
+            out.append((x, np.asarray(self.problem.fitness(x))))
+        return out
+
     def champion(self) -> tuple[np.ndarray, np.ndarray]:
-        """Best (x, f) over all islands so far."""
-        pops = self.state.populations
-        i = min(range(len(pops)), key=lambda k: pops[k].champion_f[0])
-        x = pops[i].champion_x.copy()
-        if isinstance(self.island_udps[i], WidenedUDP):
-            x = self.island_udps[i].clip(x)
-        best = (x, pops[i].champion_f.copy())
-        for kept in getattr(self.state, "kept", []):
-            if kept[1][0] < best[1][0]:
-                best = kept
-        return best[0].copy(), best[1].copy()
+        """Best (x, f) so far, f with the problem's own penalty weight."""
+        x, f = min(self.candidates(), key=lambda c: c[1][0])
+        return x.copy(), f.copy()
+
+    def polish_candidates(self) -> tuple[np.ndarray, np.ndarray, int]:
+        """Polish every epoch's champion (``candidates``: each epoch searched its own
+        sector, so each may sit in another family); returns the best polished (x, f)
+        that meets every limit (else the best polished) and the evaluations used."""
+        best, used = None, 0
+        seen = []
+        for x, _ in sorted(self.candidates(), key=lambda c: c[1][0]):
+            if any(np.array_equal(x, y) for y in seen):
+                continue  # migration copies a champion to the next island
+            seen.append(x)
+            x, f, more = self.polish(x)
+            used += more
+            key = (not self._meets_limits(x), f[0])
+            if best is None or key < best[0]:
+                best = (key, x, f)
+        return best[1], best[2], used
 
     def polish(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, int]:
         """Local polish of x; returns (x, f, evaluations used). Keeps x if no better.

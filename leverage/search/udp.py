@@ -20,6 +20,7 @@ if "OMP_WAIT_POLICY" not in os.environ:
 import numpy as np  # noqa: E402
 
 from leverage.core import box, trajectory  # noqa: E402
+from leverage.core import layout as L  # noqa: E402
 
 
 def reraise_interrupt(exc: SystemError):
@@ -129,8 +130,18 @@ class WidenedUDP(LeveragingUDP):
         self.box_upper = self.upper + self.widen * span
 
     @classmethod
-    def around(cls, udp: LeveragingUDP, widen: float) -> "WidenedUDP":
-        return cls(udp.params, udp.lower, udp.upper, udp.n_obj, udp.name, widen)
+    def around(cls, udp: LeveragingUDP, widen: float, penalty_factor: float = 1.0) -> "WidenedUDP":
+        """``udp`` over the widened box; its penalty weight times ``penalty_factor``."""
+        params = np.array(udp.params, dtype=float, copy=True)
+        params[L.P_PENALTY_WEIGHT] *= penalty_factor
+        return cls(params, udp.lower, udp.upper, udp.n_obj, udp.name, widen)
+
+    def narrowed(self, slot: int, low: float, high: float) -> "WidenedUDP":
+        """The same problem with the search box of variable ``slot`` set to [low, high]
+        (points are still clipped to the true bounds, not to this box)."""
+        other = WidenedUDP(self.params, self.lower, self.upper, self.n_obj, self.name, self.widen)
+        other.box_lower[slot], other.box_upper[slot] = low, high
+        return other
 
     def clip(self, x):
         return np.minimum(np.maximum(np.asarray(x, dtype=float), self.lower), self.upper)

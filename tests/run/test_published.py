@@ -42,13 +42,13 @@ YEAR_DAYS = 2.0 * math.pi * math.sqrt(AU**3 / MU_SUN) / 86400.0
 
 
 def optimum(compiled, problem):
-    """Champion of the problem file's own search (islands in turn, this process), polished."""
+    """Design of the problem file's own search (islands in turn, this process), every
+    epoch's champion polished as a run does."""
     udp = LeveragingUDP.from_compiled(compiled, problem.name)
     search = make_search(compiled, udp, settings_from(problem), SerialIslands())
     while not search.done:
         search.step()
-    x, _ = search.champion()
-    x, _, _ = search.polish(x)
+    x, _, _ = search.polish_candidates()
     return x, udp.details(x)
 
 

@@ -355,11 +355,12 @@ def restarts(rows, island: str) -> list:
     """Generations after which every island started again from a new population: where
     ``island``'s evaluation count falls back (search.single, restart epochs)."""
     mine = [r for r in rows if r["island"] == island]
-    return [
-        _float(a["generations"])
-        for a, b in zip(mine, mine[1:])
-        if _float(b["evaluations"]) < _float(a["evaluations"])
-    ]
+    return [_float(a["generations"]) for a, b in zip(mine, mine[1:]) if _restarted(a, b)]
+
+
+def _restarted(row, after) -> bool:
+    """True when log row ``after`` follows a restart of ``row``'s island."""
+    return _float(after["evaluations"]) < _float(row["evaluations"])
 
 
 def convergence(record, folder) -> Picture | None:
@@ -392,6 +393,11 @@ def convergence(record, folder) -> Picture | None:
             mine = [r for r in rows if r["island"] == island]
             x = np.array([_float(r[along]) for r in mine])
             y = shown.value(np.array([_float(r["best_objective"]) for r in mine]))
+            if along == "generations":
+                # a gap at each restart: a new population (in the next sector of launch
+                # directions) does not go on from the last one's best
+                cut = [k for k in range(1, len(mine)) if _restarted(mine[k - 1], mine[k])]
+                x, y = np.insert(x, cut, np.nan), np.insert(y, cut, np.nan)
             label = f"island {island}" if island.isdigit() else island
             (artists[f"island {island}"],) = axes[0].plot(x, y, label=label, **look)
             if has_hv:
@@ -415,7 +421,9 @@ def convergence(record, folder) -> Picture | None:
                     color="#999999",
                     lw=0.8,
                     ls="--",
-                    label="restart: new populations" if first else None,
+                    label="restart: new populations, next sector of launch directions"
+                    if first
+                    else None,
                 )
                 if first:
                     artists["restart"] = line

@@ -115,7 +115,8 @@ def test_convergence_draws_the_log(folder, record):
 
 def test_convergence_marks_each_restart_and_never_runs_back(folder, record, tmp_path):
     """A log of two restart epochs (an island's evaluation count starts again with its
-    new population): the line goes on in generations, one marker at the restart."""
+    new population): the line goes on in generations with a gap at the restart (the
+    new population does not continue the old one's best), one marker there."""
     dest = tmp_path / "run"
     shutil.copytree(folder, dest)
     rows = [["evolution", "island", "generations", "evaluations", "best_objective"]]
@@ -128,7 +129,11 @@ def test_convergence_marks_each_restart_and_never_runs_back(folder, record, tmp_
         csv.writer(fh).writerows(rows)
     pic = plots.convergence(record, dest)
     assert_sensible_png(pic.path)
-    assert list(pic.artists["island 1"].get_xdata()) == [200, 400, 600, 800]
+    xs = pic.artists["island 1"].get_xdata()
+    np.testing.assert_array_equal(xs, [200, 400, np.nan, 600, 800])
+    np.testing.assert_array_equal(
+        pic.artists["island 1"].get_ydata(), [1.1, 0.9, np.nan, 1.2, 0.85]
+    )
     assert list(pic.artists["restart"].get_xdata()) == [400, 400]
     assert plots.restarts(plots._log_rows(dest / "convergence.csv"), "0") == [400.0]
 

@@ -125,7 +125,8 @@ def test_islands_search_their_sector_with_the_gentler_penalty(demo_path, monkeyp
 @pytest.mark.slow
 def test_the_polish_starts_from_every_epoch_and_keeps_the_best(demo_path, monkeypatch):
     """With a polish that returns its start unchanged the result is the best candidate;
-    every distinct candidate is handed to the polish once."""
+    every distinct candidate is handed to the polish once, and the short DE
+    (``search_near``) to the best one."""
     monkeypatch.setattr(single, "MIN_EPOCH_GENERATIONS", 20)
     problem = load_problem(demo_path)
     settings = runner.settings_from(
@@ -141,9 +142,19 @@ def test_the_polish_starts_from_every_epoch_and_keeps_the_best(demo_path, monkey
         started.append(np.array(x))
         return x, np.asarray(udp.fitness(x)), 0
 
+    near_from = []
+
+    def no_search_near(x):
+        near_from.append(np.array(x))
+        return x, 0  # the same point: polished once
+
     monkeypatch.setattr(search, "polish", no_polish)
+    monkeypatch.setattr(search, "search_near", no_search_near)
     x, f, used = search.polish_candidates()
     candidates = search.candidates()
+    # the short DE starts from the best candidate (the problem's own penalty)
+    assert len(near_from) == 1
+    np.testing.assert_array_equal(near_from[0], min(candidates, key=lambda c: c[1][0])[0])
     distinct = {tuple(c[0]) for c in candidates}
     assert len(started) == len(distinct) >= 4  # 3 kept epochs and the last one's islands
     best = min(candidates, key=lambda c: (not single.feasible(udp.details(c[0])), c[1][0]))
@@ -183,3 +194,48 @@ def test_a_search_runs_in_a_worker_forked_from_a_process_with_numba_threads(demo
     finally:
         pool.close()
     assert value == _small_search_champion(demo_path)
+
+
+# Seed 5's champion on problems/inclination-raise.toml before its polish (2026-12-03):
+# in the best family (launch direction ~111 deg) but in a dip 1.4 m/s above its bottom.
+IN_A_DIP = [
+    12124.674430124567,
+    4.460444923088205,
+    111.12560218899638,
+    0.5989888557267653,
+    488.14518506884843,
+    0.45598749933355115,
+    405.35828538039453,
+    -78.93748882040555,
+]
+
+
+@pytest.mark.slow
+def test_the_search_near_a_champion_leaves_a_dip_the_polish_alone_stays_in(problems_dir):
+    """Reference: benchmarks/best_known.json's inclination-raise entry (0.682876 km/s,
+    grid + polish of the reference runs, checked by narrowed runs at 0.682853-0.682855).
+    BOBYQA from IN_A_DIP ends 1.4 m/s above it (measured 0.684252 km/s); the short DE
+    around it, then BOBYQA, within 1 m/s (measured 0.683153). The DE's box is +-2% of
+    each range around the start, inside the bounds, and its champion is no worse than the
+    start at the settle phase's penalty."""
+    import json
+
+    from benchmarks.best_known import OUT
+
+    best = json.loads(OUT.read_text())["inclination-raise"]["objective"]
+    problem = load_problem(problems_dir / "inclination-raise.toml")
+    settings = runner.settings_from(problem, dict(seed=5, algorithm="de", polish="bobyqa"))
+    _, udp, search = runner.prepare(problem, settings, SerialIslands())
+    x0 = np.array(IN_A_DIP)
+    _, alone, _ = search.polish(x0)
+    assert alone[0] > best + 0.001  # the dip is real: the polish alone misses by > 1 m/s
+    near, used = search.search_near(x0)
+    assert used == single.NEAR_POPULATION * (single.NEAR_GENERATIONS + 1)
+    span = udp.upper - udp.lower
+    assert np.all(np.abs(near - x0) <= single.NEAR_FRACTION * span + 1e-9)
+    assert np.all(near >= udp.lower) and np.all(near <= udp.upper)
+    settle = search.island_problem(0, single.SETTLE_PENALTY_FACTOR)
+    assert settle.fitness(near)[0] <= settle.fitness(x0)[0]
+    x, f, _ = search.polish(near)
+    assert single.feasible(udp.details(x))
+    assert f[0] <= best + 0.001

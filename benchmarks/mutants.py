@@ -262,6 +262,38 @@ MUTANTS = (
         ("tests/core/test_diffevo.py",),
         "selection keeps the worse of trial and member (a sign flip)",
     ),
+    Mutant(
+        "sectors-not-applied",
+        "leverage/search/single.py",
+        "u = u.narrowed(SECTOR_SLOT, *sector(lo, hi, epoch, k, BOUND_WIDENING))",
+        "u = u.narrowed(SECTOR_SLOT, *sector(lo, hi, 0, 1, BOUND_WIDENING))",
+        ("tests/search/test_single.py",),
+        "every restart epoch searches the whole circle of launch directions",
+    ),
+    Mutant(
+        "log-rows-at-island-weight",
+        "leverage/search/single.py",
+        "f = self._scorer.batch_fitness(xs)  # the problem's own penalty weight",
+        "f = pop.get_f()[:, 0]",
+        ("tests/search/test_single.py",),
+        "log rows show objectives scored with the islands' gentler penalty",
+    ),
+    Mutant(
+        "never-settles",
+        "leverage/search/single.py",
+        "return epoch, SCOUT_PENALTY_FACTOR if scouting else SETTLE_PENALTY_FACTOR",
+        "return epoch, SCOUT_PENALTY_FACTOR",
+        ("tests/search/test_single.py",),
+        "the islands keep the gentlest penalty to the end of every epoch",
+    ),
+    Mutant(
+        "near-search-whole-box",
+        "leverage/search/single.py",
+        "u.box_lower = np.maximum(x - NEAR_FRACTION * span, self.udp.lower)",
+        "u.box_lower = np.maximum(x - span, self.udp.lower)",
+        ("tests/search/test_single.py",),
+        "the short DE before the polish searches far from the champion",
+    ),
 )
 SMOKE = "turn-angle-half"
 

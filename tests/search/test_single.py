@@ -90,6 +90,14 @@ def test_islands_search_their_sector_with_the_gentler_penalty(demo_path, monkeyp
     lo, hi = udp.lower[L.X_LAUNCH_IN_PLANE_ANGLE_DEG], udp.upper[L.X_LAUNCH_IN_PLANE_ANGLE_DEG]
     seen = []
     evaluations = [0, 0]
+    finished = {}
+    next_phase = search._next_phase
+
+    def spy():  # the populations the log rows are about, before a restart replaces them
+        finished["pops"] = list(search.state.populations)
+        next_phase()
+
+    monkeypatch.setattr(search, "_next_phase", spy)
     while not search.done:
         epoch, factor = phase_of(settings, search.state.evolution)
         box = sector(lo, hi, epoch, 4, single.BOUND_WIDENING)
@@ -105,7 +113,9 @@ def test_islands_search_their_sector_with_the_gentler_penalty(demo_path, monkeyp
             evaluations[i] = pop.problem.get_fevals()
         seen.append((epoch, factor))
         rows = search.step()
-        for row in rows:
+        for row, pop in zip(rows, finished["pops"]):
+            scored = udp.batch_fitness(np.clip(pop.get_x(), udp.lower, udp.upper))
+            assert row.best_objective == scored.min()  # the problem's own weight
             assert row.best_violation >= 0.0
         x, f = search.champion()
         assert f[0] == udp.fitness(x)[0]  # the problem's own weight

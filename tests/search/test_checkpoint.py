@@ -13,12 +13,13 @@ import numpy as np
 import pytest
 
 from leverage.cli import main as cli_main
+from leverage.core import layout as L
 from leverage.errors import ProblemError
 from leverage.problem.load import load_problem
 from leverage.run.runner import make_search, resumed_settings, settings_from
 from leverage.search import checkpoint
 from leverage.search.islands import ProcessIslands, SerialIslands, shares
-from leverage.search.udp import LeveragingUDP
+from leverage.search.udp import LeveragingUDP, WidenedUDP
 
 SMALL = {
     "islands": 2,
@@ -359,3 +360,20 @@ def test_a_restart_gives_the_same_champion_in_workers_and_after_a_resume(
     np.testing.assert_array_equal(x_r, x_ref)
     assert f_r[0] == f_ref[0]
     assert resumed.state.evaluations == straight.state.evaluations
+
+    # a checkpoint right after the first evolution: its populations were just scored
+    # again with the settle phase's penalty (search.single.phase_of); resumed, the
+    # search goes on with that penalty and ends on the same champion
+    early, settings = small_search(problem)
+    early.step()
+    penalty = early.state.populations[0].problem.extract(WidenedUDP).params[L.P_PENALTY_WEIGHT]
+    assert penalty == pytest.approx(
+        single.SETTLE_PENALTY_FACTOR * early.udp.params[L.P_PENALTY_WEIGHT]
+    )
+    checkpoint.save(tmp_path, problem, settings, early)
+    again, _ = small_search(problem)
+    checkpoint.restore(again, checkpoint.load(tmp_path))
+    x_a, f_a = run_out(again)
+    np.testing.assert_array_equal(x_a, x_ref)
+    assert f_a[0] == f_ref[0]
+    assert again.state.evaluations == straight.state.evaluations

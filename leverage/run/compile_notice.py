@@ -125,8 +125,11 @@ def warm_up(
         notice.step(f"[2/{steps}] the derived quantities")
         udp.details(x)
         # Loading even a cached kernel takes ~40 ms (measured); a search's first log
-        # row calls batch_details, where that load would compete with the workers.
-        udp.batch_details(np.asarray(x, dtype=float)[None, :])
+        # row calls batch_details and the one-thread batch scoring, where those loads
+        # would compete with the workers.
+        row = np.asarray(x, dtype=float)[None, :]
+        udp.batch_details(row)
+        udp.with_one_thread().batch_fitness(row)
         if batch:
             notice.step(f"[3/{steps}] the parallel batch evaluation")
             udp.batch_fitness(np.asarray(x, dtype=float)[None, :])

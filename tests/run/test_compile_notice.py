@@ -19,7 +19,7 @@ from leverage.search.udp import LeveragingUDP
 
 c = load_problem(Path("problems/demo.toml")).compile()
 udp = LeveragingUDP.from_compiled(c, "demo")
-names = ("fitness", "details", "batch_details", "batch_scores")
+names = ("fitness", "details", "batch_details", "batch_scores_one_thread", "batch_scores")
 before = [bool(getattr(trajectory, n).signatures) for n in names]
 warm_up(udp, (c.lower + c.upper) / 2.0, batch={batch}, enabled=False)
 after = [bool(getattr(trajectory, n).signatures) for n in names]
@@ -38,7 +38,9 @@ def loaded(batch: bool):
 
 
 def test_warm_up_loads_what_a_search_calls():
-    # fitness, details, batch_details (log rows' violations, a front's archive) always;
-    # the parallel batch evaluation only for a front search.
-    assert loaded(False) == "[False, False, False, False] [True, True, True, False]"
-    assert loaded(True) == "[False, False, False, False] [True, True, True, True]"
+    # fitness, details, batch_details (log rows' violations, a front's archive) and the
+    # one-thread batch scoring (log rows' objectives) always; the parallel batch
+    # evaluation only for a front search.
+    none = "[False, False, False, False, False]"
+    assert loaded(False) == f"{none} [True, True, True, True, False]"
+    assert loaded(True) == f"{none} [True, True, True, True, True]"

@@ -191,6 +191,14 @@ def render(record) -> str:
         f"search    {s['algorithm']}, {s['islands']} islands x {s['population']}, "
         f"{s['generations']} generations, seed {s['seed']}, polish {s['polish']}",
     ]
+    sectors = s.get("epoch_sectors_deg") or []
+    if len(sectors) > 1:
+        lines.append(
+            f"          in {len(sectors)} epochs, each starting afresh over one sector of "
+            "launch in-plane angles: "
+            + ", ".join(f"{lo:.1f}..{hi:.1f}" for lo, hi in sectors)
+            + " deg"
+        )
     run = record.get("run", {})
     if run:
         lines.append(f"effort    {run.get('evaluations', 0):,} evaluations in {time_text(run)}")

@@ -233,6 +233,8 @@ def finish(
         polish_all = getattr(search, "polish_candidates", None)
         x, f, polish_evals = polish_all() if polish_all else search.polish(x)
     record = base_record(problem, settings, status)
+    if hasattr(search, "epoch_sectors_deg"):
+        record["search"]["epoch_sectors_deg"] = search.epoch_sectors_deg()
     record.update(design_record(compiled, udp, x))
     if hasattr(search, "write_front") and front_path is not None:
         record["front"] = search.write_front(front_path, compiled)

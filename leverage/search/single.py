@@ -281,6 +281,15 @@ class Search:
         self.start_time = time.monotonic()
         self._submitted = False  # the next evolution is running in the workers
 
+    def epoch_sectors_deg(self) -> list:
+        """[low, high] of the launch in-plane angle (deg) each epoch searches, in order:
+        its sector widened (``sector``), inside the problem's range (the search box may
+        reach past it; such points are clipped to it)."""
+        k = epoch_count(self.settings)
+        lo, hi = self.udp.lower[SECTOR_SLOT], self.udp.upper[SECTOR_SLOT]
+        boxes = (sector(lo, hi, j, k, BOUND_WIDENING) for j in range(k))
+        return [[float(max(a, lo)), float(min(b, hi))] for a, b in boxes]
+
     def island_problem(self, epoch: int, factor: float) -> pg.problem:
         """The islands' problem in ``epoch``: the widened box with the launch in-plane
         angle narrowed to the epoch's sector, the penalty weight times ``factor``."""

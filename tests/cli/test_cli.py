@@ -90,6 +90,11 @@ def check_summary_against_record(text: str, record: dict):
         s["seed"],
         s["polish"],
     )
+    sectors = s.get("epoch_sectors_deg") or []
+    if len(sectors) > 1:
+        (k, listed) = find(text, r"^\s+in (\d+) epochs, each starting afresh over .*: (.*) deg$")
+        assert int(k) == len(sectors)
+        assert listed == ", ".join(f"{lo:.1f}..{hi:.1f}" for lo, hi in sectors)
     evals, wall = find(text, r"^effort\s+([\d,]+) evaluations in search " + NUM + " s")
     assert int(evals.replace(",", "")) == run["evaluations"] and agrees(wall, run["wall_time_s"])
     # In its own unit and natural sign (record["objective_shown"]), not as minimised.

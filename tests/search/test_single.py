@@ -13,6 +13,7 @@ import pytest
 
 from leverage.core import layout as L
 from leverage.problem.load import load_problem
+from leverage.reports.summary import render
 from leverage.run import runner
 from leverage.search import single
 from leverage.search.islands import SerialIslands
@@ -85,7 +86,7 @@ def test_islands_search_their_sector_with_the_gentler_penalty(demo_path, monkeyp
         problem,
         dict(seed=3, algorithm="de", population=12, generations=80, generations_per_migration=10),
     )
-    _, udp, search = runner.prepare(problem, settings, SerialIslands())
+    compiled, udp, search = runner.prepare(problem, settings, SerialIslands())
     weight = udp.params[L.P_PENALTY_WEIGHT]
     lo, hi = udp.lower[L.X_LAUNCH_IN_PLANE_ANGLE_DEG], udp.upper[L.X_LAUNCH_IN_PLANE_ANGLE_DEG]
     seen = []
@@ -130,6 +131,16 @@ def test_islands_search_their_sector_with_the_gentler_penalty(demo_path, monkeyp
     for j, (x, _) in enumerate(search.state.kept):
         box = sector(lo, hi, j, 4, single.BOUND_WIDENING)
         assert box[0] <= x[L.X_LAUNCH_IN_PLANE_ANGLE_DEG] <= box[1]
+    # the record and the summary say which sector each epoch searched
+    record = runner.finish(problem, settings, compiled, udp, search, "interrupted")
+    boxes = [[-180.0, -79.2], [-100.8, 10.8], [-10.8, 100.8], [79.2, 180.0]]  # inside the range
+    np.testing.assert_allclose(record["search"]["epoch_sectors_deg"], boxes)
+    assert (lo, hi) == (-180.0, 180.0)
+    listed = ", ".join(f"{a:.1f}..{b:.1f}" for a, b in boxes)
+    assert (
+        f"in 4 epochs, each starting afresh over one sector of launch in-plane angles: {listed} deg"
+        in render(record)
+    )
 
 
 @pytest.mark.slow

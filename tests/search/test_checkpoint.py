@@ -349,31 +349,27 @@ def test_a_restart_gives_the_same_champion_in_workers_and_after_a_resume(
     np.testing.assert_array_equal(x_w, x_ref)
     assert f_w[0] == f_ref[0]
 
-    first, settings = small_search(problem)
-    for _ in range(3):
-        first.step()
-    assert len(first.state.kept) == 1  # restarted at the end of evolution 3
-    checkpoint.save(tmp_path, problem, settings, first)
-    resumed, _ = small_search(problem)
-    checkpoint.restore(resumed, checkpoint.load(tmp_path))
-    x_r, f_r = run_out(resumed)
-    np.testing.assert_array_equal(x_r, x_ref)
-    assert f_r[0] == f_ref[0]
-    assert resumed.state.evaluations == straight.state.evaluations
+    def resumed_after(evolutions: int):
+        """A search checkpointed after ``evolutions`` evolutions, resumed and run out."""
+        first, settings = small_search(problem)
+        for _ in range(evolutions):
+            first.step()
+        checkpoint.save(tmp_path, problem, settings, first)
+        resumed, _ = small_search(problem)
+        checkpoint.restore(resumed, checkpoint.load(tmp_path))
+        x_r, f_r = run_out(resumed)
+        np.testing.assert_array_equal(x_r, x_ref)
+        assert f_r[0] == f_ref[0]
+        assert resumed.state.evaluations == straight.state.evaluations
+        return first
 
-    # a checkpoint right after the first evolution: its populations were just scored
-    # again with the settle phase's penalty (search.single.phase_of); resumed, the
-    # search goes on with that penalty and ends on the same champion
-    early, settings = small_search(problem)
-    early.step()
+    first = resumed_after(3)
+    assert len(first.state.kept) == 1  # restarted at the end of evolution 3
+    # right after the first evolution: its populations were just scored again with the
+    # settle phase's penalty (search.single.phase_of); resumed, the search goes on with
+    # that penalty and ends on the same champion
+    early = resumed_after(1)
     penalty = early.state.populations[0].problem.extract(WidenedUDP).params[L.P_PENALTY_WEIGHT]
     assert penalty == pytest.approx(
         single.SETTLE_PENALTY_FACTOR * early.udp.params[L.P_PENALTY_WEIGHT]
     )
-    checkpoint.save(tmp_path, problem, settings, early)
-    again, _ = small_search(problem)
-    checkpoint.restore(again, checkpoint.load(tmp_path))
-    x_a, f_a = run_out(again)
-    np.testing.assert_array_equal(x_a, x_ref)
-    assert f_a[0] == f_ref[0]
-    assert again.state.evaluations == straight.state.evaluations

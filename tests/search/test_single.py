@@ -21,6 +21,28 @@ from leverage.search.single import SearchSettings, epoch_count, epoch_start, pha
 from leverage.search.udp import WidenedUDP
 
 
+def demo_search(path, seed: int, population: int, generations: int):
+    """(compiled, udp, search) of the demo file with 10 generations per migration."""
+    problem = load_problem(path)
+    settings = runner.settings_from(
+        problem,
+        dict(
+            seed=seed,
+            algorithm="de",
+            population=population,
+            generations=generations,
+            generations_per_migration=10,
+        ),
+    )
+    return problem, settings, *runner.prepare(problem, settings, SerialIslands())
+
+
+def run_out(search):
+    while not search.done:
+        search.step()
+    return search
+
+
 def settings_of(evolutions: int, per_migration: int = 500) -> SearchSettings:
     return SearchSettings("de", 2, 16, evolutions * per_migration, per_migration, 1, "none")
 
@@ -81,12 +103,7 @@ def test_islands_search_their_sector_with_the_gentler_penalty(demo_path, monkeyp
     weight, its members lie in that box, and the champion and log rows are scored with
     the problem's own weight."""
     monkeypatch.setattr(single, "MIN_EPOCH_GENERATIONS", 20)
-    problem = load_problem(demo_path)
-    settings = runner.settings_from(
-        problem,
-        dict(seed=3, algorithm="de", population=12, generations=80, generations_per_migration=10),
-    )
-    compiled, udp, search = runner.prepare(problem, settings, SerialIslands())
+    problem, settings, compiled, udp, search = demo_search(demo_path, 3, 12, 80)
     weight = udp.params[L.P_PENALTY_WEIGHT]
     lo, hi = udp.lower[L.X_LAUNCH_IN_PLANE_ANGLE_DEG], udp.upper[L.X_LAUNCH_IN_PLANE_ANGLE_DEG]
     seen = []
@@ -149,14 +166,8 @@ def test_the_polish_starts_from_every_epoch_and_keeps_the_best(demo_path, monkey
     every distinct candidate is handed to the polish once, and the short DE
     (``search_near``) to the best one."""
     monkeypatch.setattr(single, "MIN_EPOCH_GENERATIONS", 20)
-    problem = load_problem(demo_path)
-    settings = runner.settings_from(
-        problem,
-        dict(seed=5, algorithm="de", population=12, generations=80, generations_per_migration=10),
-    )
-    _, udp, search = runner.prepare(problem, settings, SerialIslands())
-    while not search.done:
-        search.step()
+    *_, udp, search = demo_search(demo_path, 5, 12, 80)
+    run_out(search)
     started = []
 
     def no_polish(x):
@@ -184,15 +195,7 @@ def test_the_polish_starts_from_every_epoch_and_keeps_the_best(demo_path, monkey
 
 
 def _small_search_champion(path) -> float:
-    problem = load_problem(path)
-    settings = runner.settings_from(
-        problem,
-        dict(seed=2, algorithm="de", population=8, generations=20, generations_per_migration=10),
-    )
-    _, _, search = runner.prepare(problem, settings, SerialIslands())
-    while not search.done:
-        search.step()
-    return float(search.champion()[1][0])
+    return float(run_out(demo_search(path, 2, 8, 20)[-1]).champion()[1][0])
 
 
 @pytest.mark.slow

@@ -25,6 +25,7 @@ import numpy as np
 import pygmo as pg
 
 from leverage.core import layout as L
+from leverage.core import trajectory
 from leverage.record.design import feasible
 from leverage.search import compiled_de, compiled_nsga2
 from leverage.search.islands import SerialIslands, evolve_ahead, evolved
@@ -326,12 +327,16 @@ class Search:
             st.populations = [self._rescored(pop, epoch, factor) for pop in st.populations]
 
     def _rescored(self, pop, epoch: int, factor: float) -> pg.population:
-        """``pop``'s members in a population of the (epoch, factor) problem; its
-        evaluation count goes on from ``pop``'s."""
+        """``pop``'s members in a population of the (epoch, factor) problem, scored in
+        one compiled batch on this thread (through pygmo, point by point, 20 us a
+        point); its evaluation count goes on from ``pop``'s."""
         new = pg.population(self.island_problem(epoch, factor))
-        for x in pop.get_x():
-            new.push_back(x)
-        new.problem.increment_fevals(int(pop.problem.get_fevals()))
+        u = new.problem.extract(WidenedUDP)
+        xs = pop.get_x()
+        fs = trajectory.batch_fitness_one_thread(u.clip(xs), u.params)
+        for x, f in zip(xs, fs):
+            new.push_back(x, f)
+        new.problem.increment_fevals(int(pop.problem.get_fevals()) + len(xs))
         return new
 
     @property

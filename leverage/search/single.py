@@ -362,7 +362,7 @@ class Search:
         rows = []
         evals = 0
         for i, pop in enumerate(finished):
-            xs = self.udp_clip(pop.get_x())
+            xs = self.udp.clip(pop.get_x())
             f = self._scorer.batch_fitness(xs)  # the problem's own penalty weight
             evals += pop.problem.get_fevals()
             rows.append(
@@ -394,10 +394,6 @@ class Search:
             if f[0] < dest.get_f()[worst, 0]:
                 dest.set_xf(worst, x, f)
 
-    def udp_clip(self, xs) -> np.ndarray:
-        """``xs`` (points of the widened box) clipped to the problem's bounds."""
-        return np.minimum(np.maximum(np.asarray(xs, dtype=float), self.udp.lower), self.udp.upper)
-
     def candidates(self) -> list:
         """(x, f) of each finished epoch's champion and of each island's now, f scored
         with the problem's own penalty weight, x inside the bounds."""
@@ -409,7 +405,7 @@ class Search:
         problem's own penalty weight."""
         out = []
         for pop in self.state.populations:
-            x = self.udp_clip(pop.champion_x)
+            x = self.udp.clip(pop.champion_x)
             out.append((x, np.asarray(self.problem.fitness(x))))
         return out
 

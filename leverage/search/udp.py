@@ -89,6 +89,10 @@ class LeveragingUDP:
     def get_bounds(self):
         return (self.lower, self.upper)
 
+    def clip(self, x):
+        """``x`` (a point or rows of points) moved into the bounds."""
+        return np.minimum(np.maximum(np.asarray(x, dtype=float), self.lower), self.upper)
+
     def get_nobj(self):
         return self.n_obj
 
@@ -142,9 +146,6 @@ class WidenedUDP(LeveragingUDP):
         other = WidenedUDP(self.params, self.lower, self.upper, self.n_obj, self.name, self.widen)
         other.box_lower[slot], other.box_upper[slot] = low, high
         return other
-
-    def clip(self, x):
-        return np.minimum(np.maximum(np.asarray(x, dtype=float), self.lower), self.upper)
 
     def fitness(self, x):
         x = np.asarray(x, dtype=float)

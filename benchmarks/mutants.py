@@ -265,8 +265,8 @@ MUTANTS = (
     Mutant(
         "sectors-not-applied",
         "leverage/search/single.py",
-        "u = u.narrowed(SECTOR_SLOT, *sector(lo, hi, epoch, k, BOUND_WIDENING))",
-        "u = u.narrowed(SECTOR_SLOT, *sector(lo, hi, 0, 1, BOUND_WIDENING))",
+        "u = u.narrowed(SECTOR_SLOT, *self._sector_box(epoch))",
+        "u = u.narrowed(SECTOR_SLOT, *sector(u.lower[2], u.upper[2], 0, 1, BOUND_WIDENING))",
         ("tests/search/test_single.py",),
         "every restart epoch searches the whole circle of launch directions",
     ),

@@ -132,7 +132,7 @@ def warm_up(
         udp.with_one_thread().batch_fitness(row)
         if batch:
             notice.step(f"[3/{steps}] the parallel batch evaluation")
-            udp.batch_fitness(np.asarray(x, dtype=float)[None, :])
+            udp.batch_fitness(row)
         if algorithm_warm_up is not None:
             notice.step(f"[{steps}/{steps}] the search algorithm")
             algorithm_warm_up(udp, x)

@@ -286,10 +286,14 @@ class Search:
         """[low, high] of the launch in-plane angle (deg) each epoch searches, in order:
         its sector widened (``sector``), inside the problem's range (the search box may
         reach past it; such points are clipped to it)."""
-        k = epoch_count(self.settings)
         lo, hi = self.udp.lower[SECTOR_SLOT], self.udp.upper[SECTOR_SLOT]
-        boxes = (sector(lo, hi, j, k, BOUND_WIDENING) for j in range(k))
+        boxes = (self._sector_box(j) for j in range(epoch_count(self.settings)))
         return [[float(max(a, lo)), float(min(b, hi))] for a, b in boxes]
+
+    def _sector_box(self, epoch: int) -> tuple[float, float]:
+        """The search box of the launch in-plane angle in ``epoch`` (``sector``)."""
+        lo, hi = self.udp.lower[SECTOR_SLOT], self.udp.upper[SECTOR_SLOT]
+        return sector(lo, hi, epoch, epoch_count(self.settings), BOUND_WIDENING)
 
     def island_problem(self, epoch: int, factor: float) -> pg.problem:
         """The islands' problem in ``epoch``: the widened box with the launch in-plane
@@ -297,9 +301,7 @@ class Search:
         key = (epoch, factor)
         if key not in self._island_problems:
             u = WidenedUDP.around(self.udp, BOUND_WIDENING, factor)
-            k = epoch_count(self.settings)
-            lo, hi = self.udp.lower[SECTOR_SLOT], self.udp.upper[SECTOR_SLOT]
-            u = u.narrowed(SECTOR_SLOT, *sector(lo, hi, epoch, k, BOUND_WIDENING))
+            u = u.narrowed(SECTOR_SLOT, *self._sector_box(epoch))
             self._island_problems[key] = pg.problem(u)
         return self._island_problems[key]
 
@@ -318,12 +320,13 @@ class Search:
         if st.evolution >= s.evolutions:
             return
         epoch, factor = phase_of(s, st.evolution)
-        if epoch != phase_of(s, st.evolution - 1)[0]:
+        last_epoch, last_factor = phase_of(s, st.evolution - 1)
+        if epoch != last_epoch:
             st.kept.append(min(self._islands_best(), key=lambda c: c[1][0]))
             done = sum(p.problem.get_fevals() for p in st.populations)
             st.populations, st.algorithms = self._start_islands(epoch)
             st.restart_evaluations = getattr(st, "restart_evaluations", 0) + done
-        elif factor != phase_of(s, st.evolution - 1)[1]:
+        elif factor != last_factor:
             st.populations = [self._rescored(pop, epoch, factor) for pop in st.populations]
 
     def _rescored(self, pop, epoch: int, factor: float) -> pg.population:

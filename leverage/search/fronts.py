@@ -7,7 +7,9 @@ runner drives either. Each island is one population evolved with pygmo's batch f
 evaluator (``pygmo.bfe`` calling the UDP's ``batch_fitness``); islands are independent
 (no migration) and differ by seed. Where they evolve is the evolver's choice
 (``leverage.search.islands``), as for a single objective: in worker processes (or on
-engines) each island evolves on one thread, the batches evaluated on that thread;
+engines) each island evolves on one thread, the batches evaluated on that thread, and
+the workers evolve their islands from the first evolution to the last without waiting
+for this process between evolutions (``islands.evolve_on``);
 in this process (``SerialIslands``: one island or one worker) the islands evolve in
 turn and each batch is spread over the cores (numba-parallel ``batch_fitness``).
 Either way the same seed gives the same front: a batch's values do not depend on the
@@ -40,7 +42,7 @@ from leverage.fileio import write_atomic
 from leverage.problem.load import check_algorithm
 from leverage.record.design import DERIVED, clean, feasible_rows
 from leverage.search.compiled_nsga2 import CompiledNSGA2
-from leverage.search.islands import SerialIslands, evolve_ahead, evolved
+from leverage.search.islands import SerialIslands, evolve_on, evolved
 from leverage.search.single import IslandRecord, SearchState, island_seed
 
 FRONT_ALGORITHM_NOTES = {
@@ -259,7 +261,7 @@ class FrontSearch:
         )
         self.reference = reference_point(udp.params)
         self.start_time = time.monotonic()
-        self._submitted = False  # the next evolution is running in the workers
+        self._submitted = False  # the workers are evolving the islands to the end
         self._knee_of = (None, 0)  # (archive_f, its knee row): champion() asks often
         self._update_archive()
 
@@ -293,14 +295,16 @@ class FrontSearch:
     def step(self) -> list:
         """One evolution of every island, then the archive; returns log rows."""
         st, s = self.state, self.settings
-        submitted, self._submitted = self._submitted, False
+        if not self._submitted:  # islands never migrate: workers evolve them to the end
+            left = s.evolutions - st.evolution
+            self._submitted = evolve_on(self.evolver, st.algorithms, st.populations, left)
         st.algorithms, st.populations = evolved(
-            self.evolver, submitted, st.algorithms, st.populations
+            self.evolver, self._submitted, st.algorithms, st.populations
         )
         st.evolution += 1
-        met = taken_met(st.algorithms)  # before the algorithms travel again
-        if not self.done:  # the archive and log rows are made while the workers evolve
-            self._submitted = evolve_ahead(self.evolver, st.algorithms, st.populations)
+        self._submitted = self._submitted and not self.done
+        met = taken_met(st.algorithms)
+        # the archive and log rows are made while the workers go on evolving
         members = [self._members(pop) for pop in st.populations]
         self._update_archive(members, met)
         elapsed = time.monotonic() - self.start_time

@@ -19,7 +19,10 @@ for work in progress (used when a run is interrupted).
 ``collect``): a search starts the next evolution as soon as it has migrated, and
 writes its log row and checkpoint while the workers evolve (``evolve_ahead``). The
 islands the workers get are copies sent before the call returns, so the parent's own
-state stays that of the evolution just logged and checkpointed.
+state stays that of the evolution just logged and checkpointed. Islands that never
+migrate (a front search) go further: ``stream`` starts all their evolutions at once,
+and each worker sends its islands after every evolution and goes straight on with the
+next (``evolve_on``).
 """
 
 import copy
@@ -58,6 +61,15 @@ class SerialIslands:
 def _evolve_pairs(pairs):
     """Evolve several islands once, in turn (runs in a worker process)."""
     return [_evolve_pair(pair) for pair in pairs]
+
+
+def _evolve_pairs_on(job):
+    """Evolve several islands ``evolutions`` times (runs in a worker process), yielding
+    them after each evolution (a stream, ``workers.WorkerPool.submit_stream``)."""
+    pairs, evolutions = job
+    for _ in range(evolutions):
+        pairs = _evolve_pairs(pairs)
+        yield pairs
 
 
 def shares(items: list, n: int) -> list:
@@ -106,8 +118,16 @@ class ProcessIslands:
         tasks = self._tasks(algorithms, populations)
         self._pool.submit(_evolve_pairs, tasks)
 
+    def stream(self, algorithms, populations, evolutions: int):
+        """Start ``evolutions`` evolutions of every island and return at once, each worker
+        going from one evolution of its islands to the next without waiting for this
+        process (islands that never migrate); each ``collect`` returns the next."""
+        tasks = self._tasks(algorithms, populations)
+        self._pool.submit_stream(_evolve_pairs_on, [(t, evolutions) for t in tasks], evolutions)
+
     def collect(self):
-        """The algorithms and populations of the submitted evolution, in island order."""
+        """The algorithms and populations of the submitted (or next streamed) evolution,
+        in island order."""
         return self._flat(self._pool.collect())
 
     def close(self):
@@ -173,6 +193,16 @@ class ClusterIslands:
 
     def abort(self):
         self.close()
+
+
+def evolve_on(evolver, algorithms, populations, evolutions: int) -> bool:
+    """Start ``evolutions`` evolutions of islands that never migrate, where the evolver
+    can run them while this process goes on (worker processes: ``ProcessIslands.stream``);
+    ``evolved(evolver, True, ...)`` then returns each in turn. False where it cannot."""
+    if not hasattr(evolver, "stream"):
+        return False
+    evolver.stream(algorithms, populations, evolutions)
+    return True
 
 
 def cpu_count() -> int:

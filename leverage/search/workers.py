@@ -15,11 +15,18 @@ uses). Forking is safe here because the parent has started no threads when a poo
 starts: the single-objective search evaluates one point at a time, and the sweep's
 warm-up calls no numba-parallel function.
 
+A stream (``submit_stream``) lets a worker go on with its task's next step while the
+parent is still busy with the last one: the worker sends each value its generator
+yields as soon as it is made. A front search's islands never migrate, so its workers
+evolve them through the whole search this way, and never wait for the parent's log
+rows, archive and checkpoint between evolutions (benchmarks/README.md).
+
 Workers ignore SIGINT (the parent decides when to stop; a terminal Ctrl-C reaches
 the whole process group), take the default SIGTERM (a group SIGTERM ends them), and
 exit when the parent closes their pipe or is gone.
 """
 
+import itertools
 import multiprocessing as mp
 import os
 import signal
@@ -41,7 +48,9 @@ class WorkerFailed(RuntimeError):
 
 
 def _serve(conn, parent_pid):
-    """Worker loop: receive (function, argument), send (ok, result or traceback text)."""
+    """Worker loop: receive (function, argument, count), send (ok, result or traceback
+    text); for a stream (count an int) send each of the first ``count`` values the
+    function's iterator yields as soon as it is made."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.signal(signal.SIGTERM, signal.SIG_DFL)  # a forked worker inherits the run's handler
     while True:
@@ -56,19 +65,39 @@ def _serve(conn, parent_pid):
             return  # the parent closed the pipe or died
         if msg is None:
             return
-        fn, arg = msg
-        try:
-            out = (True, fn(arg))
-        except BaseException as exc:  # report everything; the parent decides
-            out = (False, f"{type(exc).__name__}: {exc}\n{traceback.format_exc()}")
-        try:
-            conn.send(out)
-        except (BrokenPipeError, OSError):
-            return
+        outputs = _outputs(*msg)
+        while True:
+            try:
+                out = (True, next(outputs))
+            except StopIteration:
+                break
+            except BaseException as exc:  # report everything; the parent decides
+                out = (False, f"{type(exc).__name__}: {exc}\n{traceback.format_exc()}")
+            try:
+                conn.send(out)
+            except (BrokenPipeError, OSError):
+                return
+            if not out[0]:
+                break
+
+
+def _outputs(fn, arg, count):
+    """What a task sends back: ``fn(arg)``, or for a stream (count an int) the first
+    ``count`` values of the iterator ``fn(arg)``, each as soon as it is made."""
+    if count is None:
+        yield fn(arg)
+        return
+    made = 0
+    for value in itertools.islice(fn(arg), count):
+        yield value
+        made += 1
+    if made < count:
+        raise RuntimeError(f"the stream ended after {made} of {count} values")
 
 
 class WorkerPool:
-    """``n`` spawned worker processes; ``imap_unordered``/``map`` run module-level functions."""
+    """``n`` worker processes; ``imap_unordered``/``map``/``submit`` run module-level
+    functions, ``submit_stream`` module-level generator functions."""
 
     def __init__(self, n: int, start_method: str = START_METHOD):
         if n < 1:
@@ -97,10 +126,10 @@ class WorkerPool:
     def pids(self) -> list:
         return [proc.pid for proc, _ in self._workers]
 
-    def _start(self, fn, items) -> dict:
+    def _start(self, fn, items, count=None) -> dict:
         """Send the first items to the workers at once; the rest go as workers free up
-        (in ``_results``)."""
-        run = {"fn": fn, "queue": list(enumerate(items))[::-1], "owner": {}}
+        (in ``_results``). ``count``: see ``submit_stream``."""
+        run = {"fn": fn, "queue": list(enumerate(items))[::-1], "owner": {}, "count": count}
         for proc, conn in self._workers:
             self._dispatch(run, proc, conn)
         return run
@@ -108,9 +137,24 @@ class WorkerPool:
     def _dispatch(self, run, proc, conn):
         if run["queue"]:
             index, item = run["queue"].pop()
-            conn.send((run["fn"], item))
+            conn.send((run["fn"], item, run["count"]))
             run["owner"][conn] = (index, proc)
             self._busy.add(conn)
+
+    def _receive(self, conn, proc):
+        """The next value a worker sends (WorkerLost if it died, WorkerFailed if its
+        task raised)."""
+        try:
+            ok, value = conn.recv()
+        except (EOFError, OSError):
+            raise WorkerLost(
+                f"worker process {proc.pid} ended before returning "
+                f"its result (exit code {proc.exitcode})"
+            ) from None
+        if not ok:
+            self._busy.discard(conn)
+            raise WorkerFailed(value)
+        return value
 
     def _results(self, run):
         """Yield ``(index, result)`` of a started run as workers finish."""
@@ -118,16 +162,8 @@ class WorkerPool:
         while owner:
             for conn in wait(list(owner), timeout=POLL_S):
                 index, proc = owner.pop(conn)
-                try:
-                    ok, value = conn.recv()
-                except (EOFError, OSError):
-                    raise WorkerLost(
-                        f"worker process {proc.pid} ended before returning "
-                        f"its result (exit code {proc.exitcode})"
-                    ) from None
+                value = self._receive(conn, proc)
                 self._busy.discard(conn)
-                if not ok:
-                    raise WorkerFailed(value)
                 self._dispatch(run, proc, conn)
                 yield index, value
 
@@ -147,20 +183,52 @@ class WorkerPool:
         """Start ``map(fn, items)`` and return at once (the items are sent, so the caller
         may change its own objects meanwhile); ``collect()`` waits for its list. One run
         at a time."""
+        self._submit(fn, list(items), None)
+
+    def submit_stream(self, fn, items, count: int) -> None:
+        """Start a stream and return at once: worker k iterates ``fn(items[k])`` and
+        sends each of its first ``count`` values as soon as it is made, going on
+        without waiting for this process; each ``collect()`` returns the next value of
+        every item, in input order. At most one item per worker; one run at a time."""
+        items = list(items)
+        if len(items) > len(self._workers):
+            raise ValueError(f"a stream takes at most one item per worker ({len(self._workers)})")
+        if count < 1:
+            raise ValueError("a stream sends at least one value")
+        self._submit(fn, items, int(count))
+
+    def _submit(self, fn, items, count):
         if self._pending is not None:
             raise RuntimeError("a submitted run is still being worked on")
-        items = list(items)
-        self._pending = (len(items), self._start(fn, items))
+        run = self._start(fn, items, count)
+        run["left"] = count
+        self._pending = (len(items), run)
 
     def collect(self) -> list:
-        """The results of the submitted run, in input order (waits for them)."""
+        """The results of the submitted run, in input order (waits for them); of a
+        stream, the next value of every item."""
         if self._pending is None:
             raise RuntimeError("nothing was submitted")
         n, run = self._pending
-        self._pending = None
         out = [None] * n
-        for index, value in self._results(run):
-            out[index] = value
+        if run["count"] is None:
+            self._pending = None
+            for index, value in self._results(run):
+                out[index] = value
+            return out
+        waiting = dict(run["owner"])
+        try:
+            while waiting:
+                for conn in wait(list(waiting), timeout=POLL_S):
+                    index, proc = waiting.pop(conn)
+                    out[index] = self._receive(conn, proc)
+        except BaseException:
+            self._pending = None  # as for a run: a failed collect ends it
+            raise
+        run["left"] -= 1
+        if run["left"] == 0:  # every worker has sent its last value and is idle again
+            self._busy.difference_update(run["owner"])
+            self._pending = None
         return out
 
     def close(self, timeout_s: float = 5.0):

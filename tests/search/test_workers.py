@@ -1,0 +1,81 @@
+"""Streams of the worker pool (leverage/search/workers.py, ``WorkerPool.submit_stream``).
+
+Outside sources: none numeric; Python's ``multiprocessing`` documentation (a pipe
+delivers messages in the order sent). What is checked is the stream's contract: every
+``collect`` returns the next value of every item in input order, the worker goes on
+without waiting for the parent, it stops after ``count`` values, and a stream that
+raises or ends early is reported in the parent, after which the pool still works.
+"""
+
+import time
+from pathlib import Path
+
+import pytest
+
+from leverage.search.workers import WorkerFailed, WorkerPool
+
+
+def counting(job):
+    """Yield start, start + 1, ... and note each value made in a file (the test reads
+    how far the worker got while the parent was not collecting)."""
+    start, log = job
+    value = start
+    while True:
+        with open(log, "a") as fh:
+            fh.write(f"{value}\n")
+        yield value
+        value += 1
+
+
+def short(job):
+    yield from range(job)
+
+
+def broken(job):
+    yield 1
+    raise ValueError(f"no value after the first ({job})")
+
+
+def made(log: Path) -> list:
+    return [int(v) for v in log.read_text().split()] if log.exists() else []
+
+
+def test_a_stream_sends_every_value_in_order_without_waiting_for_the_parent(tmp_path):
+    logs = [tmp_path / "a.txt", tmp_path / "b.txt"]
+    pool = WorkerPool(2)
+    try:
+        pool.submit_stream(counting, [(10, logs[0]), (20, logs[1])], 4)
+        assert pool.collect() == [10, 20]
+        # The parent collects nothing for a while: the workers go on to their last value,
+        # and no further (the generator is not advanced past the count).
+        deadline = time.monotonic() + 10.0
+        while time.monotonic() < deadline and (len(made(logs[0])) < 4 or len(made(logs[1])) < 4):
+            time.sleep(0.02)
+        time.sleep(0.1)
+        assert made(logs[0]) == [10, 11, 12, 13] and made(logs[1]) == [20, 21, 22, 23]
+        with pytest.raises(RuntimeError):
+            pool.submit(abs, [1])  # one run at a time, a stream included
+        assert [pool.collect() for _ in range(3)] == [[11, 21], [12, 22], [13, 23]]
+        with pytest.raises(RuntimeError):
+            pool.collect()  # the stream has ended
+        assert pool.map(abs, [-5, 6]) == [5, 6]  # and the workers are free again
+    finally:
+        pool.close()
+
+
+def test_a_stream_that_raises_or_ends_early_is_reported_and_the_pool_goes_on():
+    pool = WorkerPool(2)
+    try:
+        with pytest.raises(ValueError):
+            pool.submit_stream(short, [1, 2, 3], 2)  # more items than workers
+        pool.submit_stream(broken, [7], 3)
+        assert pool.collect() == [1]
+        with pytest.raises(WorkerFailed, match="no value after the first"):
+            pool.collect()
+        pool.submit_stream(short, [2], 3)
+        assert pool.collect() == [0]
+        assert pool.collect() == [1]
+        with pytest.raises(WorkerFailed, match="ended after 2 of 3 values"):
+            pool.collect()
+    finally:
+        pool.abort()

@@ -214,10 +214,17 @@ def _crowded_winner(a, b, rank, crowd):
 
 
 @njit(cache=True)
-def _sbx_spread(beta, r, eta_c):
-    """Spread factor of bounded SBX for the uniform draw r, where beta (>= 1) is 1 plus
-    twice the room to the bound over the parents' gap (Deb and Agrawal 1995)."""
-    alpha = 2.0 - beta ** -(eta_c + 1.0)
+def _sbx_alpha(beta, eta_c, beta_far):
+    """alpha = 2 - beta ** -(eta_c + 1) of bounded SBX, where beta (>= 1) is 1 plus twice
+    the room to the bound over the parents' gap (Deb and Agrawal 1995). Beyond beta_far
+    (``sbx_pair``) the power is below half an ulp of 2 and alpha is exactly 2: the same
+    bits without the power."""
+    return 2.0 if beta >= beta_far else 2.0 - beta ** -(eta_c + 1.0)
+
+
+@njit(cache=True)
+def _sbx_spread(alpha, r, eta_c):
+    """Spread factor of bounded SBX for the uniform draw r and ``_sbx_alpha``."""
     if r <= 1.0 / alpha:
         return (r * alpha) ** (1.0 / (eta_c + 1.0))
     return (1.0 / (2.0 - r * alpha)) ** (1.0 / (eta_c + 1.0))
@@ -231,6 +238,11 @@ def sbx_pair(p1, p2, lower, upper, cr, eta_c, c1, c2):
     c2[:] = p2
     if np.random.random() >= cr:
         return
+    # beta ** -(eta_c + 1) is below half an ulp of 2 once beta > 2 ** (53 / (eta_c + 1));
+    # one bit of margin. Far from both bounds (room >> gap, most pairs once a population
+    # has gathered) both children then share alpha = 2 and one spread: one power a
+    # variable instead of four, the same bits (benchmarks/README.md).
+    beta_far = 2.0 ** (54.0 / (eta_c + 1.0))
     for i in range(p1.shape[0]):
         if np.random.random() >= 0.5:
             continue
@@ -240,10 +252,12 @@ def sbx_pair(p1, p2, lower, upper, cr, eta_c, c1, c2):
         if gap <= _TINY_GAP:
             continue
         r = np.random.random()
-        low_child = 0.5 * (y1 + y2 - _sbx_spread(1.0 + 2.0 * (y1 - lower[i]) / gap, r, eta_c) * gap)
-        high_child = 0.5 * (
-            y1 + y2 + _sbx_spread(1.0 + 2.0 * (upper[i] - y2) / gap, r, eta_c) * gap
-        )
+        alpha_low = _sbx_alpha(1.0 + 2.0 * (y1 - lower[i]) / gap, eta_c, beta_far)
+        alpha_high = _sbx_alpha(1.0 + 2.0 * (upper[i] - y2) / gap, eta_c, beta_far)
+        spread_low = _sbx_spread(alpha_low, r, eta_c)
+        spread_high = spread_low if alpha_high == alpha_low else _sbx_spread(alpha_high, r, eta_c)
+        low_child = 0.5 * (y1 + y2 - spread_low * gap)
+        high_child = 0.5 * (y1 + y2 + spread_high * gap)
         low_child = min(max(low_child, lower[i]), upper[i])
         high_child = min(max(high_child, lower[i]), upper[i])
         if np.random.random() < 0.5:
@@ -378,6 +392,23 @@ def archive_merge(ax, af, count, bx, bf, nb):
 
 
 @njit(cache=True)
+def _covered(af, count, a, b):
+    """True if a member of the archive af[:count] (two objectives, in order of the
+    first, as ``archive_merge`` leaves it) dominates or equals the point (a, b): the
+    member with the largest first objective <= a has the smallest second among those.
+    Such an offer would leave at the next merge (``front_of_two``), and changes
+    nothing else there, so ``settle`` need not buffer it: the merges are smaller."""
+    low, high = 0, count  # bisection: the first member whose first objective exceeds a
+    while low < high:
+        mid = (low + high) // 2
+        if af[mid, 0] <= a:
+            low = mid + 1
+        else:
+            high = mid
+    return low > 0 and af[low - 1, 1] <= b
+
+
+@njit(cache=True)
 def start(x, f, seed32, archive_rows):
     """What an evolution starts from: numba's generator of this thread seeded with
     seed32, the population's front numbers and crowding distances, and an empty
@@ -392,20 +423,27 @@ def settle(x, f, children, scores, archive):
     """The second half of a generation, ``scores`` = (objectives, feasible flags) of
     the children: the feasible children offered to the archive
     (two objectives; ``archive`` = (ax, af, bx, bf, counts): the archive, a buffer of
-    offers of the same size, and counts[0] members, counts[1] offers; the buffer is
-    merged when full, ``archive_merge``), then elitist survival (``next_generation``).
-    Returns (x, f, rank, crowd)."""
+    offers of the same size, and counts[0] members, counts[1] offers since the last
+    merge, counts[2] of them in the buffer; the archive merges the buffer when it has
+    had as many offers as it has rows, ``archive_merge``), then elitist survival
+    (``next_generation``). An offer that a member dominates or equals (``_covered``)
+    is counted but not buffered: the merge would drop it, and the merges come when
+    they would if it were buffered. Returns (x, f, rank, crowd)."""
     f_children, feasible = scores
     ax, af, bx, bf, counts = archive
     if ax.shape[0] > 0:
         for i in range(children.shape[0]):
-            if feasible[i]:
-                if counts[1] == bx.shape[0]:
-                    counts[0] = archive_merge(ax, af, counts[0], bx, bf, counts[1])
-                    counts[1] = 0
-                bx[counts[1]] = children[i]
-                bf[counts[1]] = f_children[i]
-                counts[1] += 1
+            if not feasible[i]:
+                continue
+            if counts[1] == bx.shape[0]:
+                counts[0] = archive_merge(ax, af, counts[0], bx, bf, counts[2])
+                counts[1] = 0
+                counts[2] = 0
+            counts[1] += 1
+            if not _covered(af, counts[0], f_children[i, 0], f_children[i, 1]):
+                bx[counts[2]] = children[i]
+                bf[counts[2]] = f_children[i]
+                counts[2] += 1
     return next_generation(x, f, children, f_children)
 
 
@@ -418,7 +456,7 @@ def new_archive(rows, n_var, n_obj):
         np.empty((rows, n_obj)),
         np.empty((rows, n_var)),
         np.empty((rows, n_obj)),
-        np.zeros(2, np.int64),
+        np.zeros(3, np.int64),
     )
 
 
@@ -427,8 +465,9 @@ def archive_contents(archive):
     """(x, f) of the archive's members after merging its pending offers."""
     ax, af, bx, bf, counts = archive
     if counts[1] > 0:
-        counts[0] = archive_merge(ax, af, counts[0], bx, bf, counts[1])
+        counts[0] = archive_merge(ax, af, counts[0], bx, bf, counts[2])
         counts[1] = 0
+        counts[2] = 0
     return ax[: counts[0]].copy(), af[: counts[0]].copy()
 
 

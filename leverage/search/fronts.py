@@ -389,17 +389,16 @@ class FrontSearch:
         )
         assert len(set(header)) == len(header), "front.csv column names repeat"
         buf = io.StringIO()
-        out = csv.writer(buf, lineterminator="\n")
-        out.writerow(header)
-        qs = self.udp.batch_details(st.archive_x) if len(order) else None
-        for member, i in enumerate(order):
-            q = qs[i]
-            out.writerow(
-                [member, int(i == knee_row)]
-                + [repr(float(v)) for v in st.archive_f[i]]
-                + [repr(float(v)) for v in st.archive_x[i]]
-                + [repr(float(q[slot] * factor)) for _, slot, _, factor, _ in DERIVED]
-            )
+        csv.writer(buf, lineterminator="\n").writerow(header)
+        if len(order):
+            qs = self.udp.batch_details(st.archive_x)
+            slots = [slot for _, slot, _, _, _ in DERIVED]
+            factors = np.array([factor for _, _, _, factor, _ in DERIVED])
+            # one table of numbers, written with repr (the shortest text that reads back
+            # the same float); row by row through csv and float() cost ~8 of 11 ms
+            table = np.hstack((st.archive_f, st.archive_x, qs[:, slots] * factors))[order]
+            for member, (i, row) in enumerate(zip(order, table.tolist())):
+                buf.write(f"{member},{int(i == knee_row)},{','.join(map(repr, row))}\n")
         write_atomic(path, buf.getvalue())
         return {
             "file": str(getattr(path, "name", path)),

@@ -14,7 +14,8 @@ in a fresh process with that checkout on PYTHONPATH:
    processes as ``leverage run`` does (``runner.run`` without the pictures and the
    verification): us of wall time per evaluation per core (cores =
    min(islands, cores)), the same after the first evolution, and CPU time of the run's
-   processes (parent and workers) per evaluation.
+   processes (parent and workers) per evaluation. ``--long-front N`` adds the
+   trade-front run at N generations, where its fixed costs weigh less.
 
 Figures per checkout: the smallest floor and kernel pair, the median of the rest.
 
@@ -22,7 +23,7 @@ Each measurement runs this file in a process whose working folder and PYTHONPATH
 the checkout under test (so an older checkout needs no copy of this script).
 
 Usage: python -m benchmarks.compare_trees --before /path/to/old/checkout [--after DIR]
-       [--repeats 3] [--smoke]
+       [--repeats 3] [--long-front 6000] [--smoke]
 """
 
 import argparse
@@ -126,6 +127,13 @@ def main(argv=None) -> int:
     ap.add_argument("--before", type=Path, default=ROOT, help="checkout measured first")
     ap.add_argument("--after", type=Path, default=ROOT, help="checkout measured second")
     ap.add_argument("--repeats", type=int, default=3)
+    ap.add_argument(
+        "--long-front",
+        type=int,
+        metavar="GENERATIONS",
+        help="also time the trade-front run with this many generations (its fixed costs, "
+        "fork to front.csv, then weigh less: 6000 is ten times its own)",
+    )
     ap.add_argument("--smoke", action="store_true", help="tiny sizes: checks that it runs")
     ap.add_argument("--child", nargs="+", help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
@@ -143,6 +151,9 @@ def main(argv=None) -> int:
         "before/after, alternately"
         + (" (smoke: tiny sizes, figures meaningless)" if args.smoke else "")
     )
+    runs = [(name, path, generations) for name, path in RUNS]
+    if args.long_front:
+        runs.append((f"front-{args.long_front}", RUNS[1][1], str(args.long_front)))
     trees = {"before": args.before.resolve(), "after": args.after.resolve()}
     for label, tree in trees.items():
         print(f"{label}: {tree}")
@@ -151,8 +162,8 @@ def main(argv=None) -> int:
         for label, tree in trees.items():
             row = {"load": load_average()[0]}
             row.update(in_tree(tree, "--child", "floor", points, repeats))
-            for name, path in RUNS:
-                row[name] = in_tree(tree, "--child", "run", path, generations)
+            for name, path, gens in runs:
+                row[name] = in_tree(tree, "--child", "run", path, gens)
             rows[label].append(row)
             print(f"  turn {turn + 1} {label}: {json.dumps(row)}", flush=True)
 
@@ -169,7 +180,7 @@ def main(argv=None) -> int:
             f"  {label}: floor {floor:.2f} us, kernel pair {pair:.2f} us, floor / kernel pair "
             f"{ratio:.2f} (median of turns)"
         )
-        for name, _ in RUNS:
+        for name, _, _ in runs:
             wall = median(r[name]["us_per_core"] for r in got)
             cpu = median(r[name]["cpu_us"] for r in got)
             steady = [r[name]["steady_us_per_core"] for r in got if "steady_us_per_core" in r[name]]

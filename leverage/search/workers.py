@@ -37,6 +37,7 @@ from multiprocessing.connection import wait
 POLL_S = 0.2  # longest uninterruptible wait in the parent, s
 PARENT_CHECK_S = 1.0  # how often an idle worker checks that its parent is alive, s
 START_METHOD = "fork" if sys.platform.startswith("linux") else "spawn"
+STOP_SIGNALS = {signal.SIGINT, signal.SIGTERM}
 
 
 class WorkerLost(RuntimeError):
@@ -53,6 +54,8 @@ def _serve(conn, parent_pid):
     function's iterator yields as soon as it is made."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.signal(signal.SIGTERM, signal.SIG_DFL)  # a forked worker inherits the run's handler
+    # started with both blocked (WorkerPool): a group SIGTERM held meanwhile ends us now
+    signal.pthread_sigmask(signal.SIG_UNBLOCK, STOP_SIGNALS)
     while True:
         try:
             # A forked sibling may hold our pipe's other end, so EOF alone cannot tell
@@ -106,17 +109,24 @@ class WorkerPool:
         self._workers = []
         self._busy = set()
         self._pending = None  # (item count, run) of a submitted run
-        # SIG_IGN survives exec, so a Ctrl-C while a worker boots cannot reach it.
-        previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+        # Stop signals are held, not lost, while the workers start: blocked here (the
+        # block is inherited through fork and exec, and a worker unblocks once it has
+        # its own handlers, ``_serve``), delivered to this process when unblocked below
+        # (a Ctrl-C then stops the run; ignoring SIGINT here instead dropped it).
+        held = signal.pthread_sigmask(signal.SIG_BLOCK, STOP_SIGNALS)
         try:
-            for _ in range(n):
-                parent, child = ctx.Pipe()
-                proc = ctx.Process(target=_serve, args=(child, os.getpid()), daemon=True)
-                proc.start()
-                child.close()
-                self._workers.append((proc, parent))
-        finally:
-            signal.signal(signal.SIGINT, previous)
+            try:
+                for _ in range(n):
+                    parent, child = ctx.Pipe()
+                    proc = ctx.Process(target=_serve, args=(child, os.getpid()), daemon=True)
+                    proc.start()
+                    child.close()
+                    self._workers.append((proc, parent))
+            finally:
+                signal.pthread_sigmask(signal.SIG_SETMASK, held)  # a held signal acts here
+        except BaseException:
+            self.abort()  # no worker outlives a pool that failed to start
+            raise
 
     @property
     def size(self) -> int:

@@ -4,14 +4,20 @@ Outside sources: none numeric; Python's ``multiprocessing`` documentation (a pip
 delivers messages in the order sent). What is checked is the stream's contract: every
 ``collect`` returns the next value of every item in input order, the worker goes on
 without waiting for the parent, it stops after ``count`` values, and a stream that
-raises or ends early is reported in the parent, after which the pool still works.
+raises or ends early is reported in the parent, after which the pool still works;
+and that a Ctrl-C arriving while the workers are forked reaches the parent (once the
+workers are up), as POSIX says of a blocked signal: held pending, not discarded.
 """
 
+import multiprocessing.context
+import os
+import signal
 import time
 from pathlib import Path
 
 import pytest
 
+from leverage.search import workers
 from leverage.search.workers import WorkerFailed, WorkerPool
 
 
@@ -79,3 +85,50 @@ def test_a_stream_that_raises_or_ends_early_is_reported_and_the_pool_goes_on():
             pool.collect()
     finally:
         pool.abort()
+
+
+@pytest.fixture
+def ctrl_c_while_forking(monkeypatch):
+    """Every worker start first sends SIGINT to this process (a Ctrl-C at that moment);
+    yields the list of started processes."""
+    process_class = multiprocessing.context.Process
+    if workers.START_METHOD == "fork":
+        process_class = multiprocessing.context.ForkProcess
+    original = process_class.start
+    started = []
+
+    def start(self):
+        os.kill(os.getpid(), signal.SIGINT)
+        started.append(self)
+        return original(self)
+
+    monkeypatch.setattr(process_class, "start", start)
+    previous = signal.getsignal(signal.SIGINT)
+    yield started
+    signal.signal(signal.SIGINT, previous)
+
+
+def test_a_ctrl_c_while_the_workers_start_reaches_the_parent_once_they_are_up(
+    ctrl_c_while_forking,
+):
+    seen = []
+    signal.signal(signal.SIGINT, lambda signum, frame: seen.append(len(ctrl_c_while_forking)))
+    pool = WorkerPool(2)
+    try:
+        # one delivery (standard signals do not queue), after both workers started;
+        # ignoring SIGINT during the start instead lost it
+        assert seen == [2]
+        assert pool.map(abs, [-1, -2]) == [1, 2]  # the workers did not take it
+    finally:
+        pool.close()
+
+
+def test_a_pool_stopped_by_that_ctrl_c_leaves_no_worker_behind(ctrl_c_while_forking):
+    def stop(signum, frame):
+        raise KeyboardInterrupt
+
+    signal.signal(signal.SIGINT, stop)
+    with pytest.raises(KeyboardInterrupt):
+        WorkerPool(2)
+    assert len(ctrl_c_while_forking) == 2
+    assert not any(proc.is_alive() for proc in ctrl_c_while_forking)

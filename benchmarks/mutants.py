@@ -263,6 +263,14 @@ MUTANTS = (
         "the archive skips the offers that would stay instead of those that would leave",
     ),
     Mutant(
+        "worker-keeps-stop-signals-blocked",
+        "leverage/search/workers.py",
+        "    signal.pthread_sigmask(signal.SIG_UNBLOCK, STOP_SIGNALS)\n",
+        "",
+        ("tests/search/test_workers.py",),
+        "a worker never unblocks SIGTERM after its start, so a group SIGTERM cannot end it",
+    ),
+    Mutant(
         "stream-past-count",
         "leverage/search/workers.py",
         "for value in itertools.islice(fn(arg), count):",

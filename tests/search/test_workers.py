@@ -132,3 +132,25 @@ def test_a_pool_stopped_by_that_ctrl_c_leaves_no_worker_behind(ctrl_c_while_fork
         WorkerPool(2)
     assert len(ctrl_c_while_forking) == 2
     assert not any(proc.is_alive() for proc in ctrl_c_while_forking)
+
+
+def signal_set(pid: int, field: str) -> set:
+    """The signals in a /proc/PID/status mask line (Linux's proc(5): a hex bit mask,
+    bit n-1 for signal n)."""
+    text = Path(f"/proc/{pid}/status").read_text()
+    mask = int(text.split(f"{field}:")[1].split()[0], 16)
+    return {n for n in range(1, 65) if mask >> (n - 1) & 1}
+
+
+@pytest.mark.skipif(not Path("/proc/self/status").exists(), reason="reads Linux's /proc")
+def test_after_the_start_neither_parent_nor_worker_holds_stop_signals():
+    pool = WorkerPool(1)
+    try:
+        assert pool.map(abs, [-3]) == [3]  # the worker is in its loop
+        (pid,) = pool.pids
+        stop = {int(signal.SIGINT), int(signal.SIGTERM)}
+        assert not stop & signal_set(pid, "SigBlk")  # a group SIGTERM ends it
+        assert int(signal.SIGINT) in signal_set(pid, "SigIgn")  # the parent decides
+        assert not stop & signal_set(os.getpid(), "SigBlk")
+    finally:
+        pool.close()

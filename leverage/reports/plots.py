@@ -448,7 +448,8 @@ def convergence(record, folder) -> Picture | None:
         )
         axes[0].legend()
         if has_hv:
-            axes[1].set_ylabel("hypervolume of the front")
+            unit = record.get("front", {}).get("hypervolume_unit")
+            axes[1].set_ylabel("hypervolume of the front" + (f", {unit}" if unit else ""))
         axes[-1].set_xlabel(
             "generations per island"
             if along == "generations"

@@ -204,10 +204,11 @@ def render(record) -> str:
         lines.append(f"effort    {run.get('evaluations', 0):,} evaluations in {time_text(run)}")
     front = record.get("front")
     if front:
+        hv_unit = f" {front['hypervolume_unit']}" if front.get("hypervolume_unit") else ""
         lines.append(
             f"front     {front['members']} feasible non-dominated designs trading "
             f"{', '.join(front['objectives'])}; hypervolume {_fmt(front['hypervolume'], 6)}"
-            f" (reference {', '.join(_fmt(v, 3) for v in front['reference_point'])});"
+            f"{hv_unit} (reference {', '.join(_fmt(v, 3) for v in front['reference_point'])});"
             f" below: its knee point; all members in {front['file']}"
         )
         if as_float(front.get("knee_distance")) < KNEE_MIN_DISTANCE:

@@ -72,15 +72,25 @@ class Progress:
         # How the (first) objective reads: its own unit and sign (set by ``run``).
         self.shown = None
 
-    def update(self, done: int, best: float, evaluations: int, search_s: float | None = None):
+    def update(
+        self,
+        done: int,
+        best: float,
+        evaluations: int,
+        search_s: float | None = None,
+        headline: str | None = None,
+    ):
         """``search_s``: seconds since the search started, the clock of convergence.csv's
-        wall_time_s and of the summary's "search" time (default: since this line began)."""
+        wall_time_s and of the summary's "search" time (default: since this line began);
+        ``headline``: shown instead of "best ..." (a front search's size and hypervolume)."""
         if not self.enabled:
             return
         elapsed = time.monotonic() - self.start if search_s is None else search_s
-        best_text = self.shown.text(best) if self.shown is not None else f"{best:.6g}"
+        if headline is None:
+            best_text = self.shown.text(best) if self.shown is not None else f"{best:.6g}"
+            headline = f"best {best_text}"
         text = (
-            f"evolution {done}/{self.total}  best {best_text}  "
+            f"evolution {done}/{self.total}  {headline}  "
             f"{evaluations:,} evaluations  search {elapsed:.1f} s"
         )
         if self.tty:
@@ -402,6 +412,8 @@ def run(
                             search.champion()[1][0],
                             search.state.evaluations,
                             time.monotonic() - search.start_time,
+                            # a front has no "best": its size and hypervolume instead
+                            search.headline() if hasattr(search, "headline") else None,
                         )
                 finally:
                     log.close()

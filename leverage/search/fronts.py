@@ -75,6 +75,15 @@ def column(name: str, unit: str) -> str:
     return f"{name}_{slug}" if slug else name
 
 
+def hypervolume_unit(codes) -> str:
+    """Unit of the hypervolume of objectives ``codes``: the product of their units,
+    "(km/s)^2" for two in km/s, "(km/s)(deg)" for km/s and deg."""
+    units = [OBJECTIVES[c][1] for c in codes]
+    if len(set(units)) == 1:
+        return f"({units[0]})^{len(units)}"
+    return "".join(f"({u})" for u in units)
+
+
 def search_class(compiled, settings):
     """Search for a single objective, FrontSearch for several; refuses a mismatched
     --algorithm in one line."""
@@ -347,6 +356,19 @@ class FrontSearch:
     def hypervolume(self) -> float:
         return hypervolume(self.state.archive_f, self.reference)
 
+    def headline(self) -> str:
+        """The progress line's summary of the search so far: the front's size and
+        hypervolume (its knee, the design written up, may jump along a flat front)."""
+        history = self.state.history
+        last = history[-1] if history else None
+        hv = last.hypervolume if last is not None and last.island == "front" else self.hypervolume()
+        unit = hypervolume_unit(self._codes())
+        return f"front {len(self.state.archive_f)} designs, hypervolume {hv:.6g} {unit}"
+
+    def _codes(self) -> list:
+        """The objective codes of the problem (``core.layout`` OBJ_*), in order."""
+        return [int(self.udp.params[L.P_OBJ_CODES + k]) for k in range(self.udp.get_nobj())]
+
     def champion(self) -> tuple[np.ndarray, np.ndarray]:
         """The knee of the archive; without feasible designs, the least-violating member."""
         st = self.state
@@ -376,7 +398,7 @@ class FrontSearch:
         quantity of ``result.DERIVED``, each column named with its unit; no name repeats.
         """
         st = self.state
-        codes = [int(self.udp.params[L.P_OBJ_CODES + k]) for k in range(self.udp.get_nobj())]
+        codes = self._codes()
         order = np.argsort(st.archive_f[:, 0], kind="stable") if len(st.archive_f) else []
         knee_row, knee_distance = knee(st.archive_f) if len(st.archive_f) else (-1, math.nan)
         header = (
@@ -406,6 +428,7 @@ class FrontSearch:
             "objectives": [column(OBJECTIVES[c][0], OBJECTIVES[c][1]) for c in codes],
             "reference_point": [float(v) for v in self.reference],
             "hypervolume": self.hypervolume(),
+            "hypervolume_unit": hypervolume_unit(codes),
             "knee_member": int(list(order).index(knee_row)) if knee_row >= 0 else None,
             "knee_distance": clean(knee_distance),
         }

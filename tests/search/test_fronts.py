@@ -12,6 +12,7 @@ invented (problems/trade-front.toml).
 """
 
 import csv
+import io
 import json
 
 import numpy as np
@@ -27,6 +28,7 @@ from leverage.record.design import feasible
 from leverage.run.runner import Progress, run, settings_from
 from leverage.search.fronts import (
     hypervolume,
+    hypervolume_unit,
     knee,
     most_spread,
     non_dominated,
@@ -170,7 +172,9 @@ def test_front_run_writes_a_feasible_non_dominated_front(
         small.update(generations=150, population=32, islands=1)
     settings = settings_from(problem, small)
     out = tmp_path / "run"
-    outcome = run(problem, settings, out, Progress(1, enabled=False), echo=lambda *a: None)
+    shown = io.StringIO()
+    progress = Progress(settings.evolutions, stream=shown)
+    outcome = run(problem, settings, out, progress, echo=lambda *a: None)
     assert outcome.status == "complete" and outcome.feasible
     rows = list(csv.DictReader((out / "front.csv").open()))
     assert len(rows) >= 5
@@ -200,4 +204,17 @@ def test_front_run_writes_a_feasible_non_dominated_front(
     front_rows = [r for r in log if r["island"] == "front"]
     assert len(front_rows) == settings.evolutions
     assert float(front_rows[-1]["hypervolume"]) == pytest.approx(record["front"]["hypervolume"])
-    assert "front     " in (out / "summary.txt").read_text()
+    # hypervolume of total DV (km/s) and minus gain (km/s): (km/s)^2, everywhere it is shown
+    assert record["front"]["hypervolume_unit"] == "(km/s)^2"
+    hv = record["front"]["hypervolume"]
+    assert f"hypervolume {hv:.6f} (km/s)^2" in (out / "summary.txt").read_text()
+    # the progress line shows the front, not a "best" (the knee may jump along it)
+    last_line = shown.getvalue().splitlines()[-1]
+    assert f"front {len(rows)} designs, hypervolume {hv:.6g} (km/s)^2" in last_line
+    assert "best" not in shown.getvalue()
+
+
+def test_hypervolume_unit_is_the_product_of_the_objectives_units():
+    assert hypervolume_unit([L.OBJ_TOTAL_DV, L.OBJ_GAIN]) == "(km/s)^2"
+    assert hypervolume_unit([L.OBJ_TOTAL_DV, L.OBJ_INCLINATION]) == "(km/s)(deg)"
+    assert hypervolume_unit([L.OBJ_TOTAL_DV, L.OBJ_GAIN, L.OBJ_MASS]) == "(km/s)(km/s)(t)"

@@ -98,8 +98,8 @@ def ctrl_c_while_forking(monkeypatch):
     started = []
 
     def start(self):
-        os.kill(os.getpid(), signal.SIGINT)
         started.append(self)
+        os.kill(os.getpid(), signal.SIGINT)
         return original(self)
 
     monkeypatch.setattr(process_class, "start", start)
@@ -115,9 +115,12 @@ def test_a_ctrl_c_while_the_workers_start_reaches_the_parent_once_they_are_up(
     signal.signal(signal.SIGINT, lambda signum, frame: seen.append(len(ctrl_c_while_forking)))
     pool = WorkerPool(2)
     try:
-        # one delivery (standard signals do not queue), after both workers started;
-        # ignoring SIGINT during the start instead lost it
-        assert seen == [2]
+        # Reached the parent (ignoring SIGINT during the start lost it). With no other
+        # thread, as in a run, once after both workers started (held while blocked;
+        # standard signals do not queue); in a process with other threads (this test
+        # process, after numba's or pygmo's) a thread that does not block it takes it
+        # at once, so it may come after each start.
+        assert seen in ([2], [1, 2])
         assert pool.map(abs, [-1, -2]) == [1, 2]  # the workers did not take it
     finally:
         pool.close()
@@ -130,7 +133,7 @@ def test_a_pool_stopped_by_that_ctrl_c_leaves_no_worker_behind(ctrl_c_while_fork
     signal.signal(signal.SIGINT, stop)
     with pytest.raises(KeyboardInterrupt):
         WorkerPool(2)
-    assert len(ctrl_c_while_forking) == 2
+    assert len(ctrl_c_while_forking) in (1, 2)  # see the test above
     assert not any(proc.is_alive() for proc in ctrl_c_while_forking)
 
 

@@ -257,8 +257,8 @@ MUTANTS = (
     Mutant(
         "nsga2-archive-covered-inverted",
         "leverage/core/nsga2.py",
-        "return low > 0 and af[low - 1, 1] <= b",
-        "return low > 0 and af[low - 1, 1] >= b",
+        "return after > 0 and af[after - 1, 1] <= b",
+        "return after > 0 and af[after - 1, 1] >= b",
         ("tests/core/test_nsga2.py",),
         "the archive skips the offers that would stay instead of those that would leave",
     ),

@@ -398,14 +398,8 @@ def _covered(af, count, a, b):
     member with the largest first objective <= a has the smallest second among those.
     Such an offer would leave at the next merge (``front_of_two``), and changes
     nothing else there, so ``settle`` need not buffer it: the merges are smaller."""
-    low, high = 0, count  # bisection: the first member whose first objective exceeds a
-    while low < high:
-        mid = (low + high) // 2
-        if af[mid, 0] <= a:
-            low = mid + 1
-        else:
-            high = mid
-    return low > 0 and af[low - 1, 1] <= b
+    after = np.searchsorted(af[:count, 0], a, side="right")  # first member with more
+    return after > 0 and af[after - 1, 1] <= b
 
 
 @njit(cache=True)
